@@ -1,0 +1,38 @@
+# Set-up and everyday commands. Only python3 and make are needed on a fresh machine.
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+
+.PHONY: demo test slow lint bench clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+
+# The runtime install; re-run only when pyproject.toml changes.
+$(VENV)/.installed: pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e .
+	touch $@
+
+$(VENV)/.installed-test: pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(VENV)/.installed $@
+
+demo: $(VENV)/.installed
+	$(BIN)/forcefit demo
+
+test: $(VENV)/.installed-test
+	$(BIN)/python -m pytest -q
+
+slow: $(VENV)/.installed-test
+	$(BIN)/python -m pytest -q -m slow
+
+lint: $(VENV)/.installed-test
+	$(BIN)/ruff check forcefit tests benchmarks datasets_demo
+	$(BIN)/mypy
+
+bench: $(VENV)/.installed-test
+	for b in benchmarks/*.py; do $(BIN)/python $$b || exit 1; done
+
+clean:
+	rm -rf $(VENV) build *.egg-info .pytest_cache

@@ -1,0 +1,63 @@
+"""forcefit: infer the central force law F(r) = -k r**n r_hat behind a planar trajectory."""
+
+from .coordinates import Calibration, PlaneProjection, project_to_plane
+from .errors import (
+    FitError,
+    ForcefitError,
+    ForcefitWarning,
+    GeometryError,
+    InputError,
+    NotIdentifiable,
+)
+from .inspection import TrackSummary, inspect_track
+from .laws import (
+    angular_momentum,
+    circular_period,
+    circular_speed,
+    potential,
+    radial_force,
+    specific_energy,
+)
+from .loaders import load_track, load_tracks, save_track
+from .propagate import Drag, States, propagate_reference
+from .simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
+from .track import Track
+from .units import length_factor, parse_length_unit, parse_time_unit, strength_unit, time_factor
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "Calibration",
+    "Drag",
+    "FitError",
+    "ForcefitError",
+    "ForcefitWarning",
+    "GeometryError",
+    "InputError",
+    "NotIdentifiable",
+    "PlaneProjection",
+    "States",
+    "Track",
+    "TrackSummary",
+    "__version__",
+    "angular_momentum",
+    "circular_period",
+    "circular_speed",
+    "inspect_track",
+    "length_factor",
+    "load_track",
+    "load_tracks",
+    "parse_length_unit",
+    "parse_time_unit",
+    "potential",
+    "project_to_plane",
+    "propagate_reference",
+    "radial_force",
+    "save_track",
+    "simulate_orbit",
+    "simulate_pendulum",
+    "specific_energy",
+    "spherical_pendulum_states",
+    "strength_unit",
+    "time_factor",
+]

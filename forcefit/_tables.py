@@ -1,0 +1,269 @@
+"""Read a table of samples from any supported format, keeping each row's number.
+
+Row numbers are 1-based, as a spreadsheet or a text editor shows them, so that an
+error can point at the exact line of the file.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+import re
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .errors import InputError
+
+EXCEL_SUFFIXES = frozenset({".xlsx", ".xlsm", ".xls"})
+PARQUET_SUFFIXES = frozenset({".parquet", ".pq"})
+JSON_SUFFIXES = frozenset({".json"})
+
+_DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+([eE][+-]?\d+)?$")
+_DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", None: "whitespace"}
+
+
+@dataclass(frozen=True)
+class RawTable:
+    """Cells exactly as read, with the row number of each.
+
+    Attributes
+    ----------
+    frame : DataFrame
+        One column per header cell; cells are strings (text files) or as the format
+        stores them.
+    rows : ndarray of int
+        1-based row (line) number of each record in the source.
+    source : str
+        The file path, or ``"<DataFrame>"``.
+    layout : str
+        How it was read: ``"comma"``, ``"semicolon"``, ``"tab"``, ``"whitespace"``,
+        ``"excel"``, ``"parquet"``, ``"json"`` or ``"frame"``.
+    decimal_comma : bool
+        True when numbers were written with decimal commas (converted on reading).
+    has_header : bool
+        False when the file starts with numbers and columns were named by position.
+    """
+
+    frame: pd.DataFrame
+    rows: np.ndarray
+    source: str
+    layout: str
+    decimal_comma: bool = False
+    has_header: bool = True
+
+    @property
+    def row_word(self) -> str:
+        """How a user finds a record: a row (text, spreadsheet) or a record (JSON)."""
+        return "record" if self.layout == "json" else "row"
+
+
+def read_table(source: str | os.PathLike[str] | pd.DataFrame, *, sheet: str | int = 0) -> RawTable:
+    """Read ``source`` into a `RawTable`; never modifies the file.
+
+    Parameters
+    ----------
+    source : path-like or DataFrame
+        A CSV/TSV/semicolon/whitespace text file, an Excel workbook, a Parquet
+        file, a JSON file of records, or a DataFrame.
+    sheet : str or int
+        Excel sheet name or 0-based index.
+    """
+    if isinstance(source, pd.DataFrame):
+        frame = source.reset_index(drop=True)
+        return RawTable(frame, np.arange(1, len(frame) + 1), "<DataFrame>", "frame")
+    path = Path(source)
+    if not path.exists():
+        raise InputError(f"{path}: file not found. Check the path and its spelling.")
+    if not path.is_file():
+        raise InputError(f"{path}: is a folder, not a file. Name one file of samples.")
+    if path.stat().st_size == 0:
+        raise InputError(f"{path}: the file is empty. Export the tracked samples into it again.")
+    suffix = path.suffix.lower()
+    if suffix in EXCEL_SUFFIXES:
+        return _read_excel(path, sheet)
+    if suffix in PARQUET_SUFFIXES:
+        return _read_parquet(path)
+    if suffix in JSON_SUFFIXES:
+        return _read_json(path)
+    return _read_text(path)
+
+
+def _read_excel(path: Path, sheet: str | int) -> RawTable:
+    try:
+        frame = pd.read_excel(path, sheet_name=sheet, dtype=object)
+    except Exception as exc:  # openpyxl/xlrd raise many unrelated types on damaged files
+        raise InputError(
+            f"{path}: could not be read as an Excel workbook ({type(exc).__name__}: {exc}). "
+            "Open it in a spreadsheet program and save it again as .xlsx, or export CSV."
+        ) from None
+    frame.columns = [str(column) for column in frame.columns]
+    return RawTable(frame, np.arange(2, len(frame) + 2), str(path), "excel")
+
+
+def _read_parquet(path: Path) -> RawTable:
+    try:
+        frame = pd.read_parquet(path)
+    except ImportError:
+        raise
+    except Exception as exc:  # pyarrow raises its own error types
+        raise InputError(
+            f"{path}: could not be read as a Parquet file ({type(exc).__name__}: {exc}). "
+            "Write it again, or export CSV."
+        ) from None
+    frame = frame.reset_index(drop=True)
+    return RawTable(frame, np.arange(1, len(frame) + 1), str(path), "parquet")
+
+
+def _read_json(path: Path) -> RawTable:
+    try:
+        content: Any = json.loads(path.read_text(encoding="utf-8-sig"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(
+            f"{path}: is not valid JSON ({exc}). Write a list of records such as "
+            '[{"t": 0.0, "x": 1.0, "y": 0.0}, ...].'
+        ) from None
+    if isinstance(content, dict) and isinstance(content.get("records"), list):
+        content = content["records"]
+    if isinstance(content, dict) and all(isinstance(v, list) for v in content.values()):
+        content = pd.DataFrame(content).to_dict("records")
+    if not isinstance(content, list) or not all(isinstance(item, dict) for item in content):
+        raise InputError(
+            f"{path}: expected a JSON list of records such as "
+            '[{"t": 0.0, "x": 1.0, "y": 0.0}, ...], or an object of equal-length columns.'
+        )
+    frame = pd.DataFrame.from_records(content)
+    return RawTable(frame, np.arange(1, len(frame) + 1), str(path), "json")
+
+
+def _decode(path: Path) -> str:
+    raw = path.read_bytes()
+    if b"\x00" in raw[:4096]:
+        raise InputError(
+            f"{path}: holds binary data, not text. Export the samples as CSV, Excel or Parquet "
+            "with the matching file ending."
+        )
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        return raw.decode("cp1252", errors="replace")
+
+
+def _is_number(cell: str) -> bool:
+    try:
+        float(cell.replace(",", ".") if _DECIMAL_COMMA.match(cell) else cell)
+    except ValueError:
+        return False
+    return True
+
+
+def _delimiter(line: str) -> str | None:
+    for candidate in ("\t", ";", ","):
+        if candidate in line:
+            return candidate
+    return None
+
+
+def _split(lines: list[str], delimiter: str | None) -> list[list[str]]:
+    if delimiter is None:
+        return [line.split() for line in lines]
+    return [[cell.strip() for cell in row] for row in csv.reader(lines, delimiter=delimiter)]
+
+
+def _read_text(path: Path) -> RawTable:
+    numbered = [
+        (number, line)
+        for number, line in enumerate(_decode(path).splitlines(), start=1)
+        if line.strip()
+    ]
+    comments = [(n, line) for n, line in numbered if line.lstrip().startswith("#")]
+    content = [(n, line) for n, line in numbered if not line.lstrip().startswith("#")]
+    if not content:
+        raise InputError(f"{path}: holds no rows, only comments or blank lines. Add the samples.")
+    delimiter = _delimiter(content[0][1])
+    if delimiter == "," and len(content) > 1 and _delimiter(content[1][1]) is None:
+        delimiter = None  # a lone header with commas above whitespace-separated numbers
+    cells = _split([line for _, line in content], delimiter)
+    if delimiter is None:
+        cells[0] = _join_unit_tokens(cells[0])
+    has_header = not all(_is_number(cell) for cell in cells[0] if cell)
+    if has_header:
+        header, body, numbers = cells[0], cells[1:], [n for n, _ in content[1:]]
+    else:
+        header = _header_from_comment(path, comments, delimiter, len(cells[0]))
+        body, numbers = cells, [n for n, _ in content]
+    if not body:
+        raise InputError(
+            f"{path}: has a header ({', '.join(header)}) but no data rows. "
+            "Export the samples under it."
+        )
+    width = len(header)
+    for number, row in zip(numbers, body):
+        if len(row) > width:
+            raise InputError(
+                f"{path}, row {number}: {_cells(len(row))} but the header names {width} columns. "
+                "Remove the extra cells or add a header for them."
+            )
+        if len(row) < width:
+            raise InputError(
+                f"{path}, row {number}: {_cells(len(row))} but the header names {width} columns; "
+                "the line may be cut short. Complete it or delete the row."
+            )
+    decimal_comma = delimiter != "," and any(
+        _DECIMAL_COMMA.match(cell) for row in body[:200] for cell in row
+    )
+    frame = pd.DataFrame(body, columns=_unique(header), dtype=object)
+    if decimal_comma:
+        frame = frame.apply(lambda column: column.str.replace(",", ".", regex=False))
+    return RawTable(
+        frame, np.asarray(numbers), str(path), _DELIMITER_NAMES[delimiter], decimal_comma, has_header
+    )
+
+
+def _cells(count: int) -> str:
+    return f"{count} cell" if count == 1 else f"{count} cells"
+
+
+def _header_from_comment(
+    path: Path, comments: list[tuple[int, str]], delimiter: str | None, width: int
+) -> list[str]:
+    """Column names from a ``# t x y`` comment line, or by position (t, x, y / x, y)."""
+    if comments:
+        last = comments[-1][1].lstrip().lstrip("#")
+        names = _split([last], delimiter)[0] if last.strip() else []
+        names = _join_unit_tokens(names) if delimiter is None else names
+        if len(names) == width and not any(_is_number(name) for name in names):
+            return names
+    by_position = {2: ["x", "y"], 3: ["t", "x", "y"]}
+    if width in by_position:
+        return by_position[width]
+    raise InputError(
+        f"{path}: the file has no header and {width} columns, so forcefit cannot tell which is which. "
+        "Add a header line such as: t [s], x [m], y [m]."
+    )
+
+
+def _join_unit_tokens(tokens: list[str]) -> list[str]:
+    """Rejoin ``t [s]`` split at the space by a whitespace-separated header."""
+    joined: list[str] = []
+    for token in tokens:
+        if joined and token[:1] in "[(" and not _is_number(token):
+            joined[-1] = f"{joined[-1]} {token}"
+        else:
+            joined.append(token)
+    return joined
+
+
+def _unique(header: list[str]) -> list[str]:
+    """Header names made unique (``x``, ``x.2``) so that no column is lost."""
+    seen: dict[str, int] = {}
+    names = []
+    for name in header:
+        count = seen.get(name, 0) + 1
+        seen[name] = count
+        names.append(name if count == 1 else f"{name}.{count}")
+    return names

@@ -1,0 +1,178 @@
+"""Length and time units: parsing, conversion factors and the unit of the strength k.
+
+Units come from pint's registry, with one exception: image pixels (``px``) are a
+length of their own that converts to nothing until a calibration gives the scale.
+(pint's own ``px`` is the CSS pixel, 1/96 inch, which is never what a camera means.)
+"""
+
+from __future__ import annotations
+
+import math
+from functools import lru_cache
+
+import pint
+
+from .errors import InputError
+
+PIXEL = "px"
+_PIXEL_NAMES = frozenset({"px", "pixel", "pixels", "pix", "pxl"})
+
+
+@lru_cache(maxsize=1)
+def registry() -> pint.UnitRegistry:
+    """The shared pint registry forcefit uses for every unit."""
+    return pint.UnitRegistry()
+
+
+def _lookup(name: str, dimension: str) -> pint.Unit | None:
+    """Return the pint unit named ``name`` if it has ``dimension``, else None."""
+    ureg = registry()
+    for candidate in (name, name.lower()):
+        try:
+            unit = ureg.Unit(candidate)
+        except (pint.errors.UndefinedUnitError, AttributeError, ValueError, TypeError):
+            continue
+        if unit.dimensionality == ureg.get_dimensionality(dimension):
+            return unit
+    return None
+
+
+def parse_length_unit(name: str) -> str:
+    """Canonical symbol of a length unit, or raise `InputError` naming the fix.
+
+    Parameters
+    ----------
+    name : str
+        A unit as written by a user or in a column header: ``"m"``, ``"mm"``,
+        ``"metres"``, ``"AU"``, ``"px"``, ``"pixels"``, ``"inch"``.
+
+    Returns
+    -------
+    str
+        The short symbol forcefit uses (``"m"``, ``"mm"``, ``"au"``, ``"px"``, ...).
+
+    Examples
+    --------
+    >>> parse_length_unit("Pixels"), parse_length_unit("AU"), parse_length_unit("millimetre")
+    ('px', 'au', 'mm')
+    """
+    text = name.strip()
+    if text.lower() in _PIXEL_NAMES:
+        return PIXEL
+    unit = _lookup(text, "[length]")
+    if unit is None:
+        raise InputError(
+            f'unknown length unit "{name}": expected a length such as m, mm, cm, km, au, '
+            "inch or px. Write the unit by its usual symbol."
+        )
+    return f"{unit:~}".replace(" ", "")
+
+
+def parse_time_unit(name: str) -> str:
+    """Canonical symbol of a time unit, or raise `InputError` naming the fix.
+
+    Examples
+    --------
+    >>> parse_time_unit("seconds"), parse_time_unit("ms"), parse_time_unit("days")
+    ('s', 'ms', 'd')
+    """
+    text = name.strip()
+    unit = _lookup(text, "[time]")
+    if unit is None:
+        raise InputError(
+            f'unknown time unit "{name}": expected a time such as s, ms, min, h, d or yr. '
+            "Write the unit by its usual symbol."
+        )
+    symbol = f"{unit:~}".replace(" ", "")
+    return "yr" if symbol == "a" else symbol
+
+
+def length_factor(from_unit: str, to_unit: str) -> float:
+    """Multiply a length in ``from_unit`` by this to express it in ``to_unit``.
+
+    Pixels convert only to pixels; anything else needs a calibration.
+
+    Examples
+    --------
+    >>> length_factor("au", "m")   # IAU 2012 Resolution B2
+    149597870700.0
+    """
+    source, target = parse_length_unit(from_unit), parse_length_unit(to_unit)
+    if source == target:
+        return 1.0
+    if PIXEL in (source, target):
+        raise InputError(
+            f"cannot convert {source} to {target}: pixels need a calibration "
+            "(a scale in length per pixel, or two marks a known distance apart)."
+        )
+    ureg = registry()
+    return float(ureg.Quantity(1.0, source).to(target).magnitude)
+
+
+def time_factor(from_unit: str, to_unit: str) -> float:
+    """Multiply a time in ``from_unit`` by this to express it in ``to_unit``.
+
+    Examples
+    --------
+    >>> time_factor("d", "s")
+    86400.0
+    """
+    source, target = parse_time_unit(from_unit), parse_time_unit(to_unit)
+    if source == target:
+        return 1.0
+    ureg = registry()
+    source, target = ("year" if u == "yr" else u for u in (source, target))
+    return float(ureg.Quantity(1.0, source).to(target).magnitude)
+
+
+def _power(symbol: str, exponent: float) -> str:
+    """``symbol`` raised to ``exponent`` as text, or "" for a zero power."""
+    if abs(exponent) < 1e-12:
+        return ""
+    if abs(exponent - 1.0) < 1e-12:
+        return symbol
+    rounded = round(exponent)
+    text = str(rounded) if abs(exponent - rounded) < 1e-9 else f"{exponent:.4g}"
+    return f"{symbol}^{text}"
+
+
+def strength_unit(length_unit: str, time_unit: str, exponent: float) -> str:
+    """Unit of the strength k in F = -k r**n, namely length**(1 - n) time**-2.
+
+    Parameters
+    ----------
+    length_unit, time_unit : str
+        The track's units.
+    exponent : float
+        The force exponent n (dimensionless).
+
+    Examples
+    --------
+    >>> strength_unit("m", "s", 1.0), strength_unit("au", "d", -2.0)
+    ('s^-2', 'au^3 d^-2')
+    """
+    if not math.isfinite(exponent):
+        return f"{length_unit}^(1-n) {time_unit}^-2"
+    parts = [_power(length_unit, 1.0 - exponent), _power(time_unit, -2.0)]
+    return " ".join(part for part in parts if part)
+
+
+def format_measurement(value: float, stderr: float | None = None, unit: str = "") -> str:
+    """A value with its standard error and unit, rounded to the error's two digits.
+
+    Examples
+    --------
+    >>> format_measurement(1.30843, 0.00213, "s^-2")
+    '1.3084 ± 0.0021 s^-2'
+    >>> format_measurement(0.25, None, "m")
+    '0.25 m'
+    """
+    suffix = f" {unit}" if unit else ""
+    if not math.isfinite(value):
+        return f"{value}{suffix}"
+    if stderr is None or not math.isfinite(stderr) or stderr <= 0:
+        return f"{value:.6g}{suffix}"
+    decimals = max(0, 1 - math.floor(math.log10(stderr)))
+    if decimals > 12 or abs(value) >= 1e6 or (value != 0 and abs(value) < 1e-4):
+        return f"{value:.4e} ± {stderr:.2e}{suffix}"
+    return f"{value:.{decimals}f} ± {stderr:.{decimals}f}{suffix}"
