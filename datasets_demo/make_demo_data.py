@@ -1,5 +1,8 @@
 """Regenerate every file in datasets_demo/ from fixed seeds: `python datasets_demo/make_demo_data.py`.
 
+An optional argument names another folder to write into (the tests use it to check that
+the bundled files come out the same).
+
 All scenarios are invented for forcefit's demo; datasets_demo/README.md has a card for
 each (scenario, units, the true values used). Numbers are written with fixed
 decimals, so the files come out the same byte for byte on every run.
@@ -9,6 +12,7 @@ from __future__ import annotations
 
 import json
 import math
+import sys
 from pathlib import Path
 
 import numpy as np
@@ -17,7 +21,7 @@ from scipy.integrate import solve_ivp
 from forcefit.propagate import Drag, propagate_reference
 from forcefit.simulate import simulate_orbit, simulate_pendulum
 
-HERE = Path(__file__).resolve().parent
+HERE = Path(sys.argv[1]) if len(sys.argv) > 1 else Path(__file__).resolve().parent
 CLASS = HERE / "class_pendulum"
 GAUSS_K2 = 0.01720209895**2  # au^3 / d^2, Gaussian gravitational constant squared (IAU 1976)
 
@@ -154,7 +158,7 @@ def _magnet_run(rng: np.random.Generator, k: float, duration: float) -> tuple[np
 
 def class_set() -> dict:
     """Twelve student runs of the 2.40 m pendulum lab, each filmed from above with a phone."""
-    CLASS.mkdir(exist_ok=True)
+    CLASS.mkdir(parents=True, exist_ok=True)
     length, gravity = 2.40, 9.81
     k = gravity / length
     rng = np.random.default_rng(1203)
@@ -241,6 +245,7 @@ def class_set() -> dict:
 
 
 def main() -> None:
+    HERE.mkdir(parents=True, exist_ok=True)
     manifest = {"about": "Invented demo scenarios for forcefit; see README.md in this folder.",
                 "datasets": [stairwell_pendulum(), airtable_puck(), comet(), class_set()]}
     (HERE / "manifest.json").write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")

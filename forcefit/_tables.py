@@ -7,6 +7,7 @@ error can point at the exact line of the file.
 from __future__ import annotations
 
 import csv
+import io
 import json
 import os
 import re
@@ -24,6 +25,7 @@ PARQUET_SUFFIXES = frozenset({".parquet", ".pq"})
 JSON_SUFFIXES = frozenset({".json"})
 
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+([eE][+-]?\d+)?$")
+_NA_TOKENS = frozenset({"", "nan", "NaN", "NAN", "-nan"})
 _DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", None: "whitespace"}
 
 
@@ -175,53 +177,60 @@ def _split(lines: list[str], delimiter: str | None) -> list[list[str]]:
 
 
 def _read_text(path: Path) -> RawTable:
-    numbered = [
-        (number, line)
-        for number, line in enumerate(_decode(path).splitlines(), start=1)
-        if line.strip()
-    ]
-    comments = [(n, line) for n, line in numbered if line.lstrip().startswith("#")]
-    content = [(n, line) for n, line in numbered if not line.lstrip().startswith("#")]
-    if not content:
+    lines = _decode(path).splitlines()
+    kept = [i for i, line in enumerate(lines) if line.strip() and not line.lstrip().startswith("#")]
+    if not kept:
         raise InputError(f"{path}: holds no rows, only comments or blank lines. Add the samples.")
-    delimiter = _delimiter(content[0][1])
-    if delimiter == "," and len(content) > 1 and _delimiter(content[1][1]) is None:
+    delimiter = _delimiter(lines[kept[0]])
+    if delimiter == "," and len(kept) > 1 and _delimiter(lines[kept[1]]) is None:
         delimiter = None  # a lone header with commas above whitespace-separated numbers
-    cells = _split([line for _, line in content], delimiter)
-    if delimiter is None:
-        cells[0] = _join_unit_tokens(cells[0])
-    has_header = not all(_is_number(cell) for cell in cells[0] if cell)
+    first = _split([lines[kept[0]]], delimiter)[0]
+    has_header = not all(_is_number(cell) for cell in first if cell)
     if has_header:
-        header, body, numbers = cells[0], cells[1:], [n for n, _ in content[1:]]
+        header = _join_unit_tokens(first) if delimiter is None else first
+        body_index = kept[1:]
     else:
-        header = _header_from_comment(path, comments, delimiter, len(cells[0]))
-        body, numbers = cells, [n for n, _ in content]
-    if not body:
+        comments = [(i + 1, line) for i, line in enumerate(lines[: kept[0]]) if line.strip()]
+        header, body_index = _header_from_comment(path, comments, delimiter, len(first)), kept
+    if not body_index:
         raise InputError(
             f"{path}: has a header ({', '.join(header)}) but no data rows. "
             "Export the samples under it."
         )
-    width = len(header)
-    for number, row in zip(numbers, body):
-        if len(row) > width:
-            raise InputError(
-                f"{path}, row {number}: {_cells(len(row))} but the header names {width} columns. "
-                "Remove the extra cells or add a header for them."
-            )
-        if len(row) < width:
-            raise InputError(
-                f"{path}, row {number}: {_cells(len(row))} but the header names {width} columns; "
-                "the line may be cut short. Complete it or delete the row."
-            )
+    body = [lines[i] for i in body_index]
+    numbers = np.asarray(body_index) + 1
+    _check_widths(path, body, numbers, delimiter, len(header))
     decimal_comma = delimiter != "," and any(
-        _DECIMAL_COMMA.match(cell) for row in body[:200] for cell in row
+        _DECIMAL_COMMA.match(cell) for row in _split(body[:200], delimiter) for cell in row
     )
-    frame = pd.DataFrame(body, columns=_unique(header), dtype=object)
-    if decimal_comma:
-        frame = frame.apply(lambda column: column.str.replace(",", ".", regex=False))
+    frame = pd.read_csv(
+        io.StringIO("\n".join(body)), sep=r"\s+" if delimiter is None else delimiter,
+        header=None, names=_unique(header), keep_default_na=False, na_values=sorted(_NA_TOKENS),
+        decimal="," if decimal_comma else ".", skipinitialspace=True, index_col=False,
+    )
     return RawTable(
-        frame, np.asarray(numbers), str(path), _DELIMITER_NAMES[delimiter], decimal_comma, has_header
+        frame, numbers, str(path), _DELIMITER_NAMES[delimiter], decimal_comma, has_header
     )
+
+
+def _check_widths(
+    path: Path, body: list[str], numbers: np.ndarray, delimiter: str | None, width: int
+) -> None:
+    """Refuse a row with more or fewer cells than the header names."""
+    if delimiter is None:
+        counts = np.fromiter((len(line.split()) for line in body), dtype=int, count=len(body))
+    else:
+        counts = np.fromiter((line.count(delimiter) + 1 for line in body), int, count=len(body))
+    for index in np.flatnonzero(counts != width):
+        found = len(_split([body[index]], delimiter)[0])   # quoted cells may hold delimiters
+        if found == width:
+            continue
+        problem = "Remove the extra cells or add a header for them." if found > width else (
+            "The line may be cut short. Complete it or delete the row.")
+        raise InputError(
+            f"{path}, row {numbers[index]}: {_cells(found)} but the header names {width} "
+            f"columns. {problem}"
+        )
 
 
 def _cells(count: int) -> str:

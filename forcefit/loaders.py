@@ -147,7 +147,7 @@ def _refuse_bad_values(table: RawTable, column: _Column, values: FloatArray, row
         index = int(np.argmax(bad))
         raise InputError(
             f'{table.source}, {table.row_word} {rows[index]}, column "{column.header}": found '
-            f"{values[index]!r}, expected a finite number below {ABSURD:g} in magnitude. "
+            f"{float(values[index])!r}, expected a finite number below {ABSURD:g} in magnitude. "
             f"Correct the value or delete the {table.row_word}."
         )
 
@@ -222,10 +222,11 @@ def _refuse_bad_times(table: RawTable, column: str, t: FloatArray, rows: np.ndar
     if (steps <= 0).any():
         index = int(np.argmax(steps <= 0)) + 1
         if steps[index - 1] == 0:
-            problem = f"time {t[index]!r} repeats {table.row_word} {rows[index - 1]}"
+            problem = f"time {float(t[index])!r} repeats {table.row_word} {rows[index - 1]}"
             fix = f"Delete the duplicate {table.row_word}"
         else:
-            problem = f"time {t[index]!r} is earlier than {t[index - 1]!r} in {table.row_word} {rows[index - 1]}"
+            problem = (f"time {float(t[index])!r} is earlier than {float(t[index - 1])!r} in "
+                       f"{table.row_word} {rows[index - 1]}")
             fix = "Sort the samples by time or correct the value"
         raise InputError(
             f'{table.source}, {table.row_word} {rows[index]}, column "{column}": {problem}; '
@@ -280,7 +281,7 @@ def _make_track(
             index = int(np.argmax(sigma <= 0))
             raise InputError(
                 f'{source}, {table.row_word} {rows[index]}, column "{chosen["sigma"].header}": '
-                f"found {sigma[index]!r}, expected a positive standard error. Correct it or "
+                f"found {float(sigma[index])!r}, expected a positive standard error. Correct it or "
                 "leave the sigma column out."
             )
         sigma_unit = chosen["sigma"].unit

@@ -83,14 +83,15 @@ def _leg(
     """States (4, n) at ``times``, all on one side of ``epoch``, integrating away from it."""
     if times.size == 0:
         return np.empty((4, 0))
-    scale = np.abs(np.array([*([np.hypot(*state[:2])] * 2), *([np.hypot(*state[2:])] * 2)]))
+    r0 = float(np.hypot(*state[:2]))
+    speed = max(float(np.hypot(*state[2:])), float(np.sqrt(abs(strength) * r0 ** (exponent + 1))))
+    scale = np.array([r0, r0, speed, speed])
     end = times[-1] if times[-1] != epoch else times[0]
     if end == epoch:
         return np.repeat(state[:, None], times.size, axis=1)
-    r0 = float(np.hypot(*state[:2]))
 
     def collision(_: float, y: FloatArray) -> float:
-        return float(np.hypot(y[0], y[1]) - 1e-9 * r0)
+        return float(np.hypot(y[0], y[1]) - 1e-4 * r0)
 
     collision.terminal = True  # type: ignore[attr-defined]
     solution = solve_ivp(

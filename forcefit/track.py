@@ -39,7 +39,7 @@ def _check_values(array: FloatArray, name: str, where: str) -> None:
     if bad.any():
         index = int(np.argmax(bad))
         raise InputError(
-            f"{where}: {name}[{index}] is {array[index]!r}, expected a finite number below "
+            f"{where}: {name}[{index}] is {float(array[index])!r}, expected a finite number below "
             f"{ABSURD:g} in magnitude. Remove the sample or correct it."
         )
 
@@ -120,7 +120,8 @@ class Track:
             index = int(np.argmax(steps <= 0)) + 1
             kind = "repeats" if steps[index - 1] == 0 else "goes back to"
             raise InputError(
-                f"{where}: time {kind} {t[index]!r} at sample {index} (after {t[index - 1]!r}); "
+                f"{where}: time {kind} {float(t[index])!r} at sample {index} "
+                f"(after {float(t[index - 1])!r}); "
                 "times must increase. Sort the samples or remove the duplicate."
             )
         return t
@@ -134,7 +135,7 @@ class Track:
         if (sigma <= 0).any():
             index = int(np.argmax(sigma <= 0))
             raise InputError(
-                f"{where}: sigma[{index}] is {sigma[index]!r}, expected a positive standard "
+                f"{where}: sigma[{index}] is {float(sigma[index])!r}, expected a positive standard "
                 "error. Leave sigma out if it is not known."
             )
         return sigma

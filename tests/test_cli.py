@@ -1,0 +1,80 @@
+"""The forcefit command: help with examples, inspect, simulate, demo, exit codes."""
+
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from forcefit.cli import main
+from forcefit.loaders import load_track
+
+from .conftest import DEMO, sha256
+
+
+@pytest.mark.parametrize("command", [[], ["simulate"], ["inspect"]])
+def test_help_shows_an_example(command, capsys):
+    with pytest.raises(SystemExit) as caught:
+        main([*command, "--help"])
+    assert caught.value.code == 0
+    assert "examples:" in capsys.readouterr().out
+
+
+def test_inspect_prints_units_and_columns(capsys):
+    path = DEMO / "class_pendulum" / "run_03.csv"
+    before = sha256(path)
+    assert main(["inspect", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "1051" in out and "35 s" in out and "px" in out and "t: t [s]" in out
+    assert sha256(path) == before
+
+
+def test_inspect_with_calibration_and_json(capsys):
+    path = DEMO / "stairwell_pendulum.csv"
+    assert main(["inspect", str(path), "--length-unit", "px", "--scale", "1.6 mm",
+                 "--origin", "958.3,541.7", "--flip-y", "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)[0]
+    assert report["length_unit"] == "mm" and report["dropped_rows"] == 54
+    assert report["sample_rate"] == pytest.approx(30.0, rel=1e-4)
+    assert report["x_range"][1] == pytest.approx(551.0, abs=3.0)
+
+
+def test_bad_file_exits_2_with_one_line_and_no_traceback(tmp_path):
+    bad = tmp_path / "puck_03.csv"
+    bad.write_text("t [s],x_px,y_px\n0,1,2\n0.1,n/a,3\n0.2,2,2\n0.3,3,1\n")
+    result = subprocess.run([sys.executable, "-m", "forcefit.cli", "inspect", str(bad)],
+                            capture_output=True, text=True, check=False)
+    assert result.returncode == 2
+    assert "Traceback" not in result.stderr
+    assert 'puck_03.csv, row 3, column "x_px": found "n/a", expected a number' in result.stderr
+
+
+def test_simulate_writes_a_track_that_reads_back(tmp_path, capsys):
+    out = tmp_path / "rosette.csv"
+    assert main(["simulate", "--exponent", "-1.5", "--duration", "20", "--rate", "30",
+                 "--noise", "0.005", "--seed", "4", "--out", str(out)]) == 0
+    track = load_track(out)
+    assert track.n_points == 601 and track.length_unit == "m"
+    assert np.median(track.sigma) == pytest.approx(0.005)
+    assert "exponent" in out.read_text().splitlines()[1]          # truth in a comment line
+
+
+def test_simulate_pendulum_and_shape_only_to_stdout(capsys):
+    assert main(["simulate", "--pendulum", "2.4", "--start", "0.2,0", "--velocity", "0,0.1",
+                 "--duration", "3", "--rate", "10", "--shape-only"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    assert lines[0] == "x [m],y [m]" and len(lines) == 32
+
+
+def test_simulate_without_a_law_exits_2(capsys):
+    assert main(["simulate"]) == 2
+    assert "--exponent" in capsys.readouterr().err
+
+
+def test_demo_inspects_every_bundled_run(capsys):
+    assert main(["demo"]) == 0
+    out = capsys.readouterr().out
+    for name in ("stairwell_pendulum", "airtable_puck", "comet_heliocentric", "run_01", "run_11"):
+        assert name in out
+    assert "run_12.csv: refused" in out and "row 904" in out

@@ -1,0 +1,87 @@
+"""The reference integrator against invariants and closed-form solutions."""
+
+import numpy as np
+import pytest
+
+from forcefit.errors import InputError
+from forcefit.laws import angular_momentum, circular_period, specific_energy
+from forcefit.propagate import Drag, propagate_reference
+
+
+@pytest.mark.parametrize("exponent", [-2.9, -2.0, -1.0, 0.0, 1.0, 3.0])
+def test_energy_and_angular_momentum_conserved_over_ten_orbits(exponent):
+    # Conservation of energy and angular momentum in a central field (common practice);
+    # tolerance 1e-9 relative over 10 orbits, as asked of the reference integrator. Energy is
+    # relative to the largest kinetic energy on the orbit (E itself can be near zero).
+    period = float(circular_period(1.0, exponent, 1.0))
+    t = np.linspace(0.0, 10.0 * period, 4001)
+    states = propagate_reference([1.0, 0.0], [0.0, 0.9], t, exponent=exponent, strength=1.0)
+    energy = specific_energy(states.position, states.velocity, exponent, 1.0)
+    h = angular_momentum(states.position, states.velocity)
+    kinetic = 0.5 * np.max(np.sum(states.velocity**2, axis=1))
+    assert np.max(np.abs(energy - energy[0])) <= 1e-9 * kinetic
+    assert np.max(np.abs(h / h[0] - 1.0)) <= 1e-9
+
+
+def _kepler_positions(t, a, e, mu):
+    """Focus-centred Kepler ellipse starting at pericentre, by Newton iteration on
+    Kepler's equation M = E - e sin E (Murray & Dermott 1999, Solar System Dynamics, §2.4)."""
+    mean_anomaly = np.sqrt(mu / a**3) * t
+    eccentric = mean_anomaly + e * np.sin(mean_anomaly)
+    for _ in range(50):
+        eccentric -= (eccentric - e * np.sin(eccentric) - mean_anomaly) / (1 - e * np.cos(eccentric))
+    b = a * np.sqrt(1 - e**2)
+    return np.column_stack((a * (np.cos(eccentric) - e), b * np.sin(eccentric)))
+
+
+@pytest.mark.parametrize("eccentricity", [0.1, 0.6, 0.95])
+def test_inverse_square_orbit_matches_keplers_equation(eccentricity):
+    a, mu = 1.3, 2.959122082855911e-4       # au, au^3/d^2 (Gauss's constant squared)
+    periapsis = a * (1 - eccentricity)
+    speed = np.sqrt(mu * (1 + eccentricity) / periapsis)       # vis-viva at pericentre
+    period = 2 * np.pi * np.sqrt(a**3 / mu)
+    t = np.linspace(0.0, 3.0 * period, 1500)
+    states = propagate_reference([periapsis, 0.0], [0.0, speed], t, exponent=-2.0, strength=mu)
+    error = np.max(np.linalg.norm(states.position - _kepler_positions(t, a, eccentricity, mu), axis=1))
+    assert error < 1e-8 * a
+
+
+def test_hooke_orbit_matches_the_harmonic_oscillator():
+    # x = A cos(wt + phi) in each axis with w^2 = k (any mechanics text; common practice).
+    k = 4.0
+    w = np.sqrt(k)
+    t = np.linspace(-3.0, 7.0, 777)
+    states = propagate_reference([0.3, 0.0], [0.0, 0.2], t, exponent=1.0, strength=k, epoch=0.0)
+    np.testing.assert_allclose(states.position[:, 0], 0.3 * np.cos(w * t), atol=1e-11)
+    np.testing.assert_allclose(states.position[:, 1], 0.1 * np.sin(w * t), atol=1e-11)
+
+
+def test_linear_drag_matches_the_damped_oscillator():
+    # x'' + c x' + w0^2 x = 0: x = A exp(-ct/2) cos(w1 t), w1^2 = w0^2 - c^2/4, here with
+    # x(0) = A, x'(0) = -cA/2 (underdamped oscillator; common practice).
+    k, c, amplitude = 4.0, 0.3, 0.5
+    w1 = np.sqrt(k - c**2 / 4)
+    t = np.linspace(0.0, 10.0, 501)
+    states = propagate_reference([amplitude, 0.0], [-c * amplitude / 2, 0.0], t,
+                                 exponent=1.0, strength=k, drag=Drag("linear", c))
+    expected = amplitude * np.exp(-c * t / 2) * np.cos(w1 * t)
+    np.testing.assert_allclose(states.position[:, 0], expected, atol=1e-11)
+
+
+def test_quadratic_drag_slows_a_straight_coast():
+    # v' = -c v^2 with no force worth speaking of: v = v0 / (1 + c v0 t), x = ln(1 + c v0 t)/c.
+    c, v0 = 0.5, 2.0
+    t = np.linspace(0.0, 3.0, 31)
+    states = propagate_reference([1.0, 0.0], [v0, 0.0], t, exponent=0.0, strength=1e-30,
+                                 drag=Drag("quadratic", c))
+    np.testing.assert_allclose(states.position[:, 0] - 1.0, np.log1p(c * v0 * t) / c, rtol=1e-10)
+
+
+def test_fall_into_the_centre_is_refused():
+    with pytest.raises(InputError, match="reaches the force centre"):
+        propagate_reference([1.0, 0.0], [0.0, 0.0], np.linspace(0, 5, 10), exponent=-2.0, strength=1.0)
+
+
+def test_bad_drag_is_refused():
+    with pytest.raises(InputError, match="linear"):
+        Drag("cubic", 1.0)  # type: ignore[arg-type]

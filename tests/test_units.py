@@ -1,0 +1,61 @@
+import pytest
+
+from forcefit.errors import InputError
+from forcefit.units import (
+    format_measurement,
+    length_factor,
+    parse_length_unit,
+    parse_time_unit,
+    strength_unit,
+    time_factor,
+)
+
+
+def test_astronomical_unit_in_metres():
+    # Source: IAU 2012 Resolution B2: 1 au = 149 597 870 700 m exactly.
+    assert length_factor("au", "m") == 149_597_870_700.0
+    assert length_factor("AU", "km") == pytest.approx(149_597_870.7, rel=1e-15)
+
+
+def test_inch_in_millimetres():
+    # Source: 1959 international yard and pound agreement: 1 inch = 25.4 mm exactly.
+    assert length_factor("inch", "mm") == pytest.approx(25.4, rel=1e-15)
+
+
+def test_day_and_julian_year():
+    # Source: IAU 1976 system: day = 86 400 s; Julian year = 365.25 d.
+    assert time_factor("d", "s") == 86_400.0
+    assert time_factor("yr", "d") == pytest.approx(365.25, rel=1e-15)
+
+
+def test_pixels_are_their_own_length():
+    assert parse_length_unit("pixels") == "px"
+    with pytest.raises(InputError, match="calibration"):
+        length_factor("px", "mm")
+
+
+@pytest.mark.parametrize("name", ["parsec-ish", "kg", "s"])
+def test_unknown_or_wrong_length_unit_names_the_fix(name):
+    with pytest.raises(InputError, match="expected a length"):
+        parse_length_unit(name)
+
+
+def test_time_unit_aliases():
+    assert [parse_time_unit(n) for n in ("seconds", "sec", "ms", "days", "min", "h", "year")] == [
+        "s", "s", "ms", "d", "min", "h", "yr"]
+    with pytest.raises(InputError, match="expected a time"):
+        parse_time_unit("m")
+
+
+@pytest.mark.parametrize(
+    ("exponent", "expected"),
+    [(1.0, "s^-2"), (-2.0, "m^3 s^-2"), (0.0, "m s^-2"), (2.0, "m^-1 s^-2"), (-1.5, "m^2.5 s^-2")],
+)
+def test_strength_unit_is_length_to_one_minus_n_over_time_squared(exponent, expected):
+    # Dimensional analysis of F = k r^n (common practice).
+    assert strength_unit("m", "s", exponent) == expected
+
+
+def test_format_measurement_rounds_to_the_error():
+    assert format_measurement(-2.000123, 0.00046, "") == "-2.00012 ± 0.00046"
+    assert format_measurement(2.9591e-4, 1.2e-9, "au^3 d^-2") == "(2.959100 ± 0.000012)e-04 au^3 d^-2"
