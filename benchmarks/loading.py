@@ -34,8 +34,8 @@ def main() -> None:
                                   "y [px]": 400 + 200 * np.sin(t)})
             path = Path(folder) / f"run_{rows}.csv"
             frame.to_csv(path, index=False, float_format="%.4f")
-            bare = best_of(3, lambda: pd.read_csv(path))
-            ours = best_of(3, lambda: load_track(path))
+            bare = best_of(3, lambda path=path: pd.read_csv(path))
+            ours = best_of(3, lambda path=path: load_track(path))
             print(f"{rows:>9,d}   {bare:12.3f} s   {ours:14.3f} s   {ours / bare:7.1f}x")
 
 

@@ -11,8 +11,6 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from . import __version__
 from .coordinates import Calibration
 from .demo import demo_datasets
@@ -93,7 +91,8 @@ def _loading_options() -> argparse.ArgumentParser:
                        help="use column NAME for ROLE (t, x, y, z, sigma, frame, id); repeatable")
     group.add_argument("--length-unit", help="unit of the raw positions (px, mm, m, au, ...)")
     group.add_argument("--time-unit", help="unit of the times (s, ms, d, ...)")
-    group.add_argument("--frame-rate", type=float, help="frames per second, to turn a frame column into times")
+    group.add_argument("--frame-rate", type=float,
+                       help="frames per second, to turn a frame column into times")
     group.add_argument("--track-id", help="with an id column: the one track to use")
     group.add_argument("--sheet", default=0, help="Excel sheet name or 0-based number")
     calibration = parent.add_argument_group("calibrating pixels")
@@ -253,7 +252,8 @@ def build_parser() -> argparse.ArgumentParser:
     law.add_argument("--velocity", type=_pair, metavar="VX,VY",
                      help="start velocity (default: 0.8 x circular speed, counter-clockwise)")
     law.add_argument("--centre", type=_pair, default=(0.0, 0.0), metavar="X,Y", help="force centre")
-    law.add_argument("--drag", type=_drag, metavar="KIND:C", help="linear:C (1/time) or quadratic:C (1/length)")
+    law.add_argument("--drag", type=_drag, metavar="KIND:C",
+                     help="linear:C (1/time) or quadratic:C (1/length)")
     pendulum = simulate.add_argument_group("a spherical pendulum instead (SI units)")
     pendulum.add_argument("--pendulum", type=float, metavar="L", help="pendulum length, m")
     pendulum.add_argument("--gravity", type=float, default=9.81, help="local g, m/s^2 (default 9.81)")
@@ -286,7 +286,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     handler: Callable[[argparse.Namespace], int] = args.handler
-    warnings.formatwarning = _one_line_warning  # type: ignore[assignment]
+    warnings.formatwarning = _one_line_warning
     try:
         return handler(args)
     except ForcefitError as exc:

@@ -12,7 +12,7 @@ import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeAlias
 
 import numpy as np
 import pandas as pd
@@ -26,7 +26,7 @@ from .inspection import second_difference_noise
 from .track import ABSURD, MIN_POINTS, Track
 from .units import PIXEL, length_factor, parse_length_unit, parse_time_unit
 
-Source = str | os.PathLike[str] | pd.DataFrame
+Source: TypeAlias = str | os.PathLike[str] | pd.DataFrame
 
 ROLE_ALIASES: Mapping[str, tuple[str, ...]] = {
     "t": ("t", "time", "times", "timestamp", "time_stamp", "epoch", "jd", "mjd"),
@@ -205,7 +205,9 @@ def _times(
                 'Name it (e.g. frame="Frame") or drop the frame rate and use the time column.'
             )
         if not (np.isfinite(options.frame_rate) and options.frame_rate > 0):
-            raise InputError(f"frame rate {options.frame_rate!r} must be a positive number of frames per second.")
+            raise InputError(
+                f"frame rate {options.frame_rate!r} must be a positive number of frames per second."
+            )
         return values["frame"] / options.frame_rate
     if "t" in values:
         return values["t"]

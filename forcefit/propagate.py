@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Literal, NamedTuple
 
@@ -65,7 +66,9 @@ def acceleration(position: FloatArray, exponent: float, strength: float) -> Floa
     return -strength * np.power(r, exponent - 1.0) * position
 
 
-def _rhs(exponent: float, strength: float, drag: Drag | None):  # type: ignore[no-untyped-def]
+def _rhs(
+    exponent: float, strength: float, drag: Drag | None
+) -> Callable[[float, FloatArray], FloatArray]:
     def derivative(_: float, state: FloatArray) -> FloatArray:
         position, velocity = state[:2], state[2:]
         accel = acceleration(position, exponent, strength)
