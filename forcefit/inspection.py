@@ -8,6 +8,7 @@ from typing import Any
 
 import numpy as np
 
+from ._json import json_safe
 from ._types import FloatArray
 from .track import Track
 
@@ -47,7 +48,7 @@ class TrackSummary:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe form (nan becomes None)."""
-        return _json_safe(asdict(self))
+        return json_safe(asdict(self))
 
     def to_text(self) -> str:
         """A short, unit-labelled table for the terminal."""
@@ -86,16 +87,6 @@ class TrackSummary:
         lines += [f"  {label:<{width}}  {value}" for label, value in rows]
         lines += [f"  warning: {text}" for text in self.warnings]
         return "\n".join(lines)
-
-
-def _json_safe(value: Any) -> Any:
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, dict):
-        return {key: _json_safe(item) for key, item in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_json_safe(item) for item in value]
-    return value
 
 
 def second_difference_noise(x: FloatArray, y: FloatArray) -> float:

@@ -157,6 +157,19 @@ def strength_unit(length_unit: str, time_unit: str, exponent: float) -> str:
     return " ".join(part for part in parts if part)
 
 
+def strength_per_h2_unit(length_unit: str, exponent: float) -> str:
+    """Unit of k / h**2, the part of the law the path's shape fixes: length**(-3 - n).
+
+    Examples
+    --------
+    >>> strength_per_h2_unit("m", 1.0), strength_per_h2_unit("au", -2.0)
+    ('m^-4', 'au^-1')
+    """
+    if not math.isfinite(exponent):
+        return f"{length_unit}^(-3-n)"
+    return _power(length_unit, -3.0 - exponent) or "1"
+
+
 def format_measurement(value: float, stderr: float | None = None, unit: str = "") -> str:
     """A value with its standard error and unit, rounded to the error's two digits.
 

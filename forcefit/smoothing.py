@@ -1,0 +1,83 @@
+"""Smoothing and differentiation of a track's samples: the front door to the smoothers."""
+
+from __future__ import annotations
+
+import math
+from typing import Literal
+
+import numpy as np
+from scipy.signal import savgol_coeffs, savgol_filter
+
+from ._types import FloatArray
+from .errors import GeometryError
+from .pspline import SmoothedCurve, smooth_curve
+from .track import Track
+
+Smoothing = Literal["auto", "spline", "savgol"]
+"""Ways to smooth a track: penalised splines ("auto", "spline") or Savitzky-Golay."""
+
+
+def path_parameter(track: Track) -> FloatArray:
+    """Time for a timestamped track, else cumulative chord length (L) along the samples."""
+    if track.t is not None:
+        return np.asarray(track.t, dtype=float)
+    steps = np.hypot(np.diff(track.x), np.diff(track.y))
+    floor = 1e-6 * float(np.median(steps[steps > 0])) if np.any(steps > 0) else 1.0
+    return np.concatenate(([0.0], np.cumsum(np.maximum(steps, floor))))
+
+
+def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
+    steps = np.diff(parameter)
+    if track.t is not None and np.ptp(steps) > 0.01 * np.median(steps):
+        raise GeometryError(
+            f"track {track.name!r}: Savitzky-Golay smoothing needs evenly spaced samples, but "
+            "the spacing varies (dropped frames?). Use the default spline smoothing."
+        )
+    window = min(window | 1, (track.n_points - 1) | 1 if track.n_points % 2 == 0 else track.n_points)
+    order, delta = 4, float(np.mean(steps))
+    if window <= order + 1:
+        raise GeometryError(f"track {track.name!r}: too few points for Savitzky-Golay smoothing.")
+    data = np.column_stack((track.x, track.y))
+    derivative = [savgol_filter(data, window, order, deriv=d, delta=delta, axis=0) for d in range(3)]
+    coefficients = [savgol_coeffs(window, order, deriv=d, delta=delta, use="dot") for d in range(3)]
+    if track.sigma is None:
+        noise = np.full(track.n_points, math.sqrt(
+            float(np.sum((data - derivative[0]) ** 2)) / max(2 * (track.n_points - window), 1)))
+    else:
+        noise = np.asarray(track.sigma)
+    scale = (noise**2)[:, None] * np.ones((1, 2))
+    return SmoothedCurve(
+        value=derivative[0], first=derivative[1], second=derivative[2],
+        value_var=scale * float(coefficients[0] @ coefficients[0]),
+        first_var=scale * float(coefficients[1] @ coefficients[1]),
+        second_var=scale * float(coefficients[2] @ coefficients[2]),
+        first_second_cov=scale * float(coefficients[1] @ coefficients[2]),
+        noise=noise, level=float(window), knot_spacing=delta,
+        dof=track.n_points / window * (order + 1), span=window * delta,
+        method=f"Savitzky-Golay, {window} samples, order {order}",
+    )
+
+
+def smooth_track(
+    track: Track, *, smoothing: Smoothing = "auto", level: float | None = None, window: int = 31
+) -> SmoothedCurve:
+    """Smooth and differentiate a track's positions.
+
+    Parameters
+    ----------
+    track : Track
+        The samples; their sigma, when given, weights the fit.
+    smoothing : {"auto", "spline", "savgol"}
+        Penalised splines with a GCV-chosen level ("auto", "spline"), or a
+        Savitzky-Golay filter of ``window`` samples (evenly spaced samples only).
+    level : float, optional
+        A fixed spline smoothing level instead of GCV.
+    window : int
+        Savitzky-Golay window length in samples.
+    """
+    parameter = path_parameter(track)
+    if smoothing == "savgol":
+        return _savgol(parameter, track, window)
+    if smoothing not in ("auto", "spline"):
+        raise GeometryError(f'smoothing {smoothing!r} is unknown; use "spline" or "savgol".')
+    return smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level)
