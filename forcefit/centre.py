@@ -30,8 +30,11 @@ from .pspline import SmoothedCurve
 from .smoothing import smooth_track
 from .track import Track
 
-MIN_SIGNAL = 2.0
-"""Median signal-to-noise of the acceleration (or curvature) below which no force is seen."""
+MIN_SIGNAL = 3.0
+"""Signal-to-noise at which a sample's acceleration counts as significant."""
+
+MIN_SIGNIFICANT_FRACTION = 0.1
+"""Fewer samples than this fraction with a significant acceleration: no force is seen."""
 
 AMBIGUITY_FACTOR = 1.5
 """Centres whose reduced chi-square is within this factor of the best are all reported."""
@@ -87,7 +90,7 @@ def _from_accelerations(track: Track, curve: SmoothedCurve) -> CentreEstimate:
     accel = curve.second
     magnitude = np.hypot(accel[:, 0], accel[:, 1])
     accel_sd = np.sqrt(curve.second_var[:, 0] + curve.second_var[:, 1])
-    if np.median(magnitude / np.maximum(accel_sd, 1e-300)) < MIN_SIGNAL:
+    if np.mean(magnitude > MIN_SIGNAL * accel_sd) < MIN_SIGNIFICANT_FRACTION:
         raise NotIdentifiable(
             f"track {track.name!r}: the acceleration is not significantly different from zero "
             "along the path; it looks straight, so no force (or too weak a force) acts on it."

@@ -12,9 +12,12 @@ from pathlib import Path
 from typing import Any
 
 from . import __version__
+from ._json import json_safe
 from .coordinates import Calibration
 from .demo import demo_datasets
 from .errors import ForcefitError, ForcefitWarning, InputError
+from .estimators import fit_acceleration, fit_curvature, fit_shape, force_profile
+from .geometry import describe_path
 from .inspection import inspect_track
 from .loaders import load_tracks, save_track
 from .propagate import Drag
@@ -26,6 +29,7 @@ EXIT_OK, EXIT_FAILED_CHECKS, EXIT_BAD_INPUT = 0, 1, 2
 _MAIN_EXAMPLES = """\
 examples:
   forcefit inspect runs/puck_03.csv --length-unit mm
+  forcefit fit runs/puck_03.csv --length-unit mm --method curvature
   forcefit simulate --exponent -1.5 --duration 20 --rate 30 --noise 0.005 --out rosette.csv
   forcefit demo
 """
@@ -36,6 +40,14 @@ examples:
   forcefit inspect bob.csv --length-unit px --scale "1.6 mm" --origin 958.3,541.7 --flip-y
   forcefit inspect tracker.tsv --column t=Zeit --column x=X-Pos --column y=Y-Pos --json
   forcefit inspect frames.csv --frame-rate 240
+"""
+
+_FIT_EXAMPLES = """\
+examples:
+  forcefit fit run_04.csv                         # shape (Binet) fit, centre found from the data
+  forcefit fit run_04.csv --method curvature --profile 8
+  forcefit fit comet.csv --centre 0,0 --json      # the Sun at the origin
+  forcefit fit bob.csv --length-unit px --scale "1.6 mm" --origin 958.3,541.7 --flip-y
 """
 
 _SIMULATE_EXAMPLES = """\
@@ -165,6 +177,32 @@ def _cmd_inspect(args: argparse.Namespace) -> int:
     return status
 
 
+ESTIMATORS = {"shape": fit_shape, "curvature": fit_curvature, "acceleration": fit_acceleration}
+
+
+def _cmd_fit(args: argparse.Namespace) -> int:
+    status, reports = EXIT_OK, []
+    for track in read_tracks(args.file, args):
+        path = describe_path(track, centre=args.centre, smoothing=args.smoothing)
+        fit = ESTIMATORS[args.method](track, centre=args.centre, path=path)
+        profile = force_profile(track, bins=args.profile, path=path) if args.profile else None
+        if not fit.passed:
+            status = EXIT_FAILED_CHECKS
+        if args.json:
+            report = fit.to_dict()
+            if profile is not None:
+                report["profile"] = json_safe(profile.table.to_dict("list"))
+            reports.append(report)
+            continue
+        print(fit.summary())
+        if profile is not None:
+            print(f"\nforce profile ({'F/h^2, no timestamps' if profile.force_is_per_h2 else 'F'}):")
+            print(profile.to_text())
+    if args.json:
+        print(json.dumps(reports, indent=2))
+    return status
+
+
 def _cmd_simulate(args: argparse.Namespace) -> int:
     common = {"noise": args.noise, "dropped": args.dropped, "outliers": args.outliers,
               "rng": args.seed, "name": Path(args.out).stem if args.out != "-" else "simulated"}
@@ -240,6 +278,22 @@ def build_parser() -> argparse.ArgumentParser:
     inspect.add_argument("files", nargs="+", metavar="FILE")
     inspect.add_argument("--json", action="store_true", help="print JSON instead of a table")
     inspect.set_defaults(handler=_cmd_inspect)
+
+    fit = commands.add_parser(
+        "fit", parents=[loading], formatter_class=formatter, epilog=_FIT_EXAMPLES,
+        help="fit F = -k r^n to a track: exponent, strength, centre, errors, checks",
+        description="Fit the central force law F = -k r^n r_hat to the tracks in FILE.")
+    fit.add_argument("file", metavar="FILE")
+    fit.add_argument("--method", choices=sorted(ESTIMATORS), default="shape",
+                     help="estimator (default shape: Binet's equation fitted to the path)")
+    fit.add_argument("--centre", type=_pair, metavar="X,Y",
+                     help="the force centre, if known (default: found from the data)")
+    fit.add_argument("--smoothing", choices=("spline", "savgol"), default="spline",
+                     help="how to smooth before differentiating (default spline, GCV level)")
+    fit.add_argument("--profile", type=int, nargs="?", const=8, default=0, metavar="BINS",
+                     help="also print F(r) in BINS radius bins with the local exponent")
+    fit.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    fit.set_defaults(handler=_cmd_fit)
 
     simulate = commands.add_parser(
         "simulate", formatter_class=formatter, epilog=_SIMULATE_EXAMPLES,

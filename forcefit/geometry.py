@@ -9,14 +9,14 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from ._types import FloatArray
-from .errors import ForcefitWarning, GeometryError
-from .centre import find_centre
+from .centre import CentreEstimate, find_centre
 from .curves import curvature_of, polar_about
+from .errors import ForcefitWarning, GeometryError
 from .pspline import SmoothedCurve
 from .smoothing import Smoothing, path_parameter, smooth_track
 from .track import Track
@@ -62,6 +62,9 @@ class PathGeometry:
         The smoothed curve, with the level and degrees of freedom used.
     warnings : tuple of str
         What deserves a second look.
+    centre_estimate : CentreEstimate or None
+        How the centre was found (None when it was given), with any other centres
+        the data support equally well.
     """
 
     track: Track
@@ -84,6 +87,7 @@ class PathGeometry:
     angular_momentum_stderr: FloatArray
     smoothing: SmoothedCurve
     warnings: tuple[str, ...] = ()
+    centre_estimate: CentreEstimate | None = None
 
     @property
     def revolutions(self) -> float:
@@ -130,11 +134,10 @@ def describe_path(
     True
     """
     curve = curve if curve is not None else smooth_track(track, smoothing=smoothing, level=level)
-    centre_stderr = (0.0, 0.0)
-    if centre is None:
-        estimate = find_centre(track, curve=curve)
-        centre, centre_stderr = estimate.centre, estimate.stderr
-    return _about(track, curve, (float(centre[0]), float(centre[1])), centre_stderr)
+    if centre is not None:
+        return _about(track, curve, (float(centre[0]), float(centre[1])), (0.0, 0.0))
+    estimate = find_centre(track, curve=curve)
+    return replace(_about(track, curve, estimate.centre, estimate.stderr), centre_estimate=estimate)
 
 
 def _about(

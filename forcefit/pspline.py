@@ -28,6 +28,7 @@ matrix and its application to short circuit study, Proc. PICA Conference, 63-69.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -37,6 +38,9 @@ from scipy.interpolate import BSpline
 
 from ._types import FloatArray
 from .errors import GeometryError
+
+PenaltyWeight = Callable[[FloatArray], FloatArray]
+"""Relative weight of the roughness penalty as a function of the curve parameter."""
 
 DEGREE = 5
 """Degree of the B-splines (quintic: smooth second derivatives for the curvature)."""
@@ -166,14 +170,21 @@ def _right_side(basis: _Basis, w: FloatArray, data: FloatArray) -> FloatArray:
     return out
 
 
-def _penalty_band(n_basis: int) -> FloatArray:
-    """D^T D of the third-order difference matrix D, in upper banded storage."""
+def _penalty_band(basis: _Basis, start: float, weight: PenaltyWeight | None) -> FloatArray:
+    """D^T diag(w) D of the third-order difference matrix D, in upper banded storage.
+
+    Row j of D differences coefficients j..j+3, whose B-splines centre near
+    ``start + (j - 0.5) * spacing``; ``weight`` is evaluated there.
+    """
+    n_basis = basis.n_basis
     difference = sparse.eye_array(n_basis, format="csr")
     for _ in range(PENALTY_ORDER):
         difference = difference[1:] - difference[:-1]
-    penalty = (difference.T @ difference).todia()
+    if weight is not None:
+        where = start + (np.arange(difference.shape[0]) - 0.5) * basis.spacing
+        difference = sparse.diags_array(np.sqrt(weight(where))) @ difference
+    full = (difference.T @ difference).tocsr()
     band = np.zeros((DEGREE + 1, n_basis))
-    full = penalty.tocsr()
     for offset in range(PENALTY_ORDER + 1):
         band[DEGREE - offset, offset:] = full.diagonal(offset)
     return band
@@ -241,11 +252,13 @@ def _pointwise(
     return out
 
 
-def _gcv_level(basis: _Basis, w: FloatArray, data: FloatArray) -> tuple[float, float]:
+def _gcv_level(
+    basis: _Basis, start: float, w: FloatArray, data: FloatArray, weight: PenaltyWeight | None
+) -> tuple[float, float]:
     """Lambda minimising GCV, and the degrees of freedom it leaves, by Demmler-Reinsch
     diagonalisation of a small problem."""
     normal = _band_to_dense(_normal_band(basis, w))
-    penalty = _band_to_dense(_penalty_band(basis.n_basis))
+    penalty = _band_to_dense(_penalty_band(basis, start, weight))
     jitter = 1e-10 * float(np.mean(np.diag(normal)))
     lower = linalg.cholesky(normal + jitter * np.eye(basis.n_basis), lower=True)
     inverse_lower = linalg.solve_triangular(lower, np.eye(basis.n_basis), lower=True)
@@ -279,7 +292,8 @@ def _gcv_level(basis: _Basis, w: FloatArray, data: FloatArray) -> tuple[float, f
 
 
 def _choose_level(
-    parameter: FloatArray, weight: FloatArray, data: FloatArray, spacing: float
+    parameter: FloatArray, weight: FloatArray, data: FloatArray, spacing: float,
+    penalty_weight: PenaltyWeight | None,
 ) -> tuple[float, str]:
     """Lambda for knots ``spacing`` apart, from GCV on a window of at most GCV_WINDOW samples.
 
@@ -303,7 +317,7 @@ def _choose_level(
         intervals = max(int(round((local[-1] - local[0]) / local_spacing)), 1)
         local_spacing = (local[-1] - local[0]) / intervals
         basis = _basis(local, float(local[0]), local_spacing, intervals)
-        level, dof = _gcv_level(basis, weight[picked], data[picked])
+        level, dof = _gcv_level(basis, float(local[0]), weight[picked], data[picked], penalty_weight)
         if dof >= MIN_WINDOW_DOF or length == n_points:
             break
         thinning *= 4
@@ -320,6 +334,7 @@ def smooth_curve(
     *,
     sigma: FloatArray | None = None,
     level: float | None = None,
+    penalty_weight: PenaltyWeight | None = None,
 ) -> SmoothedCurve:
     """Smooth a noisy plane curve and differentiate it, with pointwise standard errors.
 
@@ -334,6 +349,9 @@ def smooth_curve(
         when not given.
     level : float, optional
         Smoothing parameter lambda to use instead of choosing it by GCV.
+    penalty_weight : callable, optional
+        Relative weight of the roughness penalty along the parameter (default 1):
+        smooth harder where it is larger.
 
     Returns
     -------
@@ -363,9 +381,9 @@ def smooth_curve(
     basis = _basis(parameter, start, spacing, n_intervals)
     method = "given level"
     if level is None:
-        level, method = _choose_level(parameter, weight, data, spacing)
+        level, method = _choose_level(parameter, weight, data, spacing, penalty_weight)
     normal = _normal_band(basis, weight)
-    system = normal + level * _penalty_band(basis.n_basis)
+    system = normal + level * _penalty_band(basis, start, penalty_weight)
     try:
         upper = linalg.cholesky_banded(system, lower=False)
     except linalg.LinAlgError:

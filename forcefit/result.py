@@ -90,6 +90,13 @@ class LawFit:
     track_name: str = "track"
 
     def __post_init__(self) -> None:
+        for name in ("exponent", "exponent_stderr", "strength", "strength_stderr", "strength_per_h2",
+                     "strength_per_h2_stderr", "chi2", "reduced_chi2"):
+            object.__setattr__(self, name, float(getattr(self, name)))
+        for name in ("centre", "centre_stderr"):
+            pair = getattr(self, name)
+            object.__setattr__(self, name, (float(pair[0]), float(pair[1])))
+        object.__setattr__(self, "n_points", int(self.n_points))
         object.__setattr__(self, "diagnostics", MappingProxyType(dict(self.diagnostics)))
         object.__setattr__(self, "details", MappingProxyType(dict(self.details)))
 

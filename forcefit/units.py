@@ -132,7 +132,7 @@ def _power(symbol: str, exponent: float) -> str:
     if abs(exponent - 1.0) < 1e-12:
         return symbol
     rounded = round(exponent)
-    text = str(rounded) if abs(exponent - rounded) < 1e-9 else f"{exponent:.4g}"
+    text = str(rounded) if abs(exponent - rounded) < 1e-9 else f"{exponent:.3g}"
     return f"{symbol}^{text}"
 
 
@@ -188,7 +188,7 @@ def format_measurement(value: float, stderr: float | None = None, unit: str = ""
     if stderr is None or not math.isfinite(stderr) or stderr <= 0:
         return f"{value:.6g}{suffix}"
     decimals = max(0, 1 - math.floor(math.log10(stderr)))
-    if decimals <= 6 and abs(value) < 1e6:
+    if decimals <= 12 and 1e-3 <= abs(value) < 1e6 or decimals <= 6 and abs(value) < 1e6:
         return f"{value:.{decimals}f} ± {stderr:.{decimals}f}{suffix}"
     power = math.floor(math.log10(max(abs(value), stderr)))
     digits = max(0, power + 1 - math.floor(math.log10(stderr)))

@@ -1,0 +1,144 @@
+"""The curvature estimator: the force-curvature relation as a straight line in log-log.
+
+For a central force, F = h**2 kappa / (r**2 cos(gamma)**3). With F = k r**n,
+log(kappa / (r**2 cos(gamma)**3)) = log(k / h**2) + n log r: a weighted regression
+of the one on the other gives n and k / h**2 from the path's shape alone, and k
+when timestamps give h.
+
+References
+----------
+I. Newton (1687), Principia, Book I, Prop. VI, Cor. 3-5, and Prop. VII, Cor. 3.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+
+from .._regression import fit_line
+from .._types import FloatArray
+from ..curves import attractive_points, curvature_relation, turning_sense
+from ..geometry import PathGeometry, describe_path
+from ..result import Diagnostic, LawFit
+from ..smoothing import Smoothing
+from ..track import Track
+from ._common import (
+    angular_momentum,
+    bend_diagnostic,
+    centre_covariance,
+    constancy_diagnostic,
+    leverage_diagnostic,
+    require_orbit,
+)
+
+
+def _line_about(path: PathGeometry, centre: tuple[float, float], used: np.ndarray):  # type: ignore[no-untyped-def]
+    points = curvature_relation(path.smoothing, path.curvature, path.curvature_stderr,
+                                np.asarray(centre), used)
+    return points, fit_line(points.log_radius, points.log_force_per_h2, points.sigma)
+
+
+def fit_curvature(
+    track: Track,
+    *,
+    centre: tuple[float, float] | None = None,
+    smoothing: Smoothing = "auto",
+    path: PathGeometry | None = None,
+) -> LawFit:
+    """Fit F = -k r**n through the force-curvature relation (time-free).
+
+    Parameters
+    ----------
+    track : Track
+        Positions (L), with times (T) when known.
+    centre : (float, float), optional
+        The force centre (L); found from the data when not given.
+    smoothing : {"auto", "spline", "savgol"}
+        How to smooth before differentiating.
+    path : PathGeometry, optional
+        The track's geometry, if already described.
+
+    Returns
+    -------
+    LawFit
+        n and k / h**2 from the shape; k too when the track is timestamped.
+
+    Raises
+    ------
+    NotIdentifiable
+        For a circle about the centre or a straight path.
+
+    Examples
+    --------
+    >>> t = np.linspace(0.0, 10.0, 2001)                         # s
+    >>> track = Track(t=t, x=0.3 * np.cos(2 * t), y=0.1 * np.sin(2 * t))   # m
+    >>> fit = fit_curvature(track, centre=(0.0, 0.0))
+    >>> round(fit.exponent, 4), round(fit.strength, 4)
+    (1.0, 4.0)
+    """
+    path = path if path is not None else describe_path(track, centre=centre, smoothing=smoothing)
+    fit = _fit_about(track, path)
+    estimate = path.centre_estimate
+    if estimate is None or not estimate.alternatives:
+        return fit
+    others = tuple(
+        _fit_about(track, describe_path(track, centre=other.centre, curve=path.smoothing))
+        for other in estimate.alternatives
+    )
+    return replace(fit, alternatives=others, diagnostics={**fit.diagnostics, "centre": _ambiguity(fit, others)})
+
+
+def _ambiguity(fit: LawFit, others: tuple[LawFit, ...]) -> Diagnostic:
+    listed = "; ".join(f"n = {other.exponent:.3f} about ({other.centre[0]:.4g}, {other.centre[1]:.4g})"
+                       for other in others)
+    return Diagnostic(False, f"the path's shape fits as well about other centres ({listed}). A closed "
+                             "ellipse is an orbit of n = 1 about its centre and of n = -2 about a focus; "
+                             "give the centre or timestamps to decide.")
+
+
+def _fit_about(track: Track, path: PathGeometry) -> LawFit:
+    """The curvature fit about the path's centre."""
+    require_orbit(path)
+    used = attractive_points(path.curvature, path.curvature_stderr, turning_sense(path.smoothing))
+    points, line = _line_about(path, path.centre, used)
+
+    def parameters(about: tuple[float, float]) -> FloatArray:
+        fitted = _line_about(path, about, used)[1]
+        return np.array([fitted.slope, fitted.intercept])
+
+    covariance = line.covariance + centre_covariance(parameters, path)
+    exponent, log_ratio = line.slope, line.intercept
+    exponent_se = math.sqrt(covariance[0, 0])
+    ratio = math.exp(log_ratio)
+    ratio_se = ratio * math.sqrt(covariance[1, 1])
+    h, h_se, drift = angular_momentum(path)
+    strength = ratio * h**2
+    strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
+    diagnostics = {
+        "power law": bend_diagnostic(points.log_radius, points.log_force_per_h2, points.sigma),
+        "radial range": leverage_diagnostic(path.radius[used]),
+        "angular momentum": constancy_diagnostic(drift),
+        "points used": Diagnostic(None, f"{int(used.sum())} of {track.n_points} bend "
+                                        "significantly towards the centre."),
+        "smoothing": Diagnostic(None, f"{path.smoothing.method}: each point averages about "
+                                      f"{path.smoothing.span:.3g} {_parameter_unit(track)} of the path."),
+    }
+    return LawFit(
+        exponent=exponent, exponent_stderr=exponent_se, strength=strength,
+        strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
+        centre=path.centre, centre_stderr=path.centre_stderr, method="curvature",
+        n_points=int(used.sum()), chi2=line.chi2, reduced_chi2=line.reduced_chi2,
+        parameter_names=("exponent", "log_strength_per_h2"), covariance=covariance,
+        residuals=line.residuals, length_unit=track.length_unit,
+        time_unit=track.time_unit if track.has_times else None, diagnostics=diagnostics,
+        details={"angular_momentum": h, "angular_momentum_stderr": h_se,
+                 "correlation_time": line.correlation_time,
+                 "smoothing_level": path.smoothing.level, "smoothing_dof": path.smoothing.dof},
+        track_name=track.name,
+    )
+
+
+def _parameter_unit(track: Track) -> str:
+    return track.time_unit if track.has_times else track.length_unit

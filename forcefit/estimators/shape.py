@@ -1,0 +1,254 @@
+"""The shape estimator: a time-free fit of Binet's equation to the path.
+
+About the force centre the polar angle theta is monotonic along a central orbit, and
+u = 1/r obeys Binet's equation d2u/dtheta2 + u = (k/h**2) u**(-n-2) for F = k r**n.
+Integrating it from a reference angle in the middle of the path and fitting n, k/h**2,
+the initial u and du/dtheta (and the centre, unless given) to the observed points
+gives the exponent from the shape alone, with every point used as measured (no
+derivatives of noisy data).
+
+References
+----------
+J. P. M. Binet (1841), Comptes Rendus 13; H. Goldstein, C. Poole and J. Safko (2002),
+Classical Mechanics, 3rd ed., section 3.7, equation (3.34).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+from scipy.integrate import solve_ivp
+from scipy.optimize import OptimizeResult, least_squares
+
+from .._types import FloatArray
+from ..errors import FitError, GeometryError
+from ..geometry import PathGeometry, describe_path
+from ..result import Diagnostic, LawFit
+from ..smoothing import Smoothing
+from ..track import Track
+from ._common import angular_momentum, constancy_diagnostic, require_orbit, runs_diagnostic
+from .curvature import fit_curvature
+
+AMBIGUITY_FACTOR = 1.5
+"""Solutions whose reduced chi-square is within this factor of the best are all reported."""
+
+
+def _binet_radius(
+    theta: FloatArray, reference: float, exponent: float, ratio: float, u0: float, w0: float
+) -> tuple[FloatArray, FloatArray]:
+    """Model r(theta) and cos(gamma) at ``theta`` from u(reference) = u0, u'(reference) = w0."""
+    def derivative(_: float, state: FloatArray) -> FloatArray:
+        u, w = state
+        return np.array([w, ratio * max(u, 1e-300) ** (-exponent - 2.0) - u])
+
+    def escape(_: float, state: FloatArray) -> float:
+        return float(state[0] - 1e-9 * u0)
+
+    escape.terminal = True  # type: ignore[attr-defined]
+    u = np.full(theta.size, np.nan)
+    w = np.full(theta.size, np.nan)
+    for side in (theta >= reference, theta < reference):
+        points = theta[side]
+        if points.size == 0:
+            continue
+        order = np.argsort(np.abs(points - reference))
+        targets = points[order]
+        solution = solve_ivp(derivative, (reference, float(targets[-1])), [u0, w0], method="DOP853",
+                             t_eval=targets, rtol=1e-10, atol=1e-12 * abs(u0), events=escape)
+        reached = solution.y.shape[1]
+        index = np.flatnonzero(side)[order][:reached]
+        u[index], w[index] = solution.y[0], solution.y[1]
+    return 1.0 / u, u / np.hypot(u, w)
+
+
+def _polar(
+    x: FloatArray, y: FloatArray, centre: tuple[float, float], reference: float
+) -> tuple[FloatArray, FloatArray]:
+    """r and the unwrapped polar angle about ``centre``, on the branch where the middle
+    sample lies within pi of ``reference`` (so that small moves of the centre never jump)."""
+    radius = np.hypot(x - centre[0], y - centre[1])
+    theta = np.unwrap(np.arctan2(y - centre[1], x - centre[0]))
+    theta -= 2.0 * math.pi * round((theta[theta.size // 2] - reference) / (2.0 * math.pi))
+    return radius, theta
+
+
+def _residuals(
+    params: FloatArray, x: FloatArray, y: FloatArray, sigma: FloatArray, reference: float,
+    fixed_centre: tuple[float, float] | None, penalty: float,
+) -> FloatArray:
+    """Normal distances from the points to the Binet curve, in units of their sigma."""
+    exponent, log_ratio, log_r0, slope0 = params[:4]
+    centre = fixed_centre if fixed_centre is not None else (float(params[4]), float(params[5]))
+    radius, theta = _polar(x, y, centre, reference)
+    r0 = math.exp(log_r0)
+    model, cos_gamma = _binet_radius(theta, reference, exponent, math.exp(log_ratio),
+                                     1.0 / r0, -slope0 / r0)
+    residual = (radius - model) * cos_gamma / sigma
+    return np.where(np.isfinite(residual), residual, penalty)
+
+
+def _require_monotonic(path: PathGeometry) -> None:
+    """theta must keep turning one way about the centre on a central orbit."""
+    step = np.diff(path.polar_angle)
+    sense = np.sign(path.polar_angle[-1] - path.polar_angle[0])
+    back = sense * step < -3.0 * (path.gamma_stderr[1:] + 1e-12)
+    if back.mean() > 0.01:
+        index = int(np.argmax(back)) + 1
+        raise GeometryError(
+            f"track {path.track.name!r}: the path winds back about the centre "
+            f"({path.centre[0]:.6g}, {path.centre[1]:.6g}) near sample {index}: the polar angle "
+            "must turn one way along a central-force orbit. Check the centre, or the data."
+        )
+
+
+def _start(path: PathGeometry, first: LawFit, reference_index: int) -> FloatArray:
+    radius = path.radius
+    slope = np.gradient(np.log(radius), path.polar_angle)[reference_index]
+    return np.array([first.exponent, math.log(first.strength_per_h2),
+                     math.log(radius[reference_index]), slope])
+
+
+def _solve(
+    track: Track, path: PathGeometry, first: LawFit, free_centre: bool
+) -> tuple[OptimizeResult, float, FloatArray]:
+    """Least-squares Binet fit started from the curvature fit about ``path.centre``."""
+    polar = path.polar_angle
+    reference_index = int(np.argmin(np.abs(polar - 0.5 * (polar.min() + polar.max()))))
+    reference = float(polar[reference_index])
+    sigma = track.sigma if track.sigma is not None else path.smoothing.noise
+    start = _start(path, first, reference_index)
+    if free_centre:
+        start = np.concatenate((start, path.centre))
+    fixed = None if free_centre else path.centre
+    penalty = 1e3 * float(np.ptp(path.radius) / np.median(sigma))
+    result = least_squares(
+        _residuals, start, args=(track.x, track.y, sigma, reference, fixed, penalty),
+        method="trf", x_scale="jac", max_nfev=400,
+    )
+    return result, reference, sigma
+
+
+def fit_shape(
+    track: Track,
+    *,
+    centre: tuple[float, float] | None = None,
+    smoothing: Smoothing = "auto",
+    path: PathGeometry | None = None,
+) -> LawFit:
+    """Fit Binet's equation to the path: n and k/h**2 from the shape, time-free.
+
+    Parameters
+    ----------
+    track : Track
+        Positions (L); timestamps, when present, give h and so k, and fix the centre.
+    centre : (float, float), optional
+        The force centre (L), held fixed; fitted when not given.
+    smoothing : {"auto", "spline", "savgol"}
+        Smoothing for the starting values (the fit itself uses the raw points).
+    path : PathGeometry, optional
+        The track's geometry, if already described.
+
+    Returns
+    -------
+    LawFit
+        For a shape-only track with a free centre, ``alternatives`` lists the other
+        solutions that fit as well (a closed ellipse: n = 1 about its centre and
+        n = -2 about a focus).
+
+    Raises
+    ------
+    NotIdentifiable
+        For a circle about the centre or a straight path.
+    GeometryError
+        When the path winds back about the centre.
+
+    Examples
+    --------
+    >>> theta = np.linspace(0.0, 4 * np.pi, 600)            # Kepler ellipse, focus at 0
+    >>> r = 1.0 / (1.0 + 0.5 * np.cos(theta))                # semi-latus rectum 1 m
+    >>> track = Track(x=r * np.cos(theta), y=r * np.sin(theta), sigma=1e-6)
+    >>> fit = fit_shape(track, centre=(0.0, 0.0))
+    >>> round(fit.exponent, 6), round(fit.strength_per_h2, 6)   # k/h**2 = 1/p
+    (-2.0, 1.0)
+    """
+    path = path if path is not None else describe_path(track, centre=centre, smoothing=smoothing)
+    free = centre is None and not track.has_times
+    fit = _fit_about(track, path, free_centre=free)
+    estimate = path.centre_estimate
+    if not free or estimate is None or not estimate.alternatives:
+        return fit
+    others = []
+    for other in estimate.alternatives:
+        try:
+            others.append(_fit_about(
+                track, describe_path(track, centre=other.centre, curve=path.smoothing), free_centre=True))
+        except (FitError, GeometryError):
+            continue
+    best = min([fit, *others], key=lambda f: f.reduced_chi2)
+    rest = tuple(f for f in [fit, *others] if f is not best
+                 and f.reduced_chi2 <= AMBIGUITY_FACTOR * best.reduced_chi2
+                 and math.dist(f.centre, best.centre) > 1e-3 * float(np.ptp(path.radius) + 1e-300))
+    if not rest:
+        return best
+    listed = "; ".join(f"n = {f.exponent:.3f} about ({f.centre[0]:.4g}, {f.centre[1]:.4g})" for f in rest)
+    check = Diagnostic(False, f"the path's shape fits as well about other centres ({listed}). A closed "
+                              "ellipse is an orbit of n = 1 about its centre and of n = -2 about a "
+                              "focus; give the centre or timestamps to decide.")
+    return replace(best, alternatives=rest, diagnostics={**best.diagnostics, "centre": check})
+
+
+def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit:
+    require_orbit(path)
+    _require_monotonic(path)
+    first = fit_curvature(track, centre=path.centre, path=replace(path, centre_estimate=None))
+    result, reference, sigma = _solve(track, path, first, free_centre)
+    if not result.success:
+        raise FitError(f"track {track.name!r}: the shape fit did not converge ({result.message}).",
+                       last_params=dict(zip(("exponent", "log_ratio", "log_r0", "slope0"), result.x)))
+    n_params = result.x.size
+    chi2 = 2.0 * float(result.cost)
+    reduced = chi2 / max(track.n_points - n_params, 1)
+    scale = reduced if track.sigma is None else 1.0
+    covariance = np.linalg.pinv(result.jac.T @ result.jac) * scale
+    exponent, log_ratio = result.x[:2]
+    ratio = math.exp(log_ratio)
+    ratio_se = ratio * math.sqrt(covariance[1, 1])
+    centre = (float(result.x[4]), float(result.x[5])) if free_centre else path.centre
+    centre_se = ((math.sqrt(covariance[4, 4]), math.sqrt(covariance[5, 5])) if free_centre
+                 else path.centre_stderr)
+    h, h_se, drift = angular_momentum(path)
+    strength = ratio * h**2
+    strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
+    diagnostics = {
+        "residuals": runs_diagnostic(result.fun),
+        "angular momentum": constancy_diagnostic(drift),
+        "noise": Diagnostic(None, "sigma as given" if track.sigma is not None else
+                            f"sigma estimated from the residuals: {math.sqrt(reduced) * float(np.median(sigma)):.3g} "
+                            f"{track.length_unit}"),
+    }
+    if track.sigma is not None:
+        diagnostics["chi-square"] = _chi2_diagnostic(reduced, track.n_points - n_params)
+    names = ("exponent", "log_strength_per_h2", "log_r_reference", "dlnr_dtheta_reference")
+    return LawFit(
+        exponent=float(exponent), exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
+        strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
+        centre=centre, centre_stderr=centre_se, method="shape", n_points=track.n_points,
+        chi2=chi2, reduced_chi2=reduced,
+        parameter_names=names + (("centre_x", "centre_y") if free_centre else ()),
+        covariance=covariance, residuals=result.fun, length_unit=track.length_unit,
+        time_unit=track.time_unit if track.has_times else None, diagnostics=diagnostics,
+        details={"reference_angle": reference, "angular_momentum": h,
+                 "angular_momentum_stderr": h_se, "evaluations": int(result.nfev)},
+        track_name=track.name,
+    )
+
+
+def _chi2_diagnostic(reduced: float, dof: int) -> Diagnostic:
+    """Reduced chi-square against its expected spread sqrt(2/dof) (for known sigma)."""
+    spread = math.sqrt(2.0 / max(dof, 1))
+    text = f"reduced chi-square {reduced:.3g} (expected 1 ± {spread:.2g})"
+    if abs(reduced - 1.0) > 5 * spread and reduced > 1.0:
+        return Diagnostic(False, text + ": the model misses the points by more than their sigma.")
+    return Diagnostic(True, text + ".")
