@@ -22,6 +22,8 @@ from .curves import (
     attractive_points,
     curvature_of,
     curvature_relation,
+    interior,
+    is_straight,
     polar_about,
     turning_sense,
 )
@@ -33,8 +35,9 @@ from .track import Track
 MIN_SIGNAL = 3.0
 """Signal-to-noise at which a sample's acceleration counts as significant."""
 
-MIN_SIGNIFICANT_FRACTION = 0.1
-"""Fewer samples than this fraction with a significant acceleration: no force is seen."""
+MIN_SIGNIFICANT_FRACTION = 0.02
+"""Fewer samples than this fraction with a significant acceleration: no force is seen (by
+chance alone, |a| > 3 sigma happens at about 1e-4 of the samples)."""
 
 AMBIGUITY_FACTOR = 1.5
 """Centres whose reduced chi-square is within this factor of the best are all reported."""
@@ -87,27 +90,29 @@ def find_centre(track: Track, *, curve: SmoothedCurve | None = None) -> CentreEs
 
 
 def _from_accelerations(track: Track, curve: SmoothedCurve) -> CentreEstimate:
-    accel = curve.second
+    keep = interior(curve)
+    accel, value = curve.second[keep], curve.value[keep]
+    second_var, value_var = curve.second_var[keep], curve.value_var[keep]
     magnitude = np.hypot(accel[:, 0], accel[:, 1])
-    accel_sd = np.sqrt(curve.second_var[:, 0] + curve.second_var[:, 1])
+    accel_sd = np.sqrt(second_var[:, 0] + second_var[:, 1])
     if np.mean(magnitude > MIN_SIGNAL * accel_sd) < MIN_SIGNIFICANT_FRACTION:
         raise NotIdentifiable(
             f"track {track.name!r}: the acceleration is not significantly different from zero "
             "along the path; it looks straight, so no force (or too weak a force) acts on it."
         )
     normal = np.column_stack((-accel[:, 1], accel[:, 0])) / np.maximum(magnitude, 1e-300)[:, None]
-    offset = np.sum(normal * curve.value, axis=1)
-    angle_var = (normal[:, 0] ** 2 * curve.second_var[:, 0]
-                 + normal[:, 1] ** 2 * curve.second_var[:, 1]) / np.maximum(magnitude, 1e-300) ** 2
-    position_var = normal[:, 0] ** 2 * curve.value_var[:, 0] + normal[:, 1] ** 2 * curve.value_var[:, 1]
+    offset = np.sum(normal * value, axis=1)
+    angle_var = (normal[:, 0] ** 2 * second_var[:, 0]
+                 + normal[:, 1] ** 2 * second_var[:, 1]) / np.maximum(magnitude, 1e-300) ** 2
+    position_var = normal[:, 0] ** 2 * value_var[:, 0] + normal[:, 1] ** 2 * value_var[:, 1]
     weight = magnitude**2 / np.maximum(accel_sd, 1e-300) ** 2
     centre = _weighted_intersection(normal, offset, weight)
     for _ in range(4):
-        distance = np.hypot(*(curve.value - centre).T)
+        distance = np.hypot(*(value - centre).T)
         variance = distance**2 * angle_var + position_var
         centre = _weighted_intersection(normal, offset, 1.0 / variance)
     residual = (normal @ centre - offset) / np.sqrt(variance)
-    reduced = float(residual @ residual) / max(track.n_points - 2, 1)
+    reduced = float(residual @ residual) / max(residual.size - 2, 1)
     tau = autocorrelation_time(residual)
     covariance = np.linalg.inv((normal / variance[:, None]).T @ normal) * reduced * tau
     stderr = np.sqrt(np.diag(covariance))
@@ -154,12 +159,17 @@ def _starting_centres(points: FloatArray) -> list[FloatArray]:
 
 
 def _from_curvature_relation(track: Track, curve: SmoothedCurve) -> CentreEstimate:
-    kappa, kappa_err = curvature_of(curve)
-    used = attractive_points(kappa, kappa_err, turning_sense(curve))
-    if used.sum() < max(10, 0.2 * track.n_points):
+    if is_straight(track.x, track.y, curve.noise):
         raise NotIdentifiable(
-            f"track {track.name!r}: the path hardly bends ({int(used.sum())} of {track.n_points} "
-            "points curve significantly); it looks straight, so no force can be read from it."
+            f"track {track.name!r}: the path stays within its noise of a straight line; it looks "
+            "straight, so no force can be read from it."
+        )
+    kappa, kappa_err = curvature_of(curve)
+    used = attractive_points(curve, kappa, kappa_err)
+    if used.sum() < 10:
+        raise NotIdentifiable(
+            f"track {track.name!r}: the curvature is too noisy to locate the centre from the shape "
+            f"({int(used.sum())} of {track.n_points} points bend significantly). Give the centre."
         )
     size = float(np.ptp(curve.value, axis=0).max())
     found: list[CentreEstimate] = []

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -127,6 +128,34 @@ def curvature_relation(
     )
 
 
-def attractive_points(kappa: FloatArray, kappa_stderr: FloatArray, sense: float) -> np.ndarray:
-    """Samples whose curvature bends significantly (2 sigma) towards the inside of the turn."""
-    return sense * kappa > 2.0 * kappa_stderr
+EDGE_SPANS = 2.0
+"""Samples within this many smoothing spans of either end are left out of the fits."""
+
+
+def interior(curve: SmoothedCurve) -> np.ndarray:
+    """Samples away from the ends, where smoothed derivatives carry the boundary's bias.
+
+    Keeps at least the middle half of the samples.
+    """
+    parameter = curve.parameter
+    margin = min(EDGE_SPANS * curve.span, 0.25 * float(parameter[-1] - parameter[0]))
+    return (parameter >= parameter[0] + margin) & (parameter <= parameter[-1] - margin)
+
+
+def attractive_points(curve: SmoothedCurve, kappa: FloatArray, kappa_stderr: FloatArray) -> np.ndarray:
+    """Interior samples whose curvature bends significantly (2 sigma) towards the inside of
+    the turn."""
+    return interior(curve) & (turning_sense(curve) * kappa > 2.0 * kappa_stderr)
+
+
+def is_straight(x: FloatArray, y: FloatArray, noise: FloatArray) -> bool:
+    """True when the points stay within noise of one straight line (total least squares).
+
+    The RMS distance from the best line is compared with the RMS position noise per
+    coordinate; below 3 times it the path shows no bending a force could cause.
+    """
+    points = np.column_stack((x, y))
+    centred = points - points.mean(axis=0)
+    spread = np.linalg.svd(centred, compute_uv=False)
+    rms_off_line = float(spread[-1]) / math.sqrt(x.size)
+    return rms_off_line < 3.0 * float(np.sqrt(np.mean(np.asarray(noise) ** 2)))

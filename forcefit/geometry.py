@@ -18,7 +18,7 @@ from .centre import CentreEstimate, find_centre
 from .curves import curvature_of, polar_about
 from .errors import ForcefitWarning, GeometryError
 from .pspline import SmoothedCurve
-from .smoothing import Smoothing, path_parameter, smooth_track
+from .smoothing import Smoothing, smooth_track
 from .track import Track
 
 MIN_POINTS_PER_TURN = 20
@@ -167,7 +167,7 @@ def _about(
     for note in notes:
         warnings.warn(f"track {track.name!r}: {note}", ForcefitWarning, stacklevel=3)
     return PathGeometry(
-        track=track, parameter=path_parameter(track), position=curve.value, velocity=velocity,
+        track=track, parameter=curve.parameter, position=curve.value, velocity=velocity,
         acceleration=curve.second, speed=speed,
         tangent_angle=np.unwrap(np.arctan2(velocity[:, 1], velocity[:, 0])),
         curvature=kappa, curvature_stderr=kappa_err, centre=centre, centre_stderr=centre_stderr,

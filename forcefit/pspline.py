@@ -70,6 +70,8 @@ class SmoothedCurve:
 
     Attributes
     ----------
+    parameter : ndarray, shape (n_points,)
+        The curve parameter at the samples.
     value, first, second : ndarray
         Smoothed position and its first and second derivatives.
     value_var, first_var, second_var : ndarray
@@ -92,6 +94,7 @@ class SmoothedCurve:
         How the level was chosen.
     """
 
+    parameter: FloatArray
     value: FloatArray
     first: FloatArray
     second: FloatArray
@@ -253,10 +256,16 @@ def _pointwise(
 
 
 def _gcv_level(
-    basis: _Basis, start: float, w: FloatArray, data: FloatArray, weight: PenaltyWeight | None
+    basis: _Basis, start: float, w: FloatArray, data: FloatArray, weight: PenaltyWeight | None,
+    interior: slice,
 ) -> tuple[float, float]:
     """Lambda minimising GCV, and the degrees of freedom it leaves, by Demmler-Reinsch
-    diagonalisation of a small problem."""
+    diagonalisation of a small problem.
+
+    The score counts only the ``interior`` samples (residuals and leverages): the ends
+    of a window cut from a longer track are not ends of the track, and their extra
+    variance would push the choice towards too little smoothing.
+    """
     normal = _band_to_dense(_normal_band(basis, w))
     penalty = _band_to_dense(_penalty_band(basis, start, weight))
     jitter = 1e-10 * float(np.mean(np.diag(normal)))
@@ -270,13 +279,15 @@ def _gcv_level(
         design[rows, basis.first_index + m] = basis.weights[0][:, m]
     mapped = design @ inverse_lower.T @ vectors
     projected = vectors.T @ inverse_lower @ _right_side(basis, w, data)
-    n_values = data.size
+    inner_mapped, inner_data, inner_w = mapped[interior], data[interior], w[interior]
+    leverage_terms = inner_w[:, None] * inner_mapped**2
+    n_values = inner_data.size
 
     def gcv(log_level: float) -> float:
         shrink = 1.0 / (1.0 + 10.0**log_level * eigenvalues)
-        fitted = mapped @ (projected * shrink[:, None])
-        rss = float(np.sum(w[:, None] * (data - fitted) ** 2))
-        trace = data.shape[1] * float(np.sum(shrink))
+        fitted = inner_mapped @ (projected * shrink[:, None])
+        rss = float(np.sum(inner_w[:, None] * (inner_data - fitted) ** 2))
+        trace = data.shape[1] * float(np.sum(leverage_terms @ shrink))
         return n_values * rss / max(n_values - trace, 1e-12) ** 2
 
     positive = eigenvalues[eigenvalues > 1e-12 * eigenvalues.max()]
@@ -317,8 +328,12 @@ def _choose_level(
         intervals = max(int(round((local[-1] - local[0]) / local_spacing)), 1)
         local_spacing = (local[-1] - local[0]) / intervals
         basis = _basis(local, float(local[0]), local_spacing, intervals)
-        level, dof = _gcv_level(basis, float(local[0]), weight[picked], data[picked], penalty_weight)
-        if dof >= MIN_WINDOW_DOF or length == n_points:
+        whole = length == n_points
+        count = local.size
+        interior = slice(0, count) if whole else slice(count // 4, count - count // 4)
+        level, dof = _gcv_level(basis, float(local[0]), weight[picked], data[picked],
+                                penalty_weight, interior)
+        if dof >= MIN_WINDOW_DOF or whole:
             break
         thinning *= 4
     scale = (local_spacing / spacing) ** (2 * PENALTY_ORDER - 1) * thinning ** (1 / (2 * PENALTY_ORDER + 1))
@@ -405,6 +420,7 @@ def smooth_curve(
     pairs = ((0, 0), (1, 1), (2, 2), (1, 2))
     variance = {pair: noise_var * values for pair, values in _pointwise(basis, inverse, pairs).items()}
     return SmoothedCurve(
+        parameter=parameter,
         value=value,
         first=_evaluate(basis, coefficients, 1),
         second=_evaluate(basis, coefficients, 2),

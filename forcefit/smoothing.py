@@ -17,13 +17,24 @@ Smoothing = Literal["auto", "spline", "savgol"]
 """Ways to smooth a track: penalised splines ("auto", "spline") or Savitzky-Golay."""
 
 
-def path_parameter(track: Track) -> FloatArray:
-    """Time for a timestamped track, else cumulative chord length (L) along the samples."""
-    if track.t is not None:
-        return np.asarray(track.t, dtype=float)
-    steps = np.hypot(np.diff(track.x), np.diff(track.y))
+def chord_length(x: FloatArray, y: FloatArray) -> FloatArray:
+    """Cumulative distance along the points (L), kept strictly increasing."""
+    steps = np.hypot(np.diff(x), np.diff(y))
     floor = 1e-6 * float(np.median(steps[steps > 0])) if np.any(steps > 0) else 1.0
     return np.concatenate(([0.0], np.cumsum(np.maximum(steps, floor))))
+
+
+def _arc_length(track: Track, level: float | None) -> FloatArray:
+    """Arc length along a pilot smoothing of the samples against their index.
+
+    The chord length of the raw points is no parameter for densely sampled noisy data:
+    when the noise is comparable to the spacing it is mostly noise. A pilot smoothing
+    against the sample number (the samples are in order along the path) gives a path
+    whose chord length is the arc length.
+    """
+    index = np.arange(track.n_points, dtype=float)
+    pilot = smooth_curve(index, track.x, track.y, sigma=track.sigma, level=level)
+    return chord_length(pilot.value[:, 0], pilot.value[:, 1])
 
 
 def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
@@ -47,7 +58,7 @@ def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
         noise = np.asarray(track.sigma)
     scale = (noise**2)[:, None] * np.ones((1, 2))
     return SmoothedCurve(
-        value=derivative[0], first=derivative[1], second=derivative[2],
+        parameter=parameter, value=derivative[0], first=derivative[1], second=derivative[2],
         value_var=scale * float(coefficients[0] @ coefficients[0]),
         first_var=scale * float(coefficients[1] @ coefficients[1]),
         second_var=scale * float(coefficients[2] @ coefficients[2]),
@@ -75,13 +86,14 @@ def smooth_track(
     window : int
         Savitzky-Golay window length in samples.
     """
-    parameter = path_parameter(track)
     if smoothing == "savgol":
-        return _savgol(parameter, track, window)
+        parameter = track.t if track.t is not None else chord_length(track.x, track.y)
+        return _savgol(np.asarray(parameter, dtype=float), track, window)
     if smoothing not in ("auto", "spline"):
         raise GeometryError(f'smoothing {smoothing!r} is unknown; use "spline" or "savgol".')
     if track.t is None:
-        return smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level)
+        return smooth_curve(_arc_length(track, level), track.x, track.y, sigma=track.sigma, level=level)
+    parameter = np.asarray(track.t, dtype=float)
     pilot = smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level)
     return smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level,
                         penalty_weight=_arc_length_weight(parameter, pilot))

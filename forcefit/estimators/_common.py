@@ -10,6 +10,7 @@ import numpy as np
 from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
 from ..errors import NotIdentifiable
+from ..curves import is_straight
 from ..geometry import PathGeometry
 from ..result import Diagnostic
 
@@ -24,8 +25,7 @@ def require_orbit(path: PathGeometry) -> None:
         exponent) and for a path that does not bend (no force).
     """
     name = path.track.name
-    significant = np.abs(path.curvature) > 2.0 * path.curvature_stderr
-    if significant.mean() < 0.2:
+    if is_straight(path.track.x, path.track.y, path.smoothing.noise):
         raise NotIdentifiable(
             f"track {name!r}: the path does not bend significantly; a straight path shows no "
             "force, so no exponent can be read from it."

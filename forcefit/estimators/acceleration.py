@@ -15,6 +15,7 @@ from scipy.optimize import OptimizeResult, least_squares
 
 from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
+from ..curves import interior
 from ..errors import NotIdentifiable
 from ..geometry import PathGeometry, describe_path
 from ..result import Diagnostic, LawFit
@@ -31,13 +32,15 @@ from ._common import (
 
 
 def _radial(path: PathGeometry, centre: tuple[float, float]) -> tuple[FloatArray, FloatArray, FloatArray]:
-    """Distance r, radial acceleration a_r and its standard error about ``centre``."""
-    offset = path.position - np.asarray(centre)
+    """Distance r, radial acceleration a_r and its standard error about ``centre``, at the
+    samples away from the ends of the track."""
+    keep = interior(path.smoothing)
+    offset = path.position[keep] - np.asarray(centre)
     radius = np.hypot(offset[:, 0], offset[:, 1])
     unit = offset / radius[:, None]
-    radial = np.sum(path.acceleration * unit, axis=1)
-    variance = (unit[:, 0] ** 2 * path.smoothing.second_var[:, 0]
-                + unit[:, 1] ** 2 * path.smoothing.second_var[:, 1])
+    radial = np.sum(path.acceleration[keep] * unit, axis=1)
+    variance = (unit[:, 0] ** 2 * path.smoothing.second_var[keep, 0]
+                + unit[:, 1] ** 2 * path.smoothing.second_var[keep, 1])
     return radius, radial, np.sqrt(variance)
 
 

@@ -21,6 +21,7 @@ from .._regression import fit_line
 from .._types import FloatArray
 from ..curves import attractive_points, curvature_relation, turning_sense
 from ..geometry import PathGeometry, describe_path
+from ..errors import NotIdentifiable
 from ..result import Diagnostic, LawFit
 from ..smoothing import Smoothing
 from ..track import Track
@@ -32,6 +33,10 @@ from ._common import (
     leverage_diagnostic,
     require_orbit,
 )
+
+
+MIN_USED = 10
+"""Fewest significantly bending points the regression needs."""
 
 
 def _line_about(path: PathGeometry, centre: tuple[float, float], used: np.ndarray):  # type: ignore[no-untyped-def]
@@ -101,7 +106,12 @@ def _ambiguity(fit: LawFit, others: tuple[LawFit, ...]) -> Diagnostic:
 def _fit_about(track: Track, path: PathGeometry) -> LawFit:
     """The curvature fit about the path's centre."""
     require_orbit(path)
-    used = attractive_points(path.curvature, path.curvature_stderr, turning_sense(path.smoothing))
+    used = attractive_points(path.smoothing, path.curvature, path.curvature_stderr)
+    if used.sum() < MIN_USED:
+        raise NotIdentifiable(
+            f"track {track.name!r}: only {int(used.sum())} points bend significantly towards the "
+            "centre; the curvature is too noisy for the curvature estimator. Try the shape estimator."
+        )
     points, line = _line_about(path, path.centre, used)
 
     def parameters(about: tuple[float, float]) -> FloatArray:

@@ -99,7 +99,7 @@ def force_profile(
     path = path if path is not None else describe_path(track, centre=centre, smoothing=smoothing)
     require_orbit(path)
     bins = max(int(bins), 3)
-    used = attractive_points(path.curvature, path.curvature_stderr, turning_sense(path.smoothing))
+    used = attractive_points(path.smoothing, path.curvature, path.curvature_stderr)
     points = curvature_relation(path.smoothing, path.curvature, path.curvature_stderr,
                                 np.asarray(path.centre), used)
     h, h_se, _ = angular_momentum(path)

@@ -23,7 +23,7 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import OptimizeResult, least_squares
 
 from .._types import FloatArray
-from ..errors import FitError, GeometryError
+from ..errors import FitError, GeometryError, NotIdentifiable
 from ..geometry import PathGeometry, describe_path
 from ..result import Diagnostic, LawFit
 from ..smoothing import Smoothing
@@ -77,16 +77,20 @@ def _polar(
 def _residuals(
     params: FloatArray, x: FloatArray, y: FloatArray, sigma: FloatArray, reference: float,
     fixed_centre: tuple[float, float] | None, penalty: float,
+    prior: tuple[FloatArray, FloatArray] | None,
 ) -> FloatArray:
-    """Normal distances from the points to the Binet curve, in units of their sigma."""
+    """Normal distances from the points to the Binet curve, in units of their sigma, and
+    (with a ``prior`` centre and its standard error) the centre's pull towards it."""
     exponent, log_ratio, log_r0, slope0 = params[:4]
     centre = fixed_centre if fixed_centre is not None else (float(params[4]), float(params[5]))
     radius, theta = _polar(x, y, centre, reference)
     r0 = math.exp(log_r0)
     model, cos_gamma = _binet_radius(theta, reference, exponent, math.exp(log_ratio),
                                      1.0 / r0, -slope0 / r0)
-    residual = (radius - model) * cos_gamma / sigma
-    return np.where(np.isfinite(residual), residual, penalty)
+    residual = np.where(np.isfinite(model), (radius - model) * cos_gamma / sigma, penalty)
+    if prior is None:
+        return residual
+    return np.concatenate((residual, (np.asarray(centre) - prior[0]) / prior[1]))
 
 
 def _require_monotonic(path: PathGeometry) -> None:
@@ -103,28 +107,62 @@ def _require_monotonic(path: PathGeometry) -> None:
         )
 
 
-def _start(path: PathGeometry, first: LawFit, reference_index: int) -> FloatArray:
+GRID_EXPONENTS = (-5.0, -4.0, -3.0, -2.5, -2.0, -1.5, -1.0, -0.5, 0.0, 0.5, 1.0, 2.0, 3.0)
+"""Exponents tried for a start when the curvature relation is too noisy to give one."""
+
+
+def _start(
+    track: Track, path: PathGeometry, reference_index: int, reference: float, sigma: FloatArray
+) -> FloatArray:
+    """(n, log k/h**2, log r, d ln r / d theta) at the reference angle to start from.
+
+    n and k/h**2 come from the curvature fit about the centre; when the curvature is
+    too noisy for that, from the best of short fits with n held at each of GRID_EXPONENTS.
+    """
     radius = path.radius
-    slope = np.gradient(np.log(radius), path.polar_angle)[reference_index]
-    return np.array([first.exponent, math.log(first.strength_per_h2),
-                     math.log(radius[reference_index]), slope])
+    slope = float(np.gradient(np.log(radius), path.polar_angle)[reference_index])
+    log_r0 = math.log(radius[reference_index])
+    try:
+        first = fit_curvature(track, centre=path.centre, path=replace(path, centre_estimate=None))
+        return np.array([first.exponent, math.log(first.strength_per_h2), log_r0, slope])
+    except (NotIdentifiable, np.linalg.LinAlgError):
+        pass
+    mean_log_r = float(np.mean(np.log(radius)))
+    best, best_cost = None, math.inf
+    for exponent in GRID_EXPONENTS:
+        def held(params: FloatArray, exponent: float = exponent) -> FloatArray:
+            return _residuals(np.concatenate(([exponent], params)), track.x, track.y, sigma,
+                              reference, path.centre, 1e6, None)
+
+        trial = least_squares(held, [-(exponent + 3.0) * mean_log_r, log_r0, slope], max_nfev=60)
+        if trial.cost < best_cost:
+            best, best_cost = np.concatenate(([exponent], trial.x)), float(trial.cost)
+    return np.asarray(best)
 
 
 def _solve(
-    track: Track, path: PathGeometry, first: LawFit, free_centre: bool
+    track: Track, path: PathGeometry, free_centre: bool
 ) -> tuple[OptimizeResult, float, FloatArray]:
-    """Least-squares Binet fit started from the curvature fit about ``path.centre``."""
+    """Least-squares Binet fit started from the curvature fit about ``path.centre``.
+
+    With timestamps, the centre the accelerations point at enters as a Gaussian prior
+    (its value and standard error), so that a shape that cannot fix the centre alone
+    (a circle through the centre, say) still gets the centre the motion shows.
+    """
     polar = path.polar_angle
     reference_index = int(np.argmin(np.abs(polar - 0.5 * (polar.min() + polar.max()))))
     reference = float(polar[reference_index])
     sigma = track.sigma if track.sigma is not None else path.smoothing.noise
-    start = _start(path, first, reference_index)
+    start = _start(track, path, reference_index, reference, sigma)
     if free_centre:
         start = np.concatenate((start, path.centre))
     fixed = None if free_centre else path.centre
     penalty = 1e3 * float(np.ptp(path.radius) / np.median(sigma))
+    stderr = np.asarray(path.centre_stderr)
+    prior = ((np.asarray(path.centre), stderr)
+             if free_centre and track.has_times and np.all(stderr > 0) else None)
     result = least_squares(
-        _residuals, start, args=(track.x, track.y, sigma, reference, fixed, penalty),
+        _residuals, start, args=(track.x, track.y, sigma, reference, fixed, penalty, prior),
         method="trf", x_scale="jac", max_nfev=400,
     )
     return result, reference, sigma
@@ -174,7 +212,7 @@ def fit_shape(
     (-2.0, 1.0)
     """
     path = path if path is not None else describe_path(track, centre=centre, smoothing=smoothing)
-    free = centre is None and not track.has_times
+    free = centre is None
     fit = _fit_about(track, path, free_centre=free)
     estimate = path.centre_estimate
     if not free or estimate is None or not estimate.alternatives:
@@ -202,8 +240,7 @@ def fit_shape(
 def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit:
     require_orbit(path)
     _require_monotonic(path)
-    first = fit_curvature(track, centre=path.centre, path=replace(path, centre_estimate=None))
-    result, reference, sigma = _solve(track, path, first, free_centre)
+    result, reference, sigma = _solve(track, path, free_centre)
     if not result.success:
         raise FitError(f"track {track.name!r}: the shape fit did not converge ({result.message}).",
                        last_params=dict(zip(("exponent", "log_ratio", "log_r0", "slope0"), result.x)))
@@ -221,8 +258,9 @@ def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit
     h, h_se, drift = angular_momentum(path)
     strength = ratio * h**2
     strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
+    residuals = result.fun[: track.n_points]
     diagnostics = {
-        "residuals": runs_diagnostic(result.fun),
+        "residuals": runs_diagnostic(residuals),
         "angular momentum": constancy_diagnostic(drift),
         "noise": Diagnostic(None, "sigma as given" if track.sigma is not None else
                             f"sigma estimated from the residuals: {math.sqrt(reduced) * float(np.median(sigma)):.3g} "
@@ -230,6 +268,9 @@ def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit
     }
     if track.sigma is not None:
         diagnostics["chi-square"] = _chi2_diagnostic(reduced, track.n_points - n_params)
+    if free_centre and max(centre_se) > 0.05 * float(np.ptp(path.radius) + np.min(path.radius)):
+        diagnostics["centre"] = Diagnostic(None, f"the shape fixes the centre only to ±{max(centre_se):.3g} "
+                                                 f"{track.length_unit}; give it if it is known.")
     names = ("exponent", "log_strength_per_h2", "log_r_reference", "dlnr_dtheta_reference")
     return LawFit(
         exponent=float(exponent), exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
@@ -237,7 +278,7 @@ def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit
         centre=centre, centre_stderr=centre_se, method="shape", n_points=track.n_points,
         chi2=chi2, reduced_chi2=reduced,
         parameter_names=names + (("centre_x", "centre_y") if free_centre else ()),
-        covariance=covariance, residuals=result.fun, length_unit=track.length_unit,
+        covariance=covariance, residuals=residuals, length_unit=track.length_unit,
         time_unit=track.time_unit if track.has_times else None, diagnostics=diagnostics,
         details={"reference_angle": reference, "angular_momentum": h,
                  "angular_momentum_stderr": h_se, "evaluations": int(result.nfev)},

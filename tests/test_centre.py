@@ -1,0 +1,48 @@
+"""Finding the force centre, with and without timestamps."""
+
+import numpy as np
+import pytest
+
+from forcefit.centre import find_centre
+from forcefit.errors import NotIdentifiable
+from forcefit.simulate import simulate_orbit
+from forcefit.track import Track
+
+
+@pytest.mark.parametrize("exponent", [-2.0, -1.0, 0.5, 1.0])
+def test_centre_from_accelerations_within_three_standard_errors(exponent):
+    track = simulate_orbit(exponent=exponent, centre=(0.4, -0.3), noise=0.002, rate=None, rng=11)
+    estimate = find_centre(track)
+    assert estimate.method == "acceleration lines"
+    for axis, truth in enumerate((0.4, -0.3)):
+        assert abs(estimate.centre[axis] - truth) < 3 * estimate.stderr[axis] + 1e-4
+
+
+def test_centre_of_a_rosette_without_timestamps_is_unique():
+    track = simulate_orbit(exponent=-1.5, centre=(0.4, -0.3), noise=0.002, rate=None, rng=12).shape_only()
+    estimate = find_centre(track)
+    assert estimate.alternatives == ()
+    assert np.allclose(estimate.centre, (0.4, -0.3), atol=3 * max(estimate.stderr) + 1e-4)
+
+
+def test_closed_ellipse_without_timestamps_is_ambiguous():
+    # Source: Bertrand (1873), C. R. Acad. Sci. 77, 849 (from memory): an ellipse is an orbit
+    # of n = 1 about its centre and of n = -2 about a focus; both must be reported.
+    theta = np.linspace(0, 4 * np.pi, 800)
+    a, b = 2.0, 1.0
+    track = Track(x=a * np.cos(theta), y=b * np.sin(theta))
+    estimate = find_centre(track)
+    found = [estimate.centre, *[other.centre for other in estimate.alternatives]]
+    focus = np.sqrt(a**2 - b**2)
+    for expected in ((0.0, 0.0), (focus, 0.0), (-focus, 0.0)):
+        assert min(np.hypot(*(np.asarray(c) - expected)) for c in found) < 1e-3
+
+
+def test_straight_path_has_no_centre():
+    t = np.linspace(0.0, 1.0, 200)
+    rng = np.random.default_rng(1)
+    track = Track(t=t, x=t + 1e-3 * rng.standard_normal(200), y=2 * t + 1e-3 * rng.standard_normal(200))
+    with pytest.raises(NotIdentifiable, match="straight"):
+        find_centre(track)
+    with pytest.raises(NotIdentifiable, match="straight"):
+        find_centre(track.shape_only())

@@ -1,0 +1,170 @@
+"""The time-free and acceleration estimators against truth and published results."""
+
+import erfa
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+
+from forcefit.errors import GeometryError, NotIdentifiable
+from forcefit.estimators import fit_acceleration, fit_curvature, fit_shape, force_profile
+from forcefit.laws import circular_period
+from forcefit.loaders import load_track
+from forcefit.result import LawFit
+from forcefit.simulate import simulate_orbit
+from forcefit.track import Track
+
+EXPONENTS = [-2.5, -2.0, -1.5, -1.0, -0.5, 0.0, 0.5, 1.0, 2.0]
+ESTIMATORS = {"curvature": (fit_curvature, 0.05), "acceleration": (fit_acceleration, 0.05),
+              "shape": (fit_shape, 0.01)}
+
+
+def noisy_orbit(exponent, rng, n_points=1000):
+    """Three circular periods, 1000 points, noise 0.2% of the orbit's size, centre off origin."""
+    duration = 3.0 * float(circular_period(1.0, exponent, 1.0))
+    clean = simulate_orbit(exponent=exponent, duration=duration, rate=(n_points - 1) / duration)
+    size = max(np.ptp(clean.x), np.ptp(clean.y))
+    return simulate_orbit(exponent=exponent, duration=duration, rate=(n_points - 1) / duration,
+                          noise=0.002 * size, centre=(0.25, -0.15), rng=rng)
+
+
+@pytest.mark.parametrize("exponent", EXPONENTS)
+@pytest.mark.parametrize("method", sorted(ESTIMATORS))
+def test_exponent_recovered_with_unknown_centre(method, exponent):
+    estimator, tolerance = ESTIMATORS[method]
+    fit = estimator(noisy_orbit(exponent, rng=int(10 * exponent) + 100))
+    assert abs(fit.exponent - exponent) < tolerance
+    assert abs(fit.exponent - exponent) < 4 * fit.exponent_stderr + 1e-3
+    assert fit.strength == pytest.approx(1.0, rel=0.05)
+
+
+@pytest.mark.parametrize("method", sorted(ESTIMATORS))
+def test_every_estimator_fills_every_field(method):
+    fit = ESTIMATORS[method][0](noisy_orbit(-1.5, rng=5))
+    assert isinstance(fit, LawFit) and fit.method == method
+    for name in ("exponent", "exponent_stderr", "strength", "strength_stderr", "strength_per_h2",
+                 "strength_per_h2_stderr", "chi2", "reduced_chi2"):
+        assert np.isfinite(getattr(fit, name)), name
+    assert fit.covariance.shape == (len(fit.parameter_names),) * 2
+    assert np.all(np.isfinite(fit.centre)) and fit.n_points > 500
+    assert fit.strength_unit == "m^2.5 s^-2"
+    assert "exponent n" in fit.summary() and fit.to_dict()["method"] == method
+    assert all(isinstance(check.message, str) for check in fit.diagnostics.values())
+
+
+def test_circle_through_the_centre_is_an_inverse_fifth_power_orbit():
+    # Source: Newton (1687), Principia, Book I, Prop. VII, Cor. 1: a body on a circle through
+    # the centre of force is attracted as the inverse fifth power of the distance; for radius R,
+    # k = 8 h^2 R^2 (zero energy).
+    radius, strength = 1.0, 2.0
+    speed = np.sqrt(strength / 2) / (2 * radius) ** 2          # zero energy at r = 2R
+    track = simulate_orbit(exponent=-5.0, strength=strength, start=(2 * radius, 0.0),
+                           velocity=(0.0, speed), duration=6.27, rate=400.0, noise=1e-4, rng=3)
+    r = np.hypot(track.x, track.y)
+    assert r.min() > 0.3 and r.max() / r.min() > 5           # most of the circle, not the centre
+    # The centre is given: without it any point of the circle would serve the shape equally.
+    for estimator in (fit_shape, fit_curvature):
+        assert estimator(track, centre=(0.0, 0.0)).exponent == pytest.approx(-5.0, abs=0.05)
+    assert fit_shape(track.shape_only(), centre=(0.0, 0.0)).exponent == pytest.approx(-5.0, abs=0.05)
+
+
+def _hooke_squared(noise=0.0, rng=None):
+    """A centred Hooke ellipse mapped by w = z^2: the path of a Kepler ellipse with its focus
+    at the origin (Arnold 1990, Huygens and Barrow, Newton and Hooke, from memory)."""
+    s = np.linspace(0.0, 2 * np.pi, 1200, endpoint=False)
+    z = (1.4 * np.cos(s) + 0.8j * np.sin(s)) ** 2
+    generator = np.random.default_rng(rng)
+    return Track(x=z.real + noise * generator.standard_normal(s.size),
+                 y=z.imag + noise * generator.standard_normal(s.size))
+
+
+def test_hooke_orbit_squared_is_a_kepler_path():
+    track = _hooke_squared(noise=1e-3, rng=4)
+    for estimator in (fit_shape, fit_curvature):
+        fit = estimator(track, centre=(0.0, 0.0))
+        assert fit.exponent == pytest.approx(-2.0, abs=0.02)
+
+
+def test_hooke_orbit_squared_without_a_centre_reports_the_ambiguity():
+    # Source: Bertrand (1873), C. R. Acad. Sci. 77, 849 (from memory): a closed ellipse is an orbit
+    # of n = 1 about its centre and of n = -2 about a focus.
+    fit = fit_shape(_hooke_squared(noise=1e-3, rng=5))
+    exponents = sorted([fit.exponent, *[other.exponent for other in fit.alternatives]])
+    assert exponents[0] == pytest.approx(-2.0, abs=0.02) and exponents[-1] == pytest.approx(1.0, abs=0.05)
+    assert fit.diagnostics["centre"].passed is False and not fit.passed
+
+
+def test_mars_from_plan94_is_inverse_square_from_its_shape():
+    # Source: pyerfa plan94 (Simon et al. 1994, A&A 282, 663): heliocentric Mars, J2000, daily
+    # over four years; the Sun given as the centre, timestamps dropped.
+    jd = 2451545.0 + np.arange(0.0, 4 * 365.25)
+    positions = erfa.plan94(jd, 0.0, 4)["p"]
+    import pandas as pd
+
+    frame = pd.DataFrame({"x [au]": positions[:, 0], "y [au]": positions[:, 1],
+                          "z [au]": positions[:, 2]})
+    track = load_track(frame)
+    fit = fit_shape(track, centre=(0.0, 0.0))
+    assert fit.exponent == pytest.approx(-2.0, abs=0.01)
+
+
+def test_screened_force_profile_follows_its_local_exponent():
+    # F = exp(-r/lambda)/r^2 (a screened, Yukawa-like force; common practice): its local exponent
+    # d ln F / d ln r = -2 - r/lambda.
+    scale = 1.0
+
+    def derivative(_, s):
+        r = np.hypot(s[0], s[1])
+        a = -np.exp(-r / scale) / r**2
+        return [s[2], s[3], a * s[0] / r, a * s[1] / r]
+
+    t = np.linspace(0.0, 80.0, 1500)
+    solution = solve_ivp(derivative, (0, 80), [1.5, 0, 0, 0.28], t_eval=t, rtol=1e-11, atol=1e-13,
+                         method="DOP853")
+    rng = np.random.default_rng(2)
+    track = Track(t=t, x=solution.y[0] + 0.002 * rng.standard_normal(t.size),
+                  y=solution.y[1] + 0.002 * rng.standard_normal(t.size))
+    profile = force_profile(track, bins=6)
+    table = profile.table
+    expected = -2.0 - table["exponent_radius"] / scale
+    assert np.all(np.abs(table["local_exponent"] - expected) < 3 * table["local_exponent_stderr"])
+    assert not fit_curvature(track).diagnostics["power law"].passed
+
+
+def test_circle_about_the_centre_is_refused():
+    t = np.linspace(0.0, 10.0, 500)
+    track = Track(t=t, x=np.cos(t), y=np.sin(t))
+    for estimator in (fit_curvature, fit_shape, fit_acceleration):
+        with pytest.raises(NotIdentifiable, match="circular orbit exists for every exponent"):
+            estimator(track, centre=(0.0, 0.0))
+
+
+def test_straight_path_is_refused():
+    t = np.linspace(0.0, 10.0, 500)
+    rng = np.random.default_rng(0)
+    track = Track(t=t, x=t + 1e-3 * rng.standard_normal(500), y=0.5 * t + 1e-3 * rng.standard_normal(500))
+    for estimator in (fit_curvature, fit_shape, fit_acceleration):
+        with pytest.raises(NotIdentifiable, match="straight"):
+            estimator(track)
+
+
+def test_path_winding_back_about_the_centre_is_refused():
+    # A Hooke ellipse about a point outside it: theta turns forth and back.
+    t = np.linspace(0.0, 12.0, 600)
+    track = Track(t=t, x=3 + np.cos(t), y=0.5 * np.sin(t))
+    with pytest.raises(GeometryError, match="winds back"):
+        fit_shape(track, centre=(0.0, 0.0))
+
+
+def test_acceleration_needs_timestamps():
+    with pytest.raises(NotIdentifiable, match="needs timestamps"):
+        fit_acceleration(noisy_orbit(1.0, rng=1).shape_only())
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("method", sorted(ESTIMATORS))
+def test_coverage_of_the_standard_errors(method):
+    # |n_hat - n| / stderr < 3 in at least 95% of 100 noisy replicates (n = -1.5).
+    estimator = ESTIMATORS[method][0]
+    z = [(estimator(noisy_orbit(-1.5, rng=seed)).exponent + 1.5)
+         / estimator(noisy_orbit(-1.5, rng=seed)).exponent_stderr for seed in range(100)]
+    assert np.mean(np.abs(z) < 3) >= 0.95
