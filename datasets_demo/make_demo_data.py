@@ -136,7 +136,7 @@ def comet() -> dict:
            [epoch0 + t, xyz[:, 0], xyz[:, 1], xyz[:, 2], sigma],
            ["%.5f", "%.10f", "%.10f", "%.10f", "%.2e"])
     return {"file": "comet_heliocentric.csv", "title": "fictional comet (3-D, au, days, sigma)",
-            "load": {},
+            "load": {}, "fit": {"centre": [0.0, 0.0]},
             "expected": {"exponent": -2.0, "strength": GAUSS_K2, "strength_unit": "au^3 d^-2",
                          "semi_major_axis_au": a, "eccentricity": e, "centre_au": [0.0, 0.0]}}
 

@@ -23,6 +23,7 @@ from .loaders import load_tracks, save_track
 from .propagate import Drag
 from .simulate import simulate_orbit, simulate_pendulum
 from .track import Track
+from .units import format_measurement, strength_unit
 
 EXIT_OK, EXIT_FAILED_CHECKS, EXIT_BAD_INPUT = 0, 1, 2
 
@@ -236,28 +237,45 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     for dataset in datasets:
         print(f"\n== {dataset.title}")
         expected = dataset.expected
-        if "exponent" in expected:
-            print(f"   true law: n = {expected['exponent']:g}, k = {expected['strength']:.6g} "
-                  f"{expected['strength_unit']}")
+        print(f"   true law: n = {expected['exponent']:g}, k = {expected['strength']:.6g} "
+              f"{expected['strength_unit']}")
+        if dataset.is_class_set:
+            print(f"   {'run':<8} {'points':>6} {'duration':>9}  {'exponent n (shape)':<22} "
+                  "k for the nearest whole n, from F at the typical radius")
         for path in dataset.paths:
             try:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore", ForcefitWarning)
                     tracks = dataset.load(path)
+                    for track in tracks:
+                        _demo_track(track, dataset.fit_options, compact=dataset.is_class_set)
             except ForcefitError as exc:
                 print(f"   {path.name}: refused — {exc}")
-                continue
-            for track in tracks:
-                print(_demo_line(track) if dataset.is_class_set else inspect_track(track).to_text())
     return EXIT_OK
 
 
-def _demo_line(track: Track) -> str:
-    summary = inspect_track(track)
-    return (f"   {track.name:<8} {summary.n_points:5d} points  {summary.duration:6.2f} "
-            f"{track.time_unit}  {summary.sample_rate:5.1f} per {track.time_unit}  "
-            f"{summary.turns_about_middle:5.2f} turns  noise {summary.noise_estimate:.2f} "
-            f"{track.length_unit}")
+def _demo_track(track: Track, options: dict[str, Any], *, compact: bool) -> None:
+    """Print what the demo shows of one track: a line (class runs) or a table and fits."""
+    centre = tuple(options["centre"]) if "centre" in options else None
+    path = describe_path(track, centre=centre)
+    if compact:
+        fit = fit_shape(track, centre=centre, path=path)
+        nominal = round(fit.exponent)
+        value, error = fit.strength_at_exponent(nominal)
+        unit = strength_unit(track.length_unit, track.time_unit, nominal)
+        print(f"   {track.name:<8} {track.n_points:6d} {track.duration:7.2f} {track.time_unit}  "
+              f"{format_measurement(fit.exponent, fit.exponent_stderr):<22} "
+              f"{format_measurement(value, error, unit)}")
+        return
+    print(inspect_track(track).to_text())
+    for method, estimator in ESTIMATORS.items():
+        if method == "acceleration" and not track.has_times:
+            continue
+        fit = estimator(track, centre=centre, path=path)
+        failed = [name for name, check in fit.diagnostics.items() if check.passed is False]
+        verdict = f"  [check failed: {', '.join(failed)}]" if failed else ""
+        print(f"  {method:<13} n = {format_measurement(fit.exponent, fit.exponent_stderr):<24}"
+              f" k = {format_measurement(fit.strength, fit.strength_stderr, fit.strength_unit)}{verdict}")
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -42,6 +42,7 @@ class DemoDataset:
     load_options: dict[str, Any]
     expected: dict[str, Any]
     runs: tuple[dict[str, Any], ...] = field(default_factory=tuple)
+    fit_options: dict[str, Any] = field(default_factory=dict)
 
     @property
     def is_class_set(self) -> bool:
@@ -72,5 +73,6 @@ def demo_datasets(folder: str | Path | None = None) -> list[DemoDataset]:
         datasets.append(DemoDataset(
             title=entry["title"], paths=paths, load_options=entry.get("load", {}),
             expected=entry.get("expected", {}), runs=tuple(entry.get("runs", ())),
+            fit_options=entry.get("fit", {}),
         ))
     return datasets

@@ -56,6 +56,11 @@ class LawFit:
         Normalised residuals of the fit, one per point used.
     length_unit, time_unit : str
         Units of the track (time_unit None when shape-only).
+    reference_radius : float
+        A typical radius of the data (their geometric mean), in L.
+    force_at_reference, force_at_reference_stderr : float
+        |F| = k r**n at ``reference_radius`` (L T**-2): the best-determined number of the
+        fit, since n and k correlate; nan without timestamps.
     diagnostics : mapping of str to Diagnostic
         Named checks with a verdict and a sentence.
     alternatives : tuple of LawFit
@@ -84,6 +89,9 @@ class LawFit:
     residuals: FloatArray
     length_unit: str
     time_unit: str | None
+    reference_radius: float = NAN
+    force_at_reference: float = NAN
+    force_at_reference_stderr: float = NAN
     diagnostics: Mapping[str, Diagnostic] = field(default_factory=dict)
     alternatives: tuple[LawFit, ...] = ()
     details: Mapping[str, Any] = field(default_factory=dict)
@@ -91,7 +99,8 @@ class LawFit:
 
     def __post_init__(self) -> None:
         for name in ("exponent", "exponent_stderr", "strength", "strength_stderr", "strength_per_h2",
-                     "strength_per_h2_stderr", "chi2", "reduced_chi2"):
+                     "strength_per_h2_stderr", "chi2", "reduced_chi2", "reference_radius",
+                     "force_at_reference", "force_at_reference_stderr"):
             object.__setattr__(self, name, float(getattr(self, name)))
         for name in ("centre", "centre_stderr"):
             pair = getattr(self, name)
@@ -109,6 +118,18 @@ class LawFit:
     def strength_unit(self) -> str:
         """Unit of k for this exponent, e.g. ``"s^-2"`` for n = 1 in any length unit."""
         return strength_unit(self.length_unit, self.time_unit or "T", self.exponent)
+
+    def strength_at_exponent(self, exponent: float) -> tuple[float, float]:
+        """The strength k0 of a law with exponent n0 giving the fitted force at the reference
+        radius: k0 = F(r_ref) / r_ref**n0, with its standard error.
+
+        This is how to compare with a nominal law: for a pendulum fitted with n = 0.99 in
+        pixels, k itself carries a unit px**0.01 and depends on the pixel scale, while
+        ``strength_at_exponent(1.0)`` is the omega**2 = g/L the force shows at typical r.
+        """
+        radius = self.reference_radius
+        scale = radius**exponent
+        return self.force_at_reference / scale, self.force_at_reference_stderr / scale
 
     def correlation(self, first: str, second: str) -> float:
         """Correlation coefficient of two fitted parameters (nan if not both fitted)."""
@@ -159,6 +180,9 @@ class LawFit:
             "strength_unit": self.strength_unit,
             "strength_per_h2": self.strength_per_h2,
             "strength_per_h2_stderr": self.strength_per_h2_stderr,
+            "reference_radius": self.reference_radius,
+            "force_at_reference": self.force_at_reference,
+            "force_at_reference_stderr": self.force_at_reference_stderr,
             "centre": list(self.centre),
             "centre_stderr": list(self.centre_stderr),
             "length_unit": self.length_unit,

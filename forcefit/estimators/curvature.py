@@ -19,7 +19,7 @@ import numpy as np
 
 from .._regression import fit_line
 from .._types import FloatArray
-from ..curves import attractive_points, curvature_relation, turning_sense
+from ..curves import attractive_points, curvature_relation
 from ..geometry import PathGeometry, describe_path
 from ..errors import NotIdentifiable
 from ..result import Diagnostic, LawFit
@@ -39,10 +39,28 @@ MIN_USED = 10
 """Fewest significantly bending points the regression needs."""
 
 
-def _line_about(path: PathGeometry, centre: tuple[float, float], used: np.ndarray):  # type: ignore[no-untyped-def]
+def _relation(
+    path: PathGeometry, centre: tuple[float, float], used: np.ndarray
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """log r, log F (or log F/h**2 without timestamps) and its standard error at the used points.
+
+    With timestamps each point's own h = (r x v) enters: F = h**2 kappa / (r**2 cos**3 gamma)
+    holds for the central part of the force even when a drag along the motion makes h
+    change, because such a force has no component across the path.
+    """
     points = curvature_relation(path.smoothing, path.curvature, path.curvature_stderr,
                                 np.asarray(centre), used)
-    return points, fit_line(points.log_radius, points.log_force_per_h2, points.sigma)
+    y, variance = points.log_force_per_h2, points.sigma**2
+    if path.track.has_times:
+        curve = path.smoothing
+        offset = curve.value[used] - np.asarray(centre)
+        velocity = curve.first[used]
+        h = np.abs(offset[:, 0] * velocity[:, 1] - offset[:, 1] * velocity[:, 0])
+        h_var = (offset[:, 0] ** 2 * curve.first_var[used, 1] + offset[:, 1] ** 2 * curve.first_var[used, 0]
+                 + velocity[:, 1] ** 2 * curve.value_var[used, 0] + velocity[:, 0] ** 2 * curve.value_var[used, 1])
+        y = y + 2.0 * np.log(h)
+        variance = variance + 4.0 * h_var / h**2
+    return points.log_radius, y, np.sqrt(variance)
 
 
 def fit_curvature(
@@ -112,22 +130,32 @@ def _fit_about(track: Track, path: PathGeometry) -> LawFit:
             f"track {track.name!r}: only {int(used.sum())} points bend significantly towards the "
             "centre; the curvature is too noisy for the curvature estimator. Try the shape estimator."
         )
-    points, line = _line_about(path, path.centre, used)
+    log_radius, log_force, sigma = _relation(path, path.centre, used)
+    log_reference = float(np.mean(log_radius))
+    line = fit_line(log_radius - log_reference, log_force, sigma)
 
     def parameters(about: tuple[float, float]) -> FloatArray:
-        fitted = _line_about(path, about, used)[1]
+        x, y, e = _relation(path, about, used)
+        fitted = fit_line(x - log_reference, y, e)
         return np.array([fitted.slope, fitted.intercept])
 
     covariance = line.covariance + centre_covariance(parameters, path)
-    exponent, log_ratio = line.slope, line.intercept
-    exponent_se = math.sqrt(covariance[0, 0])
-    ratio = math.exp(log_ratio)
-    ratio_se = ratio * math.sqrt(covariance[1, 1])
+    exponent = line.slope
+    # k = F(r_ref) r_ref**-n: log k = intercept - n log r_ref.
+    gradient = np.array([-log_reference, 1.0])
+    log_k_se = math.sqrt(float(gradient @ covariance @ gradient))
+    level = math.exp(line.intercept - exponent * log_reference)
     h, h_se, drift = angular_momentum(path)
-    strength = ratio * h**2
-    strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
+    if track.has_times:
+        strength, strength_se = level, level * log_k_se
+        ratio = strength / h**2
+        ratio_se = ratio * math.hypot(log_k_se, 2 * h_se / h)
+        force, force_se = math.exp(line.intercept), math.exp(line.intercept) * math.sqrt(covariance[1, 1])
+    else:
+        ratio, ratio_se = level, level * log_k_se
+        strength = strength_se = force = force_se = math.nan
     diagnostics = {
-        "power law": bend_diagnostic(points.log_radius, points.log_force_per_h2, points.sigma),
+        "power law": bend_diagnostic(log_radius, log_force, sigma),
         "radial range": leverage_diagnostic(path.radius[used]),
         "angular momentum": constancy_diagnostic(drift),
         "points used": Diagnostic(None, f"{int(used.sum())} of {track.n_points} bend "
@@ -136,11 +164,14 @@ def _fit_about(track: Track, path: PathGeometry) -> LawFit:
                                       f"{path.smoothing.span:.3g} {_parameter_unit(track)} of the path."),
     }
     return LawFit(
-        exponent=exponent, exponent_stderr=exponent_se, strength=strength,
+        exponent=exponent, exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
         strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
         centre=path.centre, centre_stderr=path.centre_stderr, method="curvature",
+        reference_radius=math.exp(log_reference), force_at_reference=force,
+        force_at_reference_stderr=force_se,
         n_points=int(used.sum()), chi2=line.chi2, reduced_chi2=line.reduced_chi2,
-        parameter_names=("exponent", "log_strength_per_h2"), covariance=covariance,
+        parameter_names=("exponent", "log_force_at_reference" if track.has_times
+                         else "log_force_per_h2_at_reference"), covariance=covariance,
         residuals=line.residuals, length_unit=track.length_unit,
         time_unit=track.time_unit if track.has_times else None, diagnostics=diagnostics,
         details={"angular_momentum": h, "angular_momentum_stderr": h_se,

@@ -258,6 +258,12 @@ def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit
     h, h_se, drift = angular_momentum(path)
     strength = ratio * h**2
     strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
+    log_reference = float(np.mean(np.log(path.radius)))
+    gradient = np.zeros(n_params)
+    gradient[:2] = (log_reference, 1.0)            # log F/h^2 (r_ref) = log(k/h^2) + n log r_ref
+    per_h2_se = math.sqrt(float(gradient @ covariance @ gradient))
+    force = math.exp(log_ratio + exponent * log_reference) * h**2
+    force_se = force * math.hypot(per_h2_se, 2 * h_se / h) if math.isfinite(h) else math.nan
     residuals = result.fun[: track.n_points]
     diagnostics = {
         "residuals": runs_diagnostic(residuals),
@@ -276,6 +282,8 @@ def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit
         exponent=float(exponent), exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
         strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
         centre=centre, centre_stderr=centre_se, method="shape", n_points=track.n_points,
+        reference_radius=math.exp(log_reference), force_at_reference=force,
+        force_at_reference_stderr=force_se,
         chi2=chi2, reduced_chi2=reduced,
         parameter_names=names + (("centre_x", "centre_y") if free_centre else ()),
         covariance=covariance, residuals=residuals, length_unit=track.length_unit,
