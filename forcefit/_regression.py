@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.fft import irfft, next_fast_len, rfft
 
 from ._types import FloatArray
 
@@ -26,8 +27,9 @@ def autocorrelation_time(residuals: FloatArray) -> float:
     n = centred.size
     if n < 4 or not np.any(centred):
         return 1.0
-    spectrum = np.fft.rfft(centred, 2 * n)
-    correlation = np.fft.irfft(spectrum * np.conj(spectrum))[:n]
+    size = next_fast_len(2 * n, real=True)
+    spectrum = rfft(centred, size)
+    correlation = irfft(spectrum * np.conj(spectrum), size)[:n]
     correlation /= correlation[0]
     positive = np.flatnonzero(correlation[1:] <= 0.0)
     stop = int(positive[0]) + 1 if positive.size else n

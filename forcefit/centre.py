@@ -25,7 +25,6 @@ from .curves import (
     interior,
     is_straight,
     polar_about,
-    turning_sense,
 )
 from .errors import NotIdentifiable
 from .pspline import SmoothedCurve

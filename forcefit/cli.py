@@ -147,15 +147,11 @@ def _calibration(args: argparse.Namespace) -> Calibration | None:
 def read_tracks(path: str, args: argparse.Namespace) -> list[Track]:
     """Load the tracks of one file with the reading and calibration options."""
     sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
-    tracks = load_tracks(
+    return load_tracks(
         path, **dict(args.column), length_unit=args.length_unit, time_unit=args.time_unit,
         frame_rate=args.frame_rate, calibration=_calibration(args), sheet=sheet,
+        track_id=args.track_id,
     )
-    if args.track_id is not None:
-        tracks = [t for t in tracks if t.name.endswith(f"[{args.track_id}]")]
-        if not tracks:
-            raise InputError(f"{path}: no track with id {args.track_id!r}.")
-    return tracks
 
 
 def _cmd_inspect(args: argparse.Namespace) -> int:

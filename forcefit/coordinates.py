@@ -52,8 +52,17 @@ class Calibration:
             raise InputError(
                 f"calibration scale {self.scale!r} must be a positive length per pixel."
             )
-        object.__setattr__(self, "unit", parse_length_unit(self.unit))
-        object.__setattr__(self, "origin", (float(self.origin[0]), float(self.origin[1])))
+        unit = parse_length_unit(self.unit)
+        if unit == "px":
+            raise InputError("a calibration turns pixels into a length: give its unit as m, mm, "
+                             "cm or another length, not px.")
+        origin = tuple(self.origin)
+        if len(origin) != 2 or not all(math.isfinite(float(v)) for v in origin):
+            raise InputError(f"calibration origin {self.origin!r} must be two finite numbers (x, y).")
+        if not math.isfinite(self.rotation):
+            raise InputError(f"calibration rotation {self.rotation!r} must be a finite angle in degrees.")
+        object.__setattr__(self, "unit", unit)
+        object.__setattr__(self, "origin", (float(origin[0]), float(origin[1])))
 
     @classmethod
     def from_marks(

@@ -130,7 +130,8 @@ def describe_path(
     --------
     >>> t = np.linspace(0.0, 4 * np.pi, 801)                  # an ellipse about its centre
     >>> path = describe_path(Track(t=t, x=3 * np.cos(t), y=np.sin(t)), centre=(0.0, 0.0))
-    >>> bool(np.allclose(path.curvature[100:-100], 3.0 / (9 * np.sin(t) ** 2 + np.cos(t) ** 2)[100:-100] ** 1.5, rtol=1e-6))
+    >>> exact = 3.0 / (9 * np.sin(t) ** 2 + np.cos(t) ** 2) ** 1.5
+    >>> bool(np.allclose(path.curvature[100:-100], exact[100:-100], rtol=1e-6))
     True
     """
     curve = curve if curve is not None else smooth_track(track, smoothing=smoothing, level=level)

@@ -7,9 +7,8 @@ spreadsheet shows it), the column, what was found and what to do.
 from __future__ import annotations
 
 import os
-import re
 import warnings
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, TypeAlias
@@ -18,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from ._atomic import write_atomic
+from ._columns import DAY_COLUMNS, NUMERIC_ROLES, Column, map_columns, normalise, numbers, track_ids
 from ._tables import RawTable, read_table
 from ._types import FloatArray
 from .coordinates import Calibration, project_to_plane
@@ -28,120 +28,7 @@ from .units import PIXEL, length_factor, parse_length_unit, parse_time_unit
 
 Source: TypeAlias = str | os.PathLike[str] | pd.DataFrame
 
-ROLE_ALIASES: Mapping[str, tuple[str, ...]] = {
-    "t": ("t", "time", "times", "timestamp", "time_stamp", "epoch", "jd", "mjd"),
-    "frame": ("frame", "frames", "frame_number", "frame_no", "frame_index", "frame_nr"),
-    "x": ("x", "xpos", "x_pos", "pos_x", "position_x", "x_position"),
-    "y": ("y", "ypos", "y_pos", "pos_y", "position_y", "y_position"),
-    "z": ("z", "zpos", "z_pos", "pos_z", "position_z", "z_position"),
-    "sigma": ("sigma", "sigma_xy", "sigma_pos", "err", "error", "pos_err", "position_error",
-              "uncertainty", "std", "sd", "stderr"),
-    "id": ("id", "run", "run_id", "track", "track_id", "object", "body", "trajectory"),
-}
-"""Header names (case-insensitive, spaces as underscores) recognised for each role."""
-
-_ALIAS_ROLE = {alias: role for role, aliases in ROLE_ALIASES.items() for alias in aliases}
-_UNIT_IN_HEADER = re.compile(r"^(?P<name>.*?)\s*[\[(](?P<unit>[^\])]*)[\])]\s*$")
-_DAY_COLUMNS = frozenset({"jd", "mjd"})
-_MISSING = frozenset({"", "nan", "-nan"})
-_NUMERIC_ROLES = ("t", "frame", "x", "y", "z", "sigma")
-
-
-@dataclass(frozen=True)
-class _Column:
-    """A column of the source chosen for a role, with the unit its header states."""
-
-    header: str
-    role: str
-    unit: str | None
-
-
-def _normalise(name: str) -> str:
-    return re.sub(r"[\s\-]+", "_", name.strip().strip("\"'").lower())
-
-
-def _classify(header: str) -> _Column | None:
-    """Role and unit of a header cell such as ``x [px]``, ``t (ms)`` or ``x_mm``."""
-    match = _UNIT_IN_HEADER.match(header)
-    name, unit = (match["name"], match["unit"].strip() or None) if match else (header, None)
-    key = _normalise(name)
-    if key in _ALIAS_ROLE:
-        return _Column(header, _ALIAS_ROLE[key], unit)
-    if "_" in key and unit is None:
-        base, suffix = key.rsplit("_", 1)
-        role = _ALIAS_ROLE.get(base)
-        if role is not None and _is_unit_for(role, suffix):
-            return _Column(header, role, suffix)
-    return None
-
-
-def _is_unit_for(role: str, text: str) -> bool:
-    parse = parse_time_unit if role == "t" else parse_length_unit
-    if role in ("id", "frame"):
-        return False
-    try:
-        parse(text)
-    except InputError:
-        return False
-    return True
-
-
-def _map_columns(table: RawTable, explicit: Mapping[str, str | None]) -> dict[str, _Column]:
-    """Choose the column for each role: explicit names first, then detected headers."""
-    headers = [str(column) for column in table.frame.columns]
-    chosen: dict[str, _Column] = {}
-    for role, wanted in explicit.items():
-        if wanted is None:
-            continue
-        matches = [h for h in headers if h.strip().lower() == wanted.strip().lower()]
-        if not matches:
-            raise InputError(
-                f'{table.source}: no column named "{wanted}" (asked for as {role}); '
-                f"the columns are: {', '.join(headers)}."
-            )
-        detected = _classify(matches[0])
-        chosen[role] = _Column(matches[0], role, detected.unit if detected else None)
-    taken = {column.header for column in chosen.values()}
-    for header in headers:
-        column = _classify(header)
-        if column is None or header in taken or explicit.get(column.role) is not None:
-            continue
-        if column.role in chosen:
-            raise InputError(
-                f'{table.source}: columns "{chosen[column.role].header}" and "{header}" both '
-                f"look like {column.role}. Name the one to use (e.g. {column.role}=\"{header}\")."
-            )
-        chosen[column.role] = column
-    for role in ("x", "y"):
-        if role not in chosen:
-            raise InputError(
-                f"{table.source}: found no {role} column among: {', '.join(headers)}. "
-                f'Name it (e.g. {role}="{headers[0]}") or write a header such as "{role} [px]".'
-            )
-    return chosen
-
-
-def _numbers(table: RawTable, column: _Column) -> tuple[FloatArray, np.ndarray]:
-    """Values of a column as floats, and a mask of the empty (dropped-frame) cells."""
-    cells = table.frame[column.header]
-    if pd.api.types.is_numeric_dtype(cells) and not pd.api.types.is_bool_dtype(cells):
-        values = cells.to_numpy(dtype=np.float64, na_value=np.nan)
-        return values, np.isnan(values)
-    text = cells.astype(object).where(cells.notna(), "").astype(str).str.strip()
-    missing = text.str.lower().isin(_MISSING).to_numpy()
-    values = pd.to_numeric(text.where(~missing, "nan"), errors="coerce").to_numpy(np.float64)
-    bad = np.isnan(values) & ~missing
-    if bad.any():
-        index = int(np.argmax(bad))
-        raise InputError(
-            f'{table.source}, {table.row_word} {table.rows[index]}, column "{column.header}": '
-            f'found "{text.iloc[index]}", expected a number. Fill the value in or delete the '
-            f"{table.row_word}."
-        )
-    return values, missing
-
-
-def _refuse_bad_values(table: RawTable, column: _Column, values: FloatArray, rows: np.ndarray) -> None:
+def _refuse_bad_values(table: RawTable, column: Column, values: FloatArray, rows: np.ndarray) -> None:
     bad = ~np.isfinite(values) | (np.abs(values) > ABSURD)
     if bad.any():
         index = int(np.argmax(bad))
@@ -163,10 +50,21 @@ class _Options:
     name: str | None
 
 
-def _units(table: RawTable, chosen: Mapping[str, _Column], options: _Options) -> dict[str, str]:
+def _unit_of(table: RawTable, column: Column, parse: Callable[[str], str]) -> str:
+    """The unit a header states, or an `InputError` naming the file and column."""
+    try:
+        return parse(column.unit or "")
+    except InputError as exc:
+        raise InputError(f'{table.source}, column "{column.header}": {exc}') from None
+
+
+def _units(
+    table: RawTable, chosen: Mapping[str, Column], options: _Options, notes: list[str]
+) -> dict[str, str]:
     """Length and time units with where each came from ("given", "header", "default")."""
     header_units = {
-        parse_length_unit(chosen[r].unit or "") for r in ("x", "y", "z") if r in chosen and chosen[r].unit
+        _unit_of(table, chosen[r], parse_length_unit) for r in ("x", "y", "z")
+        if r in chosen and chosen[r].unit
     }
     if len(header_units) > 1:
         raise InputError(
@@ -175,6 +73,8 @@ def _units(table: RawTable, chosen: Mapping[str, _Column], options: _Options) ->
         )
     if options.length_unit is not None:
         length, length_from = parse_length_unit(options.length_unit), "given"
+        if header_units and length not in header_units:
+            notes.append(f"the header says {header_units.pop()} but {length} was given; using {length}.")
     elif header_units:
         length, length_from = header_units.pop(), "header"
     else:
@@ -185,8 +85,8 @@ def _units(table: RawTable, chosen: Mapping[str, _Column], options: _Options) ->
     elif options.time_unit is not None:
         time, time_from = parse_time_unit(options.time_unit), "given"
     elif time_column is not None and time_column.unit:
-        time, time_from = parse_time_unit(time_column.unit), "header"
-    elif time_column is not None and _normalise(time_column.header) in _DAY_COLUMNS:
+        time, time_from = _unit_of(table, time_column, parse_time_unit), "header"
+    elif time_column is not None and normalise(time_column.header) in DAY_COLUMNS:
         time, time_from = "d", "header"
     else:
         time, time_from = "s", "default"
@@ -194,7 +94,7 @@ def _units(table: RawTable, chosen: Mapping[str, _Column], options: _Options) ->
 
 
 def _times(
-    table: RawTable, chosen: Mapping[str, _Column], values: Mapping[str, FloatArray],
+    table: RawTable, chosen: Mapping[str, Column], values: Mapping[str, FloatArray],
     options: _Options,
 ) -> FloatArray | None:
     """Timestamps from the time column, or frame numbers over the frame rate, or None."""
@@ -259,19 +159,22 @@ def _to_plane(
         "first_axis": plane.first_axis.tolist(),
         "second_axis": plane.second_axis.tolist(),
         "out_of_plane_rms": rms,
+        "offset_from_origin": float(abs(plane.centroid @ plane.normal)),
     }
     return plane.u, plane.v, info
 
 
 def _make_track(
-    table: RawTable, chosen: Mapping[str, _Column], values: Mapping[str, FloatArray],
+    table: RawTable, chosen: Mapping[str, Column], values: Mapping[str, FloatArray],
     rows: np.ndarray, units: Mapping[str, str], options: _Options, label: str,
+    notes: list[str], emptiest: str,
 ) -> Track:
     source = table.source
     if rows.size < MIN_POINTS:
         raise InputError(
-            f"{source}{label}: {rows.size} usable {table.row_word}s, at least {MIN_POINTS} are "
-            "needed (rows with empty cells are dropped). Record a longer stretch of the path."
+            f"{source}{label}: {rows.size} usable {_plural(rows.size, table.row_word)}, at least "
+            f"{MIN_POINTS} are needed (rows with empty cells are dropped{emptiest}). Record a "
+            "longer stretch of the path, or fill the empty cells."
         )
     t = _times(table, chosen, values, options)
     if t is not None:
@@ -286,15 +189,18 @@ def _make_track(
                 f"found {float(sigma[index])!r}, expected a positive standard error. Correct it or "
                 "leave the sigma column out."
             )
-        sigma_unit = chosen["sigma"].unit
-        if sigma_unit and options.length_unit is None:
-            sigma = sigma * length_factor(sigma_unit, units["length"])
+        if chosen["sigma"].unit:
+            unit = _unit_of(table, chosen["sigma"], parse_length_unit)
+            try:
+                sigma = sigma * length_factor(unit, units["length"])
+            except InputError as exc:
+                raise InputError(f'{source}, column "{chosen["sigma"].header}": {exc}') from None
     if np.ptp(x) == 0 and np.ptp(y) == 0 and ("z" not in values or np.ptp(values["z"]) == 0):
         raise InputError(
             f"{source}{label}: all {x.size} positions are the same; the body never moved. "
             "Check that the tracker followed the body."
         )
-    notes: list[str] = []
+    notes = list(notes)
     metadata: dict[str, Any] = {}
     length_unit = units["length"]
     if "z" in values:
@@ -315,6 +221,9 @@ def _make_track(
         notes.append("no length unit in the header or the options; assuming m.")
     if t is not None and units["time_from"] == "default":
         notes.append("no time unit in the header or the options; assuming s.")
+    if not table.has_header:
+        notes.append("no header: the columns were read by position as "
+                     f"{', '.join(str(c) for c in table.frame.columns)}.")
     for note in notes:
         warnings.warn(f"{source}{label}: {note}", ForcefitWarning, stacklevel=4)
     metadata.update(
@@ -350,6 +259,7 @@ def load_tracks(
     calibration: Calibration | None = None,
     name: str | None = None,
     sheet: str | int = 0,
+    track_id: str | None = None,
 ) -> list[Track]:
     """Read every track in a file or DataFrame (one per value of the id column).
 
@@ -370,6 +280,8 @@ def load_tracks(
         Name of the track(s); default the file name without its ending.
     sheet : str or int
         Excel sheet.
+    track_id : str, optional
+        Read only the track with this id.
 
     Returns
     -------
@@ -386,60 +298,57 @@ def load_tracks(
     """
     table = read_table(source, sheet=sheet)
     explicit = {"t": t, "x": x, "y": y, "z": z, "sigma": sigma, "frame": frame, "id": id}
-    chosen = _map_columns(table, explicit)
+    chosen = map_columns(table, explicit)
     options = _Options(
         length_unit=length_unit, time_unit=time_unit, frame_rate=frame_rate,
         calibration=calibration, name=name,
     )
-    units = _units(table, chosen, options)
-    numeric = {role: _numbers(table, chosen[role]) for role in _NUMERIC_ROLES if role in chosen}
+    notes: list[str] = []
+    units = _units(table, chosen, options, notes)
+    used = [role for role in NUMERIC_ROLES if role in chosen and _is_used(role, chosen, options)]
+    numeric = {role: numbers(table, chosen[role]) for role in used}
     missing = np.zeros(len(table.frame), dtype=bool)
     for _, empty in numeric.values():
         missing |= empty
-    keep = ~missing
-    rows = table.rows[keep]
-    values = {role: array[keep] for role, (array, _) in numeric.items()}
-    for role, array in values.items():
-        _refuse_bad_values(table, chosen[role], array, rows)
-    groups = _groups(table, chosen, keep)
+    emptiest = ""
+    if numeric:
+        role = max(numeric, key=lambda r: int(numeric[r][1].sum()))
+        if numeric[role][1].any():
+            emptiest = f'; column "{chosen[role].header}" has {int(numeric[role][1].sum())} empty cells'
+    ids = track_ids(table, chosen["id"]) if "id" in chosen else np.full(len(table.frame), "")
+    wanted = [value for value in pd.unique(ids) if track_id is None or value == str(track_id)]
+    if not wanted:
+        raise InputError(f"{table.source}: no track with id {track_id!r}; the ids are: "
+                         f"{', '.join(map(str, pd.unique(ids)))}.")
     tracks = []
-    for label, members in groups:
-        track = _make_track(
-            table, chosen, {role: array[members] for role, array in values.items()},
-            rows[members], units, options, label,
-        )
-        dropped = table.rows[missing & _group_mask(table, chosen, label)]
+    for value in wanted:
+        member = (ids == value) & ~missing
+        rows = table.rows[member]
+        values = {role: array[member] for role, (array, _) in numeric.items()}
+        for role, array in values.items():
+            _refuse_bad_values(table, chosen[role], array, rows)
+        label = f"[{value}]" if "id" in chosen else ""
+        track = _make_track(table, chosen, values, rows, units, options, label, notes, emptiest)
+        dropped = table.rows[(ids == value) & missing]
         tracks.append(track.with_metadata(
-            n_rows_read=int(members.sum() + dropped.size),
+            n_rows_read=int(member.sum() + dropped.size),
             dropped_rows=int(dropped.size),
             dropped_row_numbers=dropped[:50].tolist(),
         ))
     return tracks
 
 
-def _group_ids(table: RawTable, chosen: Mapping[str, _Column]) -> pd.Series | None:
-    if "id" not in chosen:
-        return None
-    cells = table.frame[chosen["id"].header]
-    return cells.astype(object).where(cells.notna(), "").astype(str).str.strip()
+def _is_used(role: str, chosen: Mapping[str, Column], options: _Options) -> bool:
+    """Whether a detected column is read at all (a frame column only stands in for times)."""
+    if role == "frame":
+        return options.frame_rate is not None or "t" not in chosen
+    if role == "t":
+        return options.frame_rate is None
+    return True
 
 
-def _groups(
-    table: RawTable, chosen: Mapping[str, _Column], keep: np.ndarray
-) -> list[tuple[str, np.ndarray]]:
-    """(label, mask over the kept rows) for each id, in order of first appearance."""
-    ids = _group_ids(table, chosen)
-    if ids is None:
-        return [("", np.ones(int(keep.sum()), dtype=bool))]
-    kept = ids.to_numpy()[keep]
-    return [(f"[{value}]", kept == value) for value in pd.unique(kept)]
-
-
-def _group_mask(table: RawTable, chosen: Mapping[str, _Column], label: str) -> np.ndarray:
-    ids = _group_ids(table, chosen)
-    if ids is None:
-        return np.ones(len(table.frame), dtype=bool)
-    return ids.to_numpy() == label[1:-1]
+def _plural(count: int, word: str) -> str:
+    return word if count == 1 else f"{word}s"
 
 
 def load_track(source: Source, *, track_id: str | None = None, **options: Any) -> Track:
@@ -456,13 +365,7 @@ def load_track(source: Source, *, track_id: str | None = None, **options: Any) -
     >>> track.time_unit, track.length_unit, track.n_points
     ('ms', 'px', 4)
     """
-    tracks = load_tracks(source, **options)
-    if track_id is not None:
-        picked = [track for track in tracks if track.name.endswith(f"[{track_id}]")]
-        if not picked:
-            names = ", ".join(track.name for track in tracks)
-            raise InputError(f"no track with id {track_id!r}; the tracks are: {names}.")
-        return picked[0]
+    tracks = load_tracks(source, track_id=track_id, **options)
     if len(tracks) > 1:
         names = ", ".join(track.name for track in tracks)
         raise InputError(

@@ -350,6 +350,7 @@ def smooth_curve(
     sigma: FloatArray | None = None,
     level: float | None = None,
     penalty_weight: PenaltyWeight | None = None,
+    with_errors: bool = True,
 ) -> SmoothedCurve:
     """Smooth a noisy plane curve and differentiate it, with pointwise standard errors.
 
@@ -367,6 +368,9 @@ def smooth_curve(
     penalty_weight : callable, optional
         Relative weight of the roughness penalty along the parameter (default 1):
         smooth harder where it is larger.
+    with_errors : bool
+        Compute the standard errors (and degrees of freedom); False leaves them nan,
+        for a quick pilot.
 
     Returns
     -------
@@ -406,11 +410,19 @@ def smooth_curve(
             "the smoothing problem is singular: too few samples along part of the path."
         ) from None
     coefficients = linalg.cho_solve_banded((upper, False), _right_side(basis, weight, data))
+    value = _evaluate(basis, coefficients, 0)
+    first, second = _evaluate(basis, coefficients, 1), _evaluate(basis, coefficients, 2)
+    if not with_errors:
+        unknown = np.full_like(value, np.nan)
+        return SmoothedCurve(
+            parameter=parameter, value=value, first=first, second=second, value_var=unknown,
+            first_var=unknown, second_var=unknown, first_second_cov=unknown,
+            noise=np.full(n_points, np.nan), level=float(level), knot_spacing=spacing,
+            dof=math.nan, span=math.nan, method=method)
     inverse = _selected_inverse(upper)
     dof = float(np.sum(inverse[:, 0] * normal[DEGREE]) + 2.0 * sum(
         np.sum(inverse[: basis.n_basis - o, o] * normal[DEGREE - o, o:]) for o in range(1, DEGREE + 1)
     ))
-    value = _evaluate(basis, coefficients, 0)
     if sigma is None:
         rss = float(np.sum((data - value) ** 2))
         noise_var = rss / max(2.0 * (n_points - dof), 1.0)
@@ -422,8 +434,8 @@ def smooth_curve(
     return SmoothedCurve(
         parameter=parameter,
         value=value,
-        first=_evaluate(basis, coefficients, 1),
-        second=_evaluate(basis, coefficients, 2),
+        first=first,
+        second=second,
         value_var=np.repeat(variance[0, 0][:, None], 2, axis=1),
         first_var=np.repeat(variance[1, 1][:, None], 2, axis=1),
         second_var=np.repeat(variance[2, 2][:, None], 2, axis=1),

@@ -33,8 +33,22 @@ def _arc_length(track: Track, level: float | None) -> FloatArray:
     whose chord length is the arc length.
     """
     index = np.arange(track.n_points, dtype=float)
-    pilot = smooth_curve(index, track.x, track.y, sigma=track.sigma, level=level)
-    return chord_length(pilot.value[:, 0], pilot.value[:, 1])
+    pilot = _pilot(index, track, level)
+    arc = chord_length(pilot.value[:, 0], pilot.value[:, 1])
+    return np.interp(index, pilot.parameter, arc)
+
+
+PILOT_POINTS = 20_000
+"""Most samples a pilot smoothing uses (every m-th sample of a longer track)."""
+
+
+def _pilot(parameter: FloatArray, track: Track, level: float | None) -> SmoothedCurve:
+    """A quick smoothing of every m-th sample, enough to read the speed or the arc length."""
+    step = max(1, math.ceil(track.n_points / PILOT_POINTS))
+    picked = slice(0, None, step)
+    sigma = None if track.sigma is None else track.sigma[picked]
+    return smooth_curve(parameter[picked], track.x[picked], track.y[picked], sigma=sigma,
+                        level=level, with_errors=False)
 
 
 def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
@@ -94,12 +108,12 @@ def smooth_track(
     if track.t is None:
         return smooth_curve(_arc_length(track, level), track.x, track.y, sigma=track.sigma, level=level)
     parameter = np.asarray(track.t, dtype=float)
-    pilot = smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level)
+    pilot = _pilot(parameter, track, level)
     return smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level,
-                        penalty_weight=_arc_length_weight(parameter, pilot))
+                        penalty_weight=_arc_length_weight(pilot))
 
 
-def _arc_length_weight(time: FloatArray, pilot: SmoothedCurve) -> PenaltyWeight:
+def _arc_length_weight(pilot: SmoothedCurve) -> PenaltyWeight:
     """Penalty weight (v / median v)**-5 that makes smoothing in time act like smoothing
     in arc length.
 
@@ -112,6 +126,6 @@ def _arc_length_weight(time: FloatArray, pilot: SmoothedCurve) -> PenaltyWeight:
     relative = np.clip(speed / np.median(speed), 1e-2, 1e2) ** (-5.0)
 
     def weight(where: FloatArray) -> FloatArray:
-        return np.interp(where, time, relative)
+        return np.interp(where, pilot.parameter, relative)
 
     return weight

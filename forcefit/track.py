@@ -129,8 +129,11 @@ class Track:
     def _checked_sigma(self, where: str) -> FloatArray | None:
         if self.sigma is None:
             return None
-        sigma = np.broadcast_to(np.asarray(self.sigma, dtype=np.float64), self.x.shape)
-        sigma = _as_vector(sigma, "sigma", where)
+        given = np.asarray(self.sigma, dtype=np.float64)
+        if given.ndim > 1 or given.size not in (1, self.x.size):
+            raise InputError(f"{where}: sigma has {given.size} values but x has {self.x.size}; "
+                             "give one sigma per point, or a single value for all.")
+        sigma = _as_vector(np.broadcast_to(given, self.x.shape), "sigma", where)
         _check_values(sigma, "sigma", where)
         if (sigma <= 0).any():
             index = int(np.argmax(sigma <= 0))

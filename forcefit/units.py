@@ -30,7 +30,7 @@ def _lookup(name: str, dimension: str) -> pint.Unit | None:
     for candidate in (name, name.lower()):
         try:
             unit = ureg.Unit(candidate)
-        except (pint.errors.UndefinedUnitError, AttributeError, ValueError, TypeError):
+        except Exception:  # pint raises many types (even AssertionError, TokenError) on odd text
             continue
         if unit.dimensionality == ureg.get_dimensionality(dimension):
             return unit
@@ -56,6 +56,8 @@ def parse_length_unit(name: str) -> str:
     >>> parse_length_unit("Pixels"), parse_length_unit("AU"), parse_length_unit("millimetre")
     ('px', 'au', 'mm')
     """
+    if not isinstance(name, str):
+        raise InputError(f"length unit {name!r} must be text such as m, mm, au or px.")
     text = name.strip()
     if text.lower() in _PIXEL_NAMES:
         return PIXEL
@@ -76,6 +78,8 @@ def parse_time_unit(name: str) -> str:
     >>> parse_time_unit("seconds"), parse_time_unit("ms"), parse_time_unit("days")
     ('s', 'ms', 'd')
     """
+    if not isinstance(name, str):
+        raise InputError(f"time unit {name!r} must be text such as s, ms or d.")
     text = name.strip()
     unit = _lookup(text, "[time]")
     if unit is None:

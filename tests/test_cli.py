@@ -78,3 +78,29 @@ def test_demo_inspects_every_bundled_run(capsys):
     for name in ("stairwell_pendulum", "airtable_puck", "comet_heliocentric", "run_01", "run_11"):
         assert name in out
     assert "run_12.csv: refused" in out and "row 904" in out
+
+
+def test_fit_prints_a_table_with_units(capsys):
+    path = DEMO / "class_pendulum" / "run_01.csv"
+    status = main(["fit", str(path), "--method", "curvature", "--profile", "5"])
+    out = capsys.readouterr().out
+    assert status in (0, 1)
+    assert "exponent n" in out and "px" in out and "s^-2" in out and "force profile" in out
+
+
+def test_fit_json_of_the_comet_with_the_sun_as_centre(capsys):
+    # The demo comet was simulated with n = -2 and k = 0.01720209895^2 au^3/d^2 (Gauss 1809).
+    assert main(["fit", str(DEMO / "comet_heliocentric.csv"), "--centre", "0,0", "--json"]) == 0
+    (report,) = json.loads(capsys.readouterr().out)
+    assert report["method"] == "shape" and report["strength_unit"] == "au^3 d^-2"
+    assert report["exponent"] == pytest.approx(-2.0, abs=5 * report["exponent_stderr"])
+    assert report["strength"] == pytest.approx(0.01720209895**2, rel=1e-4)
+
+
+def test_fit_of_a_circle_exits_2_with_the_reason(tmp_path, capsys):
+    t = np.linspace(0.0, 10.0, 300)
+    path = tmp_path / "circle.csv"
+    path.write_text("t [s],x [m],y [m]\n" + "\n".join(
+        f"{a},{np.cos(a)},{np.sin(a)}" for a in t))
+    assert main(["fit", str(path), "--centre", "0,0"]) == 2
+    assert "circular orbit exists for every exponent" in capsys.readouterr().err

@@ -9,8 +9,8 @@ import numpy as np
 
 from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
-from ..errors import NotIdentifiable
 from ..curves import is_straight
+from ..errors import NotIdentifiable
 from ..geometry import PathGeometry
 from ..result import Diagnostic
 

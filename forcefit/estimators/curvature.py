@@ -20,8 +20,8 @@ import numpy as np
 from .._regression import fit_line
 from .._types import FloatArray
 from ..curves import attractive_points, curvature_relation
-from ..geometry import PathGeometry, describe_path
 from ..errors import NotIdentifiable
+from ..geometry import PathGeometry, describe_path
 from ..result import Diagnostic, LawFit
 from ..smoothing import Smoothing
 from ..track import Track
@@ -33,7 +33,6 @@ from ._common import (
     leverage_diagnostic,
     require_orbit,
 )
-
 
 MIN_USED = 10
 """Fewest significantly bending points the regression needs."""
@@ -56,8 +55,10 @@ def _relation(
         offset = curve.value[used] - np.asarray(centre)
         velocity = curve.first[used]
         h = np.abs(offset[:, 0] * velocity[:, 1] - offset[:, 1] * velocity[:, 0])
-        h_var = (offset[:, 0] ** 2 * curve.first_var[used, 1] + offset[:, 1] ** 2 * curve.first_var[used, 0]
-                 + velocity[:, 1] ** 2 * curve.value_var[used, 0] + velocity[:, 0] ** 2 * curve.value_var[used, 1])
+        h_var = (offset[:, 0] ** 2 * curve.first_var[used, 1]
+                 + offset[:, 1] ** 2 * curve.first_var[used, 0]
+                 + velocity[:, 1] ** 2 * curve.value_var[used, 0]
+                 + velocity[:, 0] ** 2 * curve.value_var[used, 1])
         y = y + 2.0 * np.log(h)
         variance = variance + 4.0 * h_var / h**2
     return points.log_radius, y, np.sqrt(variance)
@@ -110,7 +111,8 @@ def fit_curvature(
         _fit_about(track, describe_path(track, centre=other.centre, curve=path.smoothing))
         for other in estimate.alternatives
     )
-    return replace(fit, alternatives=others, diagnostics={**fit.diagnostics, "centre": _ambiguity(fit, others)})
+    checks = {**fit.diagnostics, "centre": _ambiguity(fit, others)}
+    return replace(fit, alternatives=others, diagnostics=checks)
 
 
 def _ambiguity(fit: LawFit, others: tuple[LawFit, ...]) -> Diagnostic:

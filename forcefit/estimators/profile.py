@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from .._regression import autocorrelation_time
-from ..curves import attractive_points, curvature_relation, turning_sense
+from ..curves import attractive_points, curvature_relation
 from ..errors import NotIdentifiable
 from ..geometry import PathGeometry, describe_path
 from ..smoothing import Smoothing

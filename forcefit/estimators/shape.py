@@ -269,8 +269,8 @@ def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit
         "residuals": runs_diagnostic(residuals),
         "angular momentum": constancy_diagnostic(drift),
         "noise": Diagnostic(None, "sigma as given" if track.sigma is not None else
-                            f"sigma estimated from the residuals: {math.sqrt(reduced) * float(np.median(sigma)):.3g} "
-                            f"{track.length_unit}"),
+                            "sigma estimated from the residuals: "
+                            f"{math.sqrt(reduced) * float(np.median(sigma)):.3g} {track.length_unit}"),
     }
     if track.sigma is not None:
         diagnostics["chi-square"] = _chi2_diagnostic(reduced, track.n_points - n_params)
