@@ -1,5 +1,6 @@
 """forcefit: infer the central force law F(r) = -k r**n r_hat behind a planar trajectory."""
 
+from .centre import CentreEstimate, find_centre
 from .coordinates import Calibration, PlaneProjection, project_to_plane
 from .errors import (
     FitError,
@@ -9,6 +10,8 @@ from .errors import (
     InputError,
     NotIdentifiable,
 )
+from .estimators import ForceProfile, fit_acceleration, fit_curvature, fit_shape, force_profile
+from .geometry import PathGeometry, describe_path
 from .inspection import TrackSummary, inspect_track
 from .laws import (
     angular_momentum,
@@ -20,6 +23,7 @@ from .laws import (
 )
 from .loaders import load_track, load_tracks, save_track
 from .propagate import Drag, States, propagate_reference
+from .result import Diagnostic, LawFit
 from .simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
 from .track import Track
 from .units import length_factor, parse_length_unit, parse_time_unit, strength_unit, time_factor
@@ -28,13 +32,18 @@ __version__ = "0.1.0"
 
 __all__ = [
     "Calibration",
+    "CentreEstimate",
+    "Diagnostic",
     "Drag",
     "FitError",
+    "ForceProfile",
     "ForcefitError",
     "ForcefitWarning",
     "GeometryError",
     "InputError",
+    "LawFit",
     "NotIdentifiable",
+    "PathGeometry",
     "PlaneProjection",
     "States",
     "Track",
@@ -43,6 +52,12 @@ __all__ = [
     "angular_momentum",
     "circular_period",
     "circular_speed",
+    "describe_path",
+    "find_centre",
+    "fit_acceleration",
+    "fit_curvature",
+    "fit_shape",
+    "force_profile",
     "inspect_track",
     "length_factor",
     "load_track",
