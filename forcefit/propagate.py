@@ -173,3 +173,98 @@ def propagate_reference(
     forward = _leg(state, t0, times[~before], exponent, strength, drag, rtol)
     solution = np.concatenate((backward, forward), axis=1)
     return States(position=solution[:2].T.copy(), velocity=solution[2:].T.copy())
+
+
+BATCH_RTOL = 1e-12
+"""Relative tolerance of the batch propagator."""
+
+
+class BatchStates(NamedTuple):
+    """States of a batch of orbits at shared times.
+
+    position, velocity : ndarray, shape (n_orbits, n_times, 2)
+        nan for an orbit that could not be integrated.
+    ok : ndarray of bool, shape (n_orbits,)
+        False where integration failed (the orbit fell into the centre, say).
+    """
+
+    position: FloatArray
+    velocity: FloatArray
+    ok: np.ndarray
+
+
+def propagate_batch(
+    times: ArrayLike,
+    start: ArrayLike,
+    velocity: ArrayLike,
+    *,
+    exponent: ArrayLike,
+    strength: ArrayLike,
+    epoch: float,
+    linear_drag: ArrayLike = 0.0,
+    quadratic_drag: ArrayLike = 0.0,
+    rtol: float = BATCH_RTOL,
+) -> BatchStates:
+    """Integrate r'' = -k |r|**(n-1) r - c1 v - c2 |v| v for many parameter sets at once.
+
+    Why this method: fits and samplers evaluate the orbit model thousands of times
+    for slightly different parameters, so the cost per orbit decides everything. A
+    compiled (numba) DOP853 — the same eighth-order Runge-Kutta pair with step control
+    as the reference integrator — steps each orbit of the batch onto every sample time
+    exactly (no interpolation error), shrinking its steps through pericentre passages
+    by the error estimate. Measured against the reference (benchmarks/orbit_fit.py):
+    position errors below 1e-9 of the orbit's size over 5 revolutions for n in
+    [-2.9, 3] and Kepler ellipses up to e = 0.95, at well over 50 times the speed of
+    calling solve_ivp per orbit. A vectorised numpy Runge-Kutta over the batch was
+    the alternative; it has to take the smallest step of any orbit for all of them.
+
+    Parameters
+    ----------
+    times : array_like, shape (n_times,)
+        Increasing sample times (T), shared by the batch.
+    start, velocity : array_like, shape (n_orbits, 2) or (2,)
+        States relative to the centre at ``epoch`` (L, L/T).
+    exponent, strength : array_like, shape (n_orbits,) or scalar
+        n and k of each orbit.
+    epoch : float
+        Time of the start states (T); integration runs forwards and backwards from it.
+    linear_drag, quadratic_drag : array_like
+        c1 (1/T) and c2 (1/L) of each orbit.
+    rtol : float
+        Relative tolerance of the step control.
+
+    Returns
+    -------
+    BatchStates
+
+    Examples
+    --------
+    >>> t = np.linspace(0.0, 2 * np.pi, 9)
+    >>> batch = propagate_batch(t, [[1.0, 0.0], [2.0, 0.0]], [[0.0, 1.0], [0.0, 2.0]],
+    ...                         exponent=[-2.0, 1.0], strength=1.0, epoch=0.0)
+    >>> bool(np.allclose(batch.position[:, -1], [[1.0, 0.0], [2.0, 0.0]], atol=1e-9))
+    True
+    """
+    from ._kernel import integrate_batch
+
+    times = np.ascontiguousarray(times, dtype=np.float64)
+    start = np.atleast_2d(np.asarray(start, dtype=np.float64))
+    velocity = np.atleast_2d(np.asarray(velocity, dtype=np.float64))
+    n_orbits = max(start.shape[0], velocity.shape[0], np.size(exponent), np.size(strength),
+                   np.size(linear_drag), np.size(quadratic_drag))
+    states = np.ascontiguousarray(np.concatenate(
+        (np.broadcast_to(start, (n_orbits, 2)), np.broadcast_to(velocity, (n_orbits, 2))), axis=1))
+
+    def each(value: ArrayLike) -> FloatArray:
+        return np.ascontiguousarray(np.broadcast_to(np.asarray(value, dtype=np.float64), (n_orbits,)))
+
+    n, k = each(exponent), each(strength)
+    radius = np.hypot(states[:, 0], states[:, 1])
+    speed = np.maximum(np.hypot(states[:, 2], states[:, 3]),
+                       np.sqrt(np.abs(k) * radius ** (n + 1.0)))
+    atol = rtol * np.column_stack((radius, radius, speed, speed))
+    out = np.empty((n_orbits, times.size, 4))
+    status = np.zeros(n_orbits, dtype=np.int64)
+    integrate_batch(times, float(epoch), states, n, k, each(linear_drag), each(quadratic_drag),
+                    float(rtol), np.ascontiguousarray(atol), out, status)
+    return BatchStates(position=out[:, :, :2], velocity=out[:, :, 2:], ok=status == 0)
