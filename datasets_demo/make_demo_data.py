@@ -75,6 +75,7 @@ def stairwell_pendulum() -> dict:
             "load": {"length_unit": "px",
                      "calibration": {"scale": 1.6, "unit": "mm", "origin": [958.3, 541.7],
                                      "flip_y": True}},
+            "fit": {"rotation_rate": "fit"},
             "expected": {"exponent": 1.0, "strength": gravity / length, "strength_unit": "s^-2",
                          "pendulum_length_m": length, "gravity_m_s2": gravity,
                          "latitude_deg": latitude}}
@@ -96,6 +97,7 @@ def airtable_puck() -> dict:
            ["time (s)", "x (mm)", "y (mm)"], [track.t, track.x, track.y],
            ["%.5f", "%.3f", "%.3f"], delimiter="\t")
     return {"file": "airtable_puck.tsv", "title": "air-table puck (120 fps, mm, damped)", "load": {},
+            "fit": {"drag": "linear"},
             "expected": {"exponent": 1.0, "strength": omega**2, "strength_unit": "s^-2",
                          "drag_linear_per_s": 0.04, "centre_mm": [412.0, 305.5]}}
 

@@ -2,7 +2,16 @@
 
 from .acceleration import fit_acceleration
 from .curvature import fit_curvature
+from .orbit import compare_laws, fit_orbit
 from .profile import ForceProfile, force_profile
 from .shape import fit_shape
 
-__all__ = ["ForceProfile", "fit_acceleration", "fit_curvature", "fit_shape", "force_profile"]
+__all__ = [
+    "ForceProfile",
+    "compare_laws",
+    "fit_acceleration",
+    "fit_curvature",
+    "fit_orbit",
+    "fit_shape",
+    "force_profile",
+]

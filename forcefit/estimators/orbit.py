@@ -16,6 +16,8 @@ from typing import Literal
 
 import lmfit
 import numpy as np
+import pandas as pd
+from scipy import stats
 
 from .._types import FloatArray
 from ..errors import FitError, InputError, NotIdentifiable
@@ -185,7 +187,7 @@ def fit_orbit(
         require_orbit(path)
     epochs, indices = zip(*(_epoch(track, epoch) for track in tracks))
     radius = float(np.exp(np.mean(np.concatenate([np.log(path.radius) for path in paths]))))
-    rate = 0.0 if rotation_rate in (None, "fit") else float(rotation_rate)  # type: ignore[arg-type]
+    rate = 0.0 if rotation_rate is None or rotation_rate == "fit" else float(rotation_rate)
     model = OrbitModel(tracks=tracks, epochs=tuple(epochs), reference_radius=radius, drag=drag,
                        fit_rotation=rotation_rate == "fit", rotation_rate=rate,
                        shared_centre=shared_centre or len(tracks) == 1)
@@ -328,10 +330,14 @@ def _law_fit(
                     else "."))
     noise = float(np.median(sigma)) * (math.sqrt(reduced) if not sigma_known else 1.0)
     diagnostics.update(_residual_checks(radial, sigma.ravel(), loss))
-    diagnostics["noise"] = Diagnostic(None, (f"sigma as given (median {noise:.3g} "
-                                             if sigma_known else f"fitted noise level {noise:.3g} ")
-                                      + f"{tracks[0].length_unit})")
+    diagnostics["noise"] = Diagnostic(None, (f"sigma as given (median {noise:.3g} {tracks[0].length_unit})"
+                                             if sigma_known else
+                                             f"fitted noise level {noise:.3g} {tracks[0].length_unit}"))
+    turns = sum(path.revolutions for path in paths)
+    diagnostics["coverage"] = Diagnostic(None, f"the data sweep {turns:.2f} turns about the centre.")
     details = {"lmfit": result, "evaluations": int(result.nfev), "noise": noise, "loss": loss,
+               "turns": turns,
+               "sigma_known": sigma_known,
                "epochs": list(model.epochs), "n_tracks": len(tracks), "angular_momentum": h,
                "states": {name: float(result.params[name].value) for name in model.names
                           if name.startswith(("x0", "y0", "vx0", "vy0"))}}
@@ -351,3 +357,61 @@ def _law_fit(
         force_at_reference_stderr=math.exp(log_force) * log_force_se, diagnostics=diagnostics,
         details=details, track_name=" + ".join(track.name for track in tracks),
     )
+
+
+def compare_laws(
+    track_or_tracks: Track | Sequence[Track],
+    exponents: Sequence[float] = (1.0, -2.0),
+    **options: object,
+) -> pd.DataFrame:
+    """Each fixed law against the free fit: chi-square, reduced chi-square, AIC, BIC, p-value.
+
+    Parameters
+    ----------
+    track_or_tracks : Track or sequence of Track
+        Timestamped tracks.
+    exponents : sequence of float
+        The nominal exponents to test (default Hooke's 1 and Newton's -2).
+    **options
+        Passed to `fit_orbit` (drag, centre, rotation_rate, ...).
+
+    Returns
+    -------
+    DataFrame
+        One row per law (``free`` first), with ``exponent``, ``chi2``, ``reduced_chi2``,
+        ``n_parameters``, ``aic``, ``bic``, ``delta_bic`` and ``p_value`` of the nested test
+        (the fixed law against the free one: a chi-square test with one degree of freedom
+        when the noise is known, an F test when it is fitted). A small p-value rejects the
+        fixed law.
+
+    References
+    ----------
+    H. Akaike (1974), IEEE Trans. Autom. Control 19, 716; G. Schwarz (1978), Ann. Stat. 6, 461.
+    """
+    free = fit_orbit(track_or_tracks, **options)  # type: ignore[arg-type]
+    rows = [("free", free)]
+    for value in exponents:
+        rows.append((f"n = {value:g}", fit_orbit(track_or_tracks, exponent=float(value), **options)))  # type: ignore[arg-type]
+    n_values = 2 * free.n_points
+    sigma_known = bool(free.details["sigma_known"])
+    table = []
+    for label, fit in rows:
+        parameters = len(fit.parameter_names)
+        chi2 = fit.chi2
+        delta = chi2 - free.chi2
+        if label == "free":
+            p_value = 1.0
+        elif sigma_known:
+            p_value = float(stats.chi2.sf(max(delta, 0.0), df=1))
+        else:
+            f_value = max(delta, 0.0) / (free.chi2 / max(n_values - len(free.parameter_names), 1))
+            p_value = float(stats.f.sf(f_value, 1, max(n_values - len(free.parameter_names), 1)))
+        table.append({
+            "law": label, "exponent": fit.exponent, "exponent_stderr": fit.exponent_stderr,
+            "chi2": chi2, "reduced_chi2": fit.reduced_chi2, "n_parameters": parameters,
+            "aic": chi2 + 2 * parameters, "bic": chi2 + parameters * math.log(n_values),
+            "p_value": p_value,
+        })
+    frame = pd.DataFrame(table).set_index("law")
+    frame["delta_bic"] = frame["bic"] - frame["bic"].min()
+    return frame

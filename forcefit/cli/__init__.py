@@ -1,0 +1,56 @@
+"""The ``forcefit`` command: parse options, call the API, print. No physics here."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import warnings
+from collections.abc import Callable, Sequence
+from typing import Any
+
+from .. import __version__
+from ..errors import ForcefitError
+from . import cmd_demo, cmd_fit, cmd_inspect, cmd_simulate
+from ._common import EXIT_BAD_INPUT, FORMATTER, loading_options
+
+_MAIN_EXAMPLES = """\
+examples:
+  forcefit inspect runs/puck_03.csv --length-unit mm
+  forcefit fit runs/puck_03.csv --length-unit mm --method curvature
+  forcefit simulate --exponent -1.5 --duration 20 --rate 30 --noise 0.005 --out rosette.csv
+  forcefit demo
+"""
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``forcefit`` command."""
+    parser = argparse.ArgumentParser(
+        prog="forcefit", formatter_class=FORMATTER, epilog=_MAIN_EXAMPLES,
+        description="Infer the central force law F(r) = -k r^n r_hat behind a planar trajectory.",
+    )
+    parser.add_argument("--version", action="version", version=f"forcefit {__version__}")
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    loading = loading_options()
+    for module in (cmd_inspect, cmd_fit, cmd_simulate, cmd_demo):
+        module.register(commands, loading)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``forcefit`` command; returns the exit status."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    handler: Callable[[argparse.Namespace], int] = args.handler
+    warnings.formatwarning = _one_line_warning
+    try:
+        return handler(args)
+    except ForcefitError as exc:
+        print(f"forcefit: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("forcefit: interrupted", file=sys.stderr)
+        return 130
+
+
+def _one_line_warning(message: Any, category: Any, *_: Any, **__: Any) -> str:
+    return f"forcefit: warning: {message}\n"
