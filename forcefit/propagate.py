@@ -175,7 +175,7 @@ def propagate_reference(
     return States(position=solution[:2].T.copy(), velocity=solution[2:].T.copy())
 
 
-BATCH_RTOL = 1e-12
+BATCH_RTOL = 3e-13
 """Relative tolerance of the batch propagator."""
 
 
