@@ -10,7 +10,15 @@ from .errors import (
     InputError,
     NotIdentifiable,
 )
-from .estimators import ForceProfile, fit_acceleration, fit_curvature, fit_shape, force_profile
+from .estimators import (
+    ForceProfile,
+    compare_laws,
+    fit_acceleration,
+    fit_curvature,
+    fit_orbit,
+    fit_shape,
+    force_profile,
+)
 from .geometry import PathGeometry, describe_path
 from .inspection import TrackSummary, inspect_track
 from .laws import (
@@ -22,7 +30,7 @@ from .laws import (
     specific_energy,
 )
 from .loaders import load_track, load_tracks, save_track
-from .propagate import Drag, States, propagate_reference
+from .propagate import BatchStates, Drag, States, propagate_batch, propagate_reference
 from .result import Diagnostic, LawFit
 from .simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
 from .track import Track
@@ -31,6 +39,7 @@ from .units import length_factor, parse_length_unit, parse_time_unit, strength_u
 __version__ = "0.1.0"
 
 __all__ = [
+    "BatchStates",
     "Calibration",
     "CentreEstimate",
     "Diagnostic",
@@ -52,10 +61,12 @@ __all__ = [
     "angular_momentum",
     "circular_period",
     "circular_speed",
+    "compare_laws",
     "describe_path",
     "find_centre",
     "fit_acceleration",
     "fit_curvature",
+    "fit_orbit",
     "fit_shape",
     "force_profile",
     "inspect_track",
@@ -66,6 +77,7 @@ __all__ = [
     "parse_time_unit",
     "potential",
     "project_to_plane",
+    "propagate_batch",
     "propagate_reference",
     "radial_force",
     "save_track",

@@ -92,7 +92,7 @@ def test_fit_json_of_the_comet_with_the_sun_as_centre(capsys):
     # The demo comet was simulated with n = -2 and k = 0.01720209895^2 au^3/d^2 (Gauss 1809).
     assert main(["fit", str(DEMO / "comet_heliocentric.csv"), "--centre", "0,0", "--json"]) == 0
     (report,) = json.loads(capsys.readouterr().out)
-    assert report["method"] == "shape" and report["strength_unit"] == "au^3 d^-2"
+    assert report["method"] == "orbit" and report["strength_unit"] == "au^3 d^-2"
     assert report["exponent"] == pytest.approx(-2.0, abs=5 * report["exponent_stderr"])
     assert report["strength"] == pytest.approx(0.01720209895**2, rel=1e-4)
 
@@ -104,3 +104,21 @@ def test_fit_of_a_circle_exits_2_with_the_reason(tmp_path, capsys):
         f"{a},{np.cos(a)},{np.sin(a)}" for a in t))
     assert main(["fit", str(path), "--centre", "0,0"]) == 2
     assert "circular orbit exists for every exponent" in capsys.readouterr().err
+
+
+def test_fit_uses_the_orbit_method_with_drag_and_comparison(capsys):
+    # The demo puck: n = 1, k = (2 pi / 2.2 s)^2, linear drag 0.04 1/s (datasets_demo/README.md).
+    status = main(["fit", str(DEMO / "airtable_puck.tsv"), "--drag", "linear", "--compare", "1,-2",
+                   "--json"])
+    (report,) = json.loads(capsys.readouterr().out)
+    assert status == 0 and report["method"] == "orbit"
+    assert report["exponent"] == pytest.approx(1.0, abs=4 * report["exponent_stderr"])
+    assert report["strength"] == pytest.approx((2 * np.pi / 2.2) ** 2, rel=1e-3)
+    assert report["details"]["drag"] == pytest.approx(0.04, rel=1e-3)
+    laws = {row["law"]: row for row in report["comparison"]}
+    assert laws["n = 1"]["p_value"] > 0.01 and laws["n = -2"]["p_value"] < 1e-6
+
+
+def test_orbit_options_are_refused_for_time_free_methods(capsys):
+    assert main(["fit", str(DEMO / "airtable_puck.tsv"), "--method", "shape", "--drag", "linear"]) == 2
+    assert "--drag applies to the orbit method only" in capsys.readouterr().err

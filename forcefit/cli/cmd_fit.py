@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 import json
 import math
-from typing import Any
+from collections.abc import Callable
+from typing import Any, Literal
 
 from .._json import json_safe
 from ..errors import InputError
@@ -34,12 +35,14 @@ examples:
   forcefit fit comet.csv --centre 0,0 --json    # the Sun at the origin
 """
 
-ESTIMATORS = {"orbit": fit_orbit, "shape": fit_shape, "curvature": fit_curvature,
-              "acceleration": fit_acceleration}
+ESTIMATORS: dict[str, Callable[..., LawFit]] = {
+    "orbit": fit_orbit, "shape": fit_shape, "curvature": fit_curvature,
+    "acceleration": fit_acceleration,
+}
 ORBIT_ONLY = ("fix_exponent", "drag", "compare", "rotation_rate", "latitude")
 
 
-def _rotation(args: argparse.Namespace, track: Track) -> float | str | None:
+def _rotation(args: argparse.Namespace, track: Track) -> float | Literal["fit"] | None:
     """The observer frame's rotation rate in rad per the track's time unit, or "fit"."""
     if args.fit_rotation:
         return "fit"
@@ -86,8 +89,8 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         print(fit.summary())
         for name in ("drag", "rotation_rate"):
             if name in fit.details:
-                unit = ("1/" + fit.time_unit if args.drag == "linear" else "1/" + fit.length_unit) \
-                    if name == "drag" else f"rad/{fit.time_unit}"
+                per = fit.time_unit if name != "drag" or args.drag == "linear" else fit.length_unit
+                unit = f"rad/{per}" if name == "rotation_rate" else f"1/{per}"
                 print(f"  {name.replace('_', ' ')}: {fit.details[name]:.6g} ± "
                       f"{fit.details[name + '_stderr']:.2g} {unit}")
         if profile is not None:

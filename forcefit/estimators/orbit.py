@@ -193,48 +193,7 @@ def fit_orbit(
                        shared_centre=shared_centre or len(tracks) == 1)
     params = _parameters(model, paths, indices, _starting_law(paths, exponent, radius),
                          exponent, centre, rate)
-    sigma_known = all(track.sigma is not None for track in tracks)
-    sigma = np.concatenate([track.sigma if track.sigma is not None
-                            else np.full(track.n_points, float(path.smoothing.noise[0]))
-                            for track, path in zip(tracks, paths)])[:, None]
-    data = observed(tracks)
-    size = float(np.ptp(data, axis=0).max())
-    speed = float(np.median(np.concatenate([np.hypot(*p.velocity.T) for p in paths])))
-    duration = float(max(track.duration for track in tracks))
-    penalty = 1e4
-
-    def vector_of(values: lmfit.Parameters) -> FloatArray:
-        return np.array([values[name].value for name in model.names])
-
-    def residual(values: lmfit.Parameters) -> FloatArray:
-        predictions, ok = model.predict(vector_of(values)[None, :])
-        if not ok[0]:
-            return np.full(data.size, penalty)
-        return ((data - np.concatenate([p[0] for p in predictions])) / sigma).ravel()
-
-    def jacobian(values: lmfit.Parameters) -> FloatArray:
-        vector = vector_of(values)
-        varying = [i for i, name in enumerate(model.names) if values[name].vary]
-        steps = _steps(model, vector, size, speed, duration)
-        sets = np.repeat(vector[None, :], 2 * len(varying), axis=0)
-        for column, i in enumerate(varying):
-            sets[2 * column, i] += steps[i]
-            sets[2 * column + 1, i] -= steps[i]
-        predictions, ok = model.predict(sets)
-        stacked = np.concatenate(predictions, axis=1)        # (2V, n_total, 2)
-        if not ok.all():
-            stacked[~ok] = np.nan
-        difference = (stacked[0::2] - stacked[1::2]) / (2 * steps[varying])[:, None, None]
-        jac = -(difference / sigma[None, :, :]).reshape(len(varying), -1).T
-        return np.nan_to_num(jac)
-
-    minimizer = lmfit.Minimizer(residual, params, scale_covar=not sigma_known)
-    try:
-        result = minimizer.least_squares(jac=jacobian, loss=loss, f_scale=1.0, x_scale="jac",
-                                         max_nfev=max_evaluations)
-    except (ValueError, np.linalg.LinAlgError) as exc:
-        raise FitError(f"the orbit fit failed: {exc}",
-                       last_params={name: params[name].value for name in params}) from None
+    result, sigma, sigma_known = optimise(model, params, paths, loss, max_evaluations)
     return _law_fit(model, result, tracks, paths, sigma, sigma_known, loss)
 
 
@@ -415,3 +374,57 @@ def compare_laws(
     frame = pd.DataFrame(table).set_index("law")
     frame["delta_bic"] = frame["bic"] - frame["bic"].min()
     return frame
+
+def optimise(
+    model: OrbitModel, params: lmfit.Parameters, paths: Sequence[PathGeometry], loss: Loss,
+    max_evaluations: int,
+) -> tuple[lmfit.minimizer.MinimizerResult, FloatArray, bool]:
+    """Least squares of the model from the starting ``params``: the lmfit result, each
+    sample's sigma (given, or the smoothing's noise estimate) and whether sigma was given.
+
+    Every residual evaluation is one orbit per track; every Jacobian one batch of central
+    differences (two orbits per varying parameter) through the compiled propagator.
+    """
+    sigma_known = all(track.sigma is not None for track in model.tracks)
+    sigma = np.concatenate([track.sigma if track.sigma is not None
+                            else np.full(track.n_points, float(path.smoothing.noise[0]))
+                            for track, path in zip(model.tracks, paths)])[:, None]
+    data = observed(model.tracks)
+    size = float(np.ptp(data, axis=0).max())
+    speed = float(np.median(np.concatenate([np.hypot(*p.velocity.T) for p in paths])))
+    duration = float(max(track.duration for track in model.tracks))
+    penalty = 1e4
+
+    def vector_of(values: lmfit.Parameters) -> FloatArray:
+        return np.array([values[name].value for name in model.names])
+
+    def residual(values: lmfit.Parameters) -> FloatArray:
+        predictions, ok = model.predict(vector_of(values)[None, :])
+        if not ok[0]:
+            return np.full(data.size, penalty)
+        return ((data - np.concatenate([p[0] for p in predictions])) / sigma).ravel()
+
+    def jacobian(values: lmfit.Parameters) -> FloatArray:
+        vector = vector_of(values)
+        varying = [i for i, name in enumerate(model.names) if values[name].vary]
+        steps = _steps(model, vector, size, speed, duration)
+        sets = np.repeat(vector[None, :], 2 * len(varying), axis=0)
+        for column, i in enumerate(varying):
+            sets[2 * column, i] += steps[i]
+            sets[2 * column + 1, i] -= steps[i]
+        predictions, ok = model.predict(sets)
+        stacked = np.concatenate(predictions, axis=1)        # (2V, n_total, 2)
+        if not ok.all():
+            stacked[~ok] = np.nan
+        difference = (stacked[0::2] - stacked[1::2]) / (2 * steps[varying])[:, None, None]
+        jac = -(difference / sigma[None, :, :]).reshape(len(varying), -1).T
+        return np.nan_to_num(jac)
+
+    minimizer = lmfit.Minimizer(residual, params, scale_covar=not sigma_known)
+    try:
+        result = minimizer.least_squares(jac=jacobian, loss=loss, f_scale=1.0, x_scale="jac",
+                                         max_nfev=max_evaluations)
+    except (ValueError, np.linalg.LinAlgError) as exc:
+        raise FitError(f"the orbit fit failed: {exc}",
+                       last_params={name: params[name].value for name in params}) from None
+    return result, sigma, sigma_known
