@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._types import FloatArray
-from .propagate import propagate_batch
+from .propagate import BATCH_RTOL, propagate_batch
 from .track import Track
 
 DragKind = str | None
@@ -41,6 +41,7 @@ class OrbitModel:
     fit_rotation: bool = False
     rotation_rate: float = 0.0
     shared_centre: bool = True
+    rtol: float = BATCH_RTOL
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -95,7 +96,7 @@ class OrbitModel:
                 np.asarray(track.t), vectors[:, state:state + 2], vectors[:, state + 2:state + 4],
                 exponent=exponent, strength=strength, epoch=epoch,
                 linear_drag=drag if self.drag == "linear" else 0.0,
-                quadratic_drag=drag if self.drag == "quadratic" else 0.0,
+                quadratic_drag=drag if self.drag == "quadratic" else 0.0, rtol=self.rtol,
             )
             ok &= batch.ok
             position = batch.position

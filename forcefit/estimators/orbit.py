@@ -294,7 +294,8 @@ def _law_fit(
                                              f"fitted noise level {noise:.3g} {tracks[0].length_unit}"))
     turns = sum(path.revolutions for path in paths)
     diagnostics["coverage"] = Diagnostic(None, f"the data sweep {turns:.2f} turns about the centre.")
-    details = {"lmfit": result, "evaluations": int(result.nfev), "noise": noise, "loss": loss,
+    details = {"lmfit": result, "model": model, "sigma": sigma.ravel(),
+               "evaluations": int(result.nfev), "noise": noise, "loss": loss,
                "turns": turns,
                "sigma_known": sigma_known,
                "epochs": list(model.epochs), "n_tracks": len(tracks), "angular_momentum": h,

@@ -1,0 +1,101 @@
+"""Posterior sampling: exact on a linear-Gaussian toy, honest on orbits, resumable."""
+
+import numpy as np
+import pytest
+
+from forcefit.errors import InputError
+from forcefit.estimators import fit_orbit, fit_shape
+from forcefit.posterior import run_ensemble, sample_posterior
+from forcefit.simulate import simulate_orbit
+
+
+def test_linear_gaussian_toy_matches_the_closed_form():
+    # For y = X b + e with Gaussian e of known sigma and a flat prior, the posterior of b is
+    # normal with mean (X^T X)^-1 X^T y and covariance sigma^2 (X^T X)^-1 (standard result of
+    # linear least squares; e.g. Gelman et al. 2013, Bayesian Data Analysis, 3rd ed., §14.2).
+    rng = np.random.default_rng(0)
+    x = np.linspace(-1.0, 1.0, 40)
+    design = np.column_stack((np.ones_like(x), x, x**2))
+    sigma = 0.3
+    y = design @ np.array([1.0, -2.0, 0.5]) + sigma * rng.standard_normal(x.size)
+    normal = design.T @ design
+    mean = np.linalg.solve(normal, design.T @ y)
+    covariance = sigma**2 * np.linalg.inv(normal)
+
+    def log_probability(theta):
+        residual = y[None, :] - theta @ design.T
+        return -0.5 * np.sum(residual**2, axis=1) / sigma**2
+
+    sampler, converged, reason = run_ensemble(log_probability, mean, covariance, seed=1,
+                                              max_steps=20_000)
+    assert converged, reason
+    tau = sampler.get_autocorr_time(tol=0)
+    chain = sampler.get_chain(discard=int(2 * tau.max()), flat=True)
+    effective = chain.shape[0] / tau.max()
+    spread = np.sqrt(np.diag(covariance))
+    assert np.all(np.abs(chain.mean(axis=0) - mean) < 4 * spread / np.sqrt(effective))
+    np.testing.assert_allclose(np.cov(chain.T), covariance, rtol=0.15, atol=0.15 * spread.max() ** 2)
+
+
+@pytest.fixture(scope="module")
+def rosette_fit():
+    track = simulate_orbit(exponent=-1.5, noise=0.005, rng=1)
+    return fit_orbit(track)
+
+
+def test_posterior_of_an_orbit_agrees_with_least_squares(rosette_fit):
+    posterior = sample_posterior(rosette_fit, seed=2, progress=False)
+    assert posterior.converged, posterior.reason
+    spread = float(np.std(posterior.samples["exponent"]))
+    assert spread == pytest.approx(rosette_fit.exponent_stderr, rel=0.2)
+    assert abs(float(np.median(posterior.samples["exponent"])) + 1.5) < 3 * spread
+    low, high = posterior.interval("strength", 0.95)
+    assert low < 1.0 < high
+    assert "exponent" in posterior.summary() and "m^2.5 s^-2" in posterior.summary()
+    rhat = posterior.split_rhat()
+    assert max(rhat.values()) < 1.05
+    assert min(posterior.effective_sample_size().values()) > 400
+
+
+def test_unknown_noise_is_sampled_as_a_scale():
+    track = simulate_orbit(exponent=1.0, noise=0.004, rng=3)
+    bare = type(track)(t=track.t, x=track.x, y=track.y, name="no sigma")
+    fit = fit_orbit(bare)
+    posterior = sample_posterior(fit, seed=3, progress=False, max_steps=6000)
+    assert "noise_scale" in posterior.samples
+    noise = float(np.median(posterior.samples["noise_scale"])) * float(np.median(fit.details["sigma"]))
+    assert noise == pytest.approx(0.004, rel=0.1)
+
+
+def test_a_short_run_says_it_has_not_converged(rosette_fit):
+    posterior = sample_posterior(rosette_fit, seed=4, progress=False, max_steps=300)
+    assert not posterior.converged
+    assert "autocorrelation times long" in posterior.reason and "Run longer" in posterior.reason
+    assert "NOT CONVERGED" in posterior.summary()
+
+
+def test_save_interrupt_resume_gives_the_same_chain(rosette_fit, tmp_path):
+    one = sample_posterior(rosette_fit, seed=5, progress=False, max_steps=500, min_steps=500,
+                           save=tmp_path / "one.h5")
+    sample_posterior(rosette_fit, seed=5, progress=False, max_steps=250, min_steps=250,
+                     save=tmp_path / "two.h5")                                   # interrupted here
+    two = sample_posterior(rosette_fit, seed=5, progress=False, max_steps=500, min_steps=500,
+                           save=tmp_path / "two.h5", resume=True)
+    assert two.n_steps == one.n_steps == 500
+    np.testing.assert_array_equal(one.sampler.get_chain(), two.sampler.get_chain())
+
+
+def test_priors_are_checked_and_applied(rosette_fit):
+    with pytest.raises(InputError, match="not sampled"):
+        sample_posterior(rosette_fit, priors={"mass": ("uniform", 0, 1)}, progress=False)
+    with pytest.raises(InputError, match="uniform"):
+        sample_posterior(rosette_fit, priors={"exponent": ("flat", 0, 1)}, progress=False)
+    tight = sample_posterior(rosette_fit, priors={"exponent": ("normal", -1.5, 1e-5)}, seed=6,
+                             progress=False, max_steps=1500)
+    assert float(np.std(tight.samples["exponent"])) < 2e-5
+
+
+def test_only_orbit_fits_can_be_sampled():
+    fit = fit_shape(simulate_orbit(exponent=1.0, noise=0.001, rng=1))
+    with pytest.raises(InputError, match="fit_orbit"):
+        sample_posterior(fit, progress=False)
