@@ -412,7 +412,7 @@ def _run(sampler: emcee.EnsembleSampler, state: Any, steps: int, min_total: int,
     change = math.inf
     if steps > 0:
         with tqdm(total=steps, disable=not progress, unit="step", desc="sampling",
-                  leave=False) as bar:
+                  leave=False, mininterval=0.5) as bar:
             for _ in sampler.sample(state, iterations=steps, store=True):
                 bar.update(1)
                 if sampler.iteration % CHECK_EVERY:

@@ -11,6 +11,7 @@ from ..errors import ForcefitError, ForcefitWarning
 from ..estimators import fit_curvature, fit_orbit, fit_shape
 from ..geometry import describe_path
 from ..inspection import inspect_track
+from ..posterior import sample_posterior
 from ..result import LawFit
 from ..track import Track
 from ..units import format_measurement, strength_unit
@@ -19,6 +20,7 @@ from ._common import EXIT_OK
 
 def _cmd_demo(args: argparse.Namespace) -> int:
     datasets = demo_datasets(args.data)
+    sampled = False
     for dataset in datasets:
         print(f"\n== {dataset.title}")
         expected = dataset.expected
@@ -33,11 +35,17 @@ def _cmd_demo(args: argparse.Namespace) -> int:
                     warnings.simplefilter("ignore", ForcefitWarning)
                     for track in dataset.load(path):
                         if dataset.is_class_set:
-                            _class_line(track)
+                            fit = _class_line(track)
+                            if not sampled:
+                                sampled = True
+                                pending = fit
                         else:
                             _demo_track(track, dataset.fit_options)
             except ForcefitError as exc:
                 print(f"   {path.name}: refused — {exc}")
+    if sampled:
+        print(f"\n== posterior of {pending.track_name} (emcee, run until converged)")
+        print(sample_posterior(pending, seed=1, progress=True).summary())
     return EXIT_OK
 
 
@@ -46,7 +54,7 @@ def _failed(fit: LawFit) -> str:
     return "failed: " + ", ".join(failed) if failed else "passed"
 
 
-def _class_line(track: Track) -> None:
+def _class_line(track: Track) -> LawFit:
     """One line per student run: the orbit fit, and k at the nearest whole exponent."""
     fit = fit_orbit(track)
     nominal = round(fit.exponent)
@@ -55,6 +63,7 @@ def _class_line(track: Track) -> None:
     print(f"   {track.name:<8} {track.n_points:6d} {track.duration:7.2f} {track.time_unit}  "
           f"{format_measurement(fit.exponent, fit.exponent_stderr):<22} "
           f"{format_measurement(value, error, unit):<26} {_failed(fit)}")
+    return fit
 
 
 def _demo_track(track: Track, options: dict[str, Any]) -> None:

@@ -62,9 +62,13 @@ def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
                              "drop it or use --method orbit.")
         path = describe_path(track, centre=args.centre, smoothing=args.smoothing)
         return ESTIMATORS[method](track, centre=args.centre, path=path)
-    return fit_orbit(track, exponent=args.fix_exponent, drag=args.drag, centre=args.centre,
-                     loss="soft_l1" if args.robust else "linear",
-                     rotation_rate=_rotation(args, track))
+    return fit_orbit(track, **orbit_options(args, track))
+
+
+def orbit_options(args: argparse.Namespace, track: Track) -> dict[str, Any]:
+    """The keyword arguments of `fit_orbit` the command line asked for."""
+    return {"exponent": args.fix_exponent, "drag": args.drag, "centre": args.centre,
+            "loss": "soft_l1" if args.robust else "linear", "rotation_rate": _rotation(args, track)}
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
@@ -112,6 +116,21 @@ def _exponents(text: str) -> tuple[float, ...]:
         raise argparse.ArgumentTypeError(f'expected exponents such as "1,-2", got "{text}"') from None
 
 
+def add_orbit_options(parser: argparse.ArgumentParser) -> None:
+    """The options of the orbit method, shared by ``fit`` and ``sample``."""
+    orbit = parser.add_argument_group("the orbit method")
+    orbit.add_argument("--fix-exponent", type=float, metavar="N", help="hold n at N")
+    orbit.add_argument("--drag", choices=("linear", "quadratic"), help="fit a drag force too")
+    orbit.add_argument("--robust", action="store_true",
+                       help="robust loss: tracking glitches pull the fit less")
+    orbit.add_argument("--rotation-rate", type=float, metavar="RATE",
+                       help="the camera frame turns counter-clockwise at RATE rad per time unit")
+    orbit.add_argument("--latitude", type=float, metavar="DEG",
+                       help="camera fixed in a lab at this latitude: the Earth's rotation "
+                            "(x east, y north, seen from above)")
+    orbit.add_argument("--fit-rotation", action="store_true", help="fit the frame's rotation rate")
+
+
 def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     """Add the ``fit`` command."""
     fit = commands.add_parser(
@@ -124,19 +143,9 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     fit.add_argument("--centre", type=pair, metavar="X,Y",
                      help="the force centre, if known (default: found from the data)")
     fit.add_argument("--json", action="store_true", help="print JSON instead of a table")
-    orbit = fit.add_argument_group("the orbit method")
-    orbit.add_argument("--fix-exponent", type=float, metavar="N", help="hold n at N")
-    orbit.add_argument("--drag", choices=("linear", "quadratic"), help="fit a drag force too")
-    orbit.add_argument("--robust", action="store_true",
-                       help="robust loss: tracking glitches pull the fit less")
-    orbit.add_argument("--compare", type=_exponents, metavar="N1,N2",
-                       help="compare fixed laws with the free fit (e.g. 1,-2)")
-    orbit.add_argument("--rotation-rate", type=float, metavar="RATE",
-                       help="the camera frame turns counter-clockwise at RATE rad per time unit")
-    orbit.add_argument("--latitude", type=float, metavar="DEG",
-                       help="camera fixed in a lab at this latitude: the Earth's rotation "
-                            "(x east, y north, seen from above)")
-    orbit.add_argument("--fit-rotation", action="store_true", help="fit the frame's rotation rate")
+    add_orbit_options(fit)
+    fit.add_argument("--compare", type=_exponents, metavar="N1,N2",
+                     help="compare fixed laws with the free fit (e.g. 1,-2)")
     timefree = fit.add_argument_group("the time-free methods")
     timefree.add_argument("--smoothing", choices=("spline", "savgol"), default="spline",
                           help="how to smooth before differentiating (default spline, GCV level)")
