@@ -30,6 +30,7 @@ from .laws import (
     specific_energy,
 )
 from .loaders import load_track, load_tracks, save_track
+from .posterior import Posterior, sample_posterior
 from .propagate import BatchStates, Drag, States, propagate_batch, propagate_reference
 from .result import Diagnostic, LawFit
 from .simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
@@ -54,6 +55,7 @@ __all__ = [
     "NotIdentifiable",
     "PathGeometry",
     "PlaneProjection",
+    "Posterior",
     "States",
     "Track",
     "TrackSummary",
@@ -80,6 +82,7 @@ __all__ = [
     "propagate_batch",
     "propagate_reference",
     "radial_force",
+    "sample_posterior",
     "save_track",
     "simulate_orbit",
     "simulate_pendulum",

@@ -122,3 +122,18 @@ def test_fit_uses_the_orbit_method_with_drag_and_comparison(capsys):
 def test_orbit_options_are_refused_for_time_free_methods(capsys):
     assert main(["fit", str(DEMO / "airtable_puck.tsv"), "--method", "shape", "--drag", "linear"]) == 2
     assert "--drag applies to the orbit method only" in capsys.readouterr().err
+
+
+def test_sample_reports_an_unconverged_run_and_resumes_it(tmp_path, capsys):
+    path = str(DEMO / "class_pendulum" / "run_02.csv")
+    chain = tmp_path / "chain.h5"
+    assert main(["sample", path, "--max-steps", "300", "--seed", "1", "--save", str(chain),
+                 "--json"]) == 1
+    (report,) = json.loads(capsys.readouterr().out)
+    assert report["posterior"]["converged"] is False and "Run longer" in report["posterior"]["reason"]
+    assert main(["sample", path, "--max-steps", "600", "--resume", str(chain), "--json",
+                 "--figures", str(tmp_path / "plots")]) in (0, 1)
+    (report,) = json.loads(capsys.readouterr().out)
+    assert report["posterior"]["n_steps"] == 600
+    assert (tmp_path / "plots" / "run_02_corner.png").stat().st_size > 10_000
+    assert main(["sample", path, "--save", str(chain), "--resume", str(chain)]) == 2
