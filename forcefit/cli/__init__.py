@@ -10,7 +10,7 @@ from typing import Any
 
 from .. import __version__
 from ..errors import ForcefitError
-from . import cmd_demo, cmd_fit, cmd_inspect, cmd_sample, cmd_simulate
+from . import cmd_apsides, cmd_demo, cmd_fit, cmd_inspect, cmd_sample, cmd_simulate
 from ._common import EXIT_BAD_INPUT, FORMATTER, loading_options
 
 _MAIN_EXAMPLES = """\
@@ -32,7 +32,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"forcefit {__version__}")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     loading = loading_options()
-    for module in (cmd_inspect, cmd_fit, cmd_sample, cmd_simulate, cmd_demo):
+    for module in (cmd_inspect, cmd_fit, cmd_sample, cmd_apsides, cmd_simulate, cmd_demo):
         module.register(commands, loading)
     return parser
 
