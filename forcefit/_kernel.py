@@ -10,7 +10,7 @@ tables forcefit takes from scipy rather than retyping them.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 from scipy.integrate._ivp import dop853_coefficients as tableau
 
 STAGES = tableau.N_STAGES
@@ -112,7 +112,7 @@ def _leg(times, order, start, y0, exponent, strength, linear, quadratic, rtol, a
     return OK
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True)
 def integrate_batch(times, epoch, states, exponent, strength, linear, quadratic, rtol, atol, out, status):  # type: ignore[no-untyped-def]
     """Fill out[b, i, :] with the state of orbit b at times[i]; status[b] = OK or FAILED."""
     n_times = times.size
@@ -121,7 +121,7 @@ def integrate_batch(times, epoch, states, exponent, strength, linear, quadratic,
         first_after += 1
     forward = np.arange(first_after, n_times)
     backward = np.arange(first_after - 1, -1, -1)
-    for b in prange(states.shape[0]):
+    for b in range(states.shape[0]):
         code = _leg(times, forward, epoch, states[b], exponent[b], strength[b], linear[b],
                     quadratic[b], rtol, atol[b], out[b])
         if code == OK:

@@ -110,6 +110,21 @@ class OrbitModel:
         return predictions, ok
 
 
+    def jacobian(self, vector: FloatArray, steps: FloatArray, columns: Sequence[int]) -> FloatArray:
+        """d(predicted positions)/d(parameter) for the given parameter columns, by central
+        differences in one batch; shape (2 n_total, len(columns)), nan where an orbit failed."""
+        columns = list(columns)
+        sets = np.repeat(vector[None, :], 2 * len(columns), axis=0)
+        for k, i in enumerate(columns):
+            sets[2 * k, i] += steps[i]
+            sets[2 * k + 1, i] -= steps[i]
+        predictions, ok = self.predict(sets)
+        stacked = np.concatenate(predictions, axis=1)
+        stacked[~ok] = np.nan
+        difference = (stacked[0::2] - stacked[1::2]) / (2 * np.asarray(steps)[columns])[:, None, None]
+        return difference.reshape(len(columns), -1).T
+
+
 def observed(tracks: Sequence[Track]) -> FloatArray:
     """All tracks' positions stacked, shape (n_total, 2)."""
     return np.concatenate([track.positions for track in tracks])

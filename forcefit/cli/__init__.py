@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import warnings
 from collections.abc import Callable, Sequence
@@ -10,8 +11,17 @@ from typing import Any
 
 from .. import __version__
 from ..errors import ForcefitError
-from . import cmd_apsides, cmd_demo, cmd_fit, cmd_inspect, cmd_sample, cmd_simulate
-from ._common import EXIT_BAD_INPUT, FORMATTER, loading_options
+from . import (
+    cmd_apsides,
+    cmd_demo,
+    cmd_dual,
+    cmd_fit,
+    cmd_inspect,
+    cmd_plan,
+    cmd_sample,
+    cmd_simulate,
+)
+from ._common import EXIT_BAD_INPUT, EXIT_OK, FORMATTER, loading_options
 
 _MAIN_EXAMPLES = """\
 examples:
@@ -32,7 +42,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"forcefit {__version__}")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     loading = loading_options()
-    for module in (cmd_inspect, cmd_fit, cmd_sample, cmd_apsides, cmd_simulate, cmd_demo):
+    for module in (cmd_inspect, cmd_fit, cmd_sample, cmd_apsides, cmd_dual, cmd_plan, cmd_simulate,
+                   cmd_demo):
         module.register(commands, loading)
     return parser
 
@@ -51,6 +62,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("forcefit: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:                    # the reader (head, less) stopped listening
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
 
 
 def _one_line_warning(message: Any, category: Any, *_: Any, **__: Any) -> str:

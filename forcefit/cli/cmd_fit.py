@@ -18,6 +18,7 @@ from ..estimators import (
     fit_shape,
     force_profile,
 )
+from ..estimators.dual_check import check_duality
 from ..geometry import describe_path
 from ..laws import EARTH_ROTATION_RATE
 from ..result import LawFit
@@ -80,10 +81,16 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         if args.compare:
             comparison = compare_laws(track, args.compare, drag=args.drag, centre=args.centre,
                                       rotation_rate=_rotation(args, track))
-        if not fit.passed:
+        duality = None
+        if args.check_duality:
+            method = args.method or ("orbit" if track.has_times else "shape")
+            duality = check_duality(track, fit, ESTIMATORS[method])
+        if not fit.passed or (duality is not None and not duality.passed):
             status = EXIT_FAILED_CHECKS
         if args.json:
             report = fit.to_dict()
+            if duality is not None:
+                report["duality"] = duality.to_dict()
             if profile is not None:
                 report["profile"] = json_safe(profile.table.to_dict("list"))
             if comparison is not None:
@@ -91,6 +98,8 @@ def _cmd_fit(args: argparse.Namespace) -> int:
             reports.append(report)
             continue
         print(fit.summary())
+        if duality is not None:
+            print("  " + duality.to_text())
         for name in ("drag", "rotation_rate"):
             if name in fit.details:
                 per = fit.time_unit if name != "drag" or args.drag == "linear" else fit.length_unit
@@ -146,6 +155,8 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     add_orbit_options(fit)
     fit.add_argument("--compare", type=_exponents, metavar="N1,N2",
                      help="compare fixed laws with the free fit (e.g. 1,-2)")
+    fit.add_argument("--check-duality", action="store_true",
+                     help="map the track by w = z^((n+3)/2), refit, compare with the dual exponent")
     timefree = fit.add_argument_group("the time-free methods")
     timefree.add_argument("--smoothing", choices=("spline", "savgol"), default="spline",
                           help="how to smooth before differentiating (default spline, GCV level)")

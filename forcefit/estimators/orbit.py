@@ -409,17 +409,7 @@ def optimise(
         vector = vector_of(values)
         varying = [i for i, name in enumerate(model.names) if values[name].vary]
         steps = _steps(model, vector, size, speed, duration)
-        sets = np.repeat(vector[None, :], 2 * len(varying), axis=0)
-        for column, i in enumerate(varying):
-            sets[2 * column, i] += steps[i]
-            sets[2 * column + 1, i] -= steps[i]
-        predictions, ok = model.predict(sets)
-        stacked = np.concatenate(predictions, axis=1)        # (2V, n_total, 2)
-        if not ok.all():
-            stacked[~ok] = np.nan
-        difference = (stacked[0::2] - stacked[1::2]) / (2 * steps[varying])[:, None, None]
-        jac = -(difference / sigma[None, :, :]).reshape(len(varying), -1).T
-        return np.nan_to_num(jac)
+        return np.nan_to_num(-model.jacobian(vector, steps, varying) / np.repeat(sigma.ravel(), 2)[:, None])
 
     minimizer = lmfit.Minimizer(residual, params, scale_covar=not sigma_known)
     try:

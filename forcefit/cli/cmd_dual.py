@@ -1,0 +1,60 @@
+"""``forcefit dual``: the track mapped to its Kasner-Arnold dual, written as CSV."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import Any
+
+from ..duality import dual_exponent, dual_strength, dual_track, specific_energy_at
+from ..estimators import fit_orbit, fit_shape
+from ..loaders import save_track
+from ._common import EXIT_OK, FORMATTER, pair, read_tracks
+
+_EXAMPLES = """\
+examples:
+  forcefit dual hooke_run.csv --out kepler_image.csv      # law and centre from a fit
+  forcefit dual path.csv --exponent 1 --centre 0,0 --out mapped.csv
+"""
+
+
+def _cmd_dual(args: argparse.Namespace) -> int:
+    tracks = read_tracks(args.file, args)
+    for track in tracks:
+        exponent, centre, energy = args.exponent, args.centre, None
+        if exponent is None or centre is None:
+            if track.has_times:
+                fit = fit_orbit(track, centre=centre, exponent=exponent)
+            else:
+                fit = fit_shape(track, centre=centre)
+            exponent = fit.exponent if exponent is None else exponent
+            centre = fit.centre if centre is None else centre
+            states = fit.details.get("states")
+            if states:
+                energy = specific_energy_at((states["x0"], states["y0"]),
+                                            (states["vx0"], states["vy0"]), exponent, fit.strength)
+        dual = dual_track(track, exponent, centre)
+        print(f"{track.name}: n = {exponent:.6g} about ({centre[0]:.6g}, {centre[1]:.6g}) "
+              f"{track.length_unit}; mapped by w = z^{(exponent + 3) / 2:.6g}")
+        print(f"  predicted dual law: n' = {dual_exponent(exponent):.6g}"
+              + (f", k' = {dual_strength(exponent, energy):.6g}" if energy is not None else ""))
+        if args.out:
+            out = Path(args.out)
+            if len(tracks) > 1:
+                out = out.with_name(f"{out.stem}_{track.name}{out.suffix}")
+            save_track(dual, out)
+            print(f"  wrote {dual.n_points} samples to {out} ({dual.metadata['units_note']})")
+    return EXIT_OK
+
+
+def register(commands: Any, loading: argparse.ArgumentParser) -> None:
+    """Add the ``dual`` command."""
+    parser = commands.add_parser(
+        "dual", parents=[loading], formatter_class=FORMATTER, epilog=_EXAMPLES,
+        help="map a track to its dual law (w = z^((n+3)/2)) and write it",
+        description="Map a track by the Kasner-Arnold duality, re-timed, and write the image.")
+    parser.add_argument("file", metavar="FILE")
+    parser.add_argument("--exponent", type=float, metavar="N", help="the track's exponent (default: fit)")
+    parser.add_argument("--centre", type=pair, metavar="X,Y", help="the force centre (default: fit)")
+    parser.add_argument("--out", metavar="FILE", help="CSV to write the dual track to")
+    parser.set_defaults(handler=_cmd_dual)
