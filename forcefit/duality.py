@@ -90,7 +90,9 @@ def dual_track(track: Track, exponent: float, centre: Sequence[float] = (0.0, 0.
         The dual path: positions w in L**alpha (written in the track's length unit with
         the centre at the origin) and, for a timestamped track, the new time
         tau = integral of alpha |z|**(2 alpha - 2) dt (cumulative Simpson rule). Its metadata
-        record alpha and the predicted dual exponent.
+        record alpha and the predicted dual exponent. A shape-only track keeps its sigma,
+        mapped by |dw/dz|; a re-timed one drops it (noise in z also perturbs the new times)
+        so that a fit estimates the noise.
 
     Examples
     --------
@@ -108,7 +110,10 @@ def dual_track(track: Track, exponent: float, centre: Sequence[float] = (0.0, 0.
     theta = np.unwrap(np.arctan2(dy, dx))
     modulus = radius**alpha
     x, y = modulus * np.cos(alpha * theta), modulus * np.sin(alpha * theta)
-    sigma = None if track.sigma is None else track.sigma * abs(alpha) * radius ** (alpha - 1.0)
+    # sigma maps with |dw/dz|; but noise in z also perturbs the new times, an error the
+    # positions' sigma cannot carry, so a re-timed track leaves its noise to be fitted.
+    sigma = None if track.sigma is None or track.t is not None else (
+        track.sigma * abs(alpha) * radius ** (alpha - 1.0))
     tau = None
     if track.t is not None:
         rate = alpha * radius ** (2.0 * alpha - 2.0)

@@ -137,3 +137,32 @@ def test_sample_reports_an_unconverged_run_and_resumes_it(tmp_path, capsys):
     assert report["posterior"]["n_steps"] == 600
     assert (tmp_path / "plots" / "run_02_corner.png").stat().st_size > 10_000
     assert main(["sample", path, "--save", str(chain), "--resume", str(chain)]) == 2
+
+
+def test_apsides_of_the_stairwell_pendulum_leave_no_anomaly(capsys):
+    # The demo pendulum (datasets_demo/README.md): L = 11.0 m, g = 9.8105 m/s^2, latitude 52 deg;
+    # its precession is the Airy rate (3/8) a b omega / L^2 minus the Earth's Omega_E sin 52.
+    assert main(["apsides", str(DEMO / "stairwell_pendulum.csv"), "--length-unit", "px",
+                 "--scale", "1.6 mm", "--origin", "958.3,541.7", "--flip-y", "--pendulum-length",
+                 "11.0", "--gravity", "9.8105", "--latitude", "52", "--json"]) == 0
+    (report,) = json.loads(capsys.readouterr().out)
+    rates = report["precession_rad_per_s"]
+    assert abs(rates["anomalous"]) < 3 * rates["anomalous_stderr"]
+    assert rates["finite_amplitude"] > 3e-4 and rates["earth_rotation"] < 0
+
+
+def test_dual_and_plan_commands(tmp_path, capsys):
+    hooke = tmp_path / "hooke.csv"
+    main(["simulate", "--exponent", "1", "--strength", "4", "--start", "1.4,0", "--velocity", "0,1.6",
+          "--duration", "10", "--rate", "60", "--noise", "0.001", "--seed", "1", "--out", str(hooke)])
+    assert main(["dual", str(hooke), "--exponent", "1", "--centre", "0,0", "--out",
+                 str(tmp_path / "image.csv")]) == 0
+    assert main(["fit", str(tmp_path / "image.csv"), "--centre", "0,0", "--json"]) == 0
+    capsys.readouterr()
+    assert main(["fit", str(hooke), "--check-duality", "--json"]) == 0
+    (report,) = json.loads(capsys.readouterr().out.split("\n", 0)[0])
+    assert report["duality"]["passed"] is True
+    assert main(["plan", "--pendulum", "2.4", "--semi-axes", "0.2,0.1", "--duration", "30",
+                 "--rate", "30", "--noise", "0.001", "--target", "1e-4", "--json"]) == 0
+    plan = json.loads(capsys.readouterr().out)
+    assert 0 < plan["exponent_stderr"] < 1e-3 and plan["needs"]["duration"] > 30

@@ -28,8 +28,11 @@ WINDOW = 0.3
 
 MIN_APSES = 3
 
-MIN_LOCAL_POINTS = 9
+MIN_LOCAL_POINTS = 11
 """Fewest raw points in the local fit around an apse."""
+
+ORDER = 4
+"""Degree of the polynomial in theta fitted to r around an apse (a quadratic biases r there)."""
 
 
 @dataclass(frozen=True)
@@ -126,26 +129,35 @@ def _local_apse(
     kind: str, theta: FloatArray, radius: FloatArray, sigma: FloatArray, around: float,
     half_width: float, time: FloatArray | None, path_theta: FloatArray,
 ) -> Apse | None:
-    """Fit r = c0 + c1 d + c2 d**2 (d = theta - around) to the raw points near an apse."""
+    """Fit r as a quartic in d = theta - around to the raw points near an apse and locate
+    its extremum (Newton's method), with errors by the delta method."""
     near = np.abs(theta - around) <= half_width
     if near.sum() < MIN_LOCAL_POINTS:                  # a fast passage: take the nearest points
         near = np.zeros(theta.size, dtype=bool)
         near[np.argsort(np.abs(theta - around))[:MIN_LOCAL_POINTS]] = True
         half_width = float(np.abs(theta[near] - around).max())
     d = theta[near] - around
-    design = np.column_stack((np.ones_like(d), d, d * d)) / sigma[near, None]
+    design = np.vander(d, ORDER + 1, increasing=True) / sigma[near, None]
     coefficients, *_ = np.linalg.lstsq(design, radius[near] / sigma[near], rcond=None)
     residual = radius[near] / sigma[near] - design @ coefficients
-    scale = max(float(residual @ residual) / max(d.size - 3, 1), 1.0)
+    scale = max(float(residual @ residual) / max(d.size - ORDER - 1, 1), 1.0)
     covariance = np.linalg.inv(design.T @ design) * scale
-    c0, c1, c2 = coefficients
-    if (kind == "pericentre") != (c2 > 0):
+    powers = np.arange(ORDER + 1)
+    slope = powers[1:] * coefficients[1:]                        # dr/dd coefficients
+    bend = powers[2:] * (powers[2:] - 1) * coefficients[2:]      # d2r/dd2 coefficients
+    if (kind == "pericentre") != (coefficients[2] > 0):
         return None
-    shift = -c1 / (2 * c2)
+    shift = -coefficients[1] / (2 * coefficients[2])
+    for _ in range(20):                                          # Newton on dr/dd = 0
+        step = np.polyval(slope[::-1], shift) / np.polyval(bend[::-1], shift)
+        shift -= step
+        if abs(step) < 1e-15:
+            break
     if abs(shift) > half_width:
         return None
-    gradient_angle = np.array([0.0, -1.0 / (2 * c2), c1 / (2 * c2**2)])
-    gradient_radius = np.array([1.0, -c1 / (2 * c2), c1**2 / (4 * c2**2)])
+    curvature = float(np.polyval(bend[::-1], shift))
+    gradient_angle = np.concatenate(([0.0], -powers[1:] * shift ** (powers[1:] - 1) / curvature))
+    gradient_radius = shift**powers
     angle = around + shift
     angle_se = math.sqrt(float(gradient_angle @ covariance @ gradient_angle))
     time_at = time_se = math.nan
@@ -153,7 +165,7 @@ def _local_apse(
         time_at = float(np.interp(angle, path_theta, time))
         rate = float(np.gradient(path_theta, time)[np.argmin(np.abs(path_theta - angle))])
         time_se = angle_se / abs(rate)
-    return Apse(kind, float(angle), angle_se, float(c0 - c1**2 / (4 * c2)),
+    return Apse(kind, float(angle), angle_se, float(np.polyval(coefficients[::-1], shift)),
                 math.sqrt(float(gradient_radius @ covariance @ gradient_radius)), time_at, time_se)
 
 
