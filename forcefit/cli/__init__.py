@@ -16,6 +16,7 @@ from . import (
     cmd_demo,
     cmd_dual,
     cmd_fit,
+    cmd_grade,
     cmd_inspect,
     cmd_plan,
     cmd_sample,
@@ -42,8 +43,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"forcefit {__version__}")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     loading = loading_options()
-    for module in (cmd_inspect, cmd_fit, cmd_sample, cmd_apsides, cmd_dual, cmd_plan, cmd_simulate,
-                   cmd_demo):
+    for module in (cmd_inspect, cmd_fit, cmd_sample, cmd_apsides, cmd_dual, cmd_plan, cmd_grade,
+                   cmd_simulate, cmd_demo):
         module.register(commands, loading)
     return parser
 

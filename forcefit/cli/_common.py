@@ -99,11 +99,14 @@ def _calibration(args: argparse.Namespace) -> Calibration | None:
     return None
 
 
+def loading_keywords(args: argparse.Namespace) -> dict[str, object]:
+    """The keyword arguments of `load_tracks` the reading options ask for."""
+    sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
+    return {**dict(args.column), "length_unit": args.length_unit, "time_unit": args.time_unit,
+            "frame_rate": args.frame_rate, "calibration": _calibration(args), "sheet": sheet,
+            "track_id": args.track_id}
+
+
 def read_tracks(path: str, args: argparse.Namespace) -> list[Track]:
     """Load the tracks of one file with the reading and calibration options."""
-    sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
-    return load_tracks(
-        path, **dict(args.column), length_unit=args.length_unit, time_unit=args.time_unit,
-        frame_rate=args.frame_rate, calibration=_calibration(args), sheet=sheet,
-        track_id=args.track_id,
-    )
+    return load_tracks(path, **loading_keywords(args))  # type: ignore[arg-type]
