@@ -3,49 +3,42 @@
 from __future__ import annotations
 
 import argparse
+import math
 import warnings
+from pathlib import Path
 from typing import Any
 
-from ..demo import demo_datasets
+from ..demo import DemoDataset, demo_datasets
 from ..errors import ForcefitError, ForcefitWarning
 from ..estimators import fit_curvature, fit_orbit, fit_shape
 from ..geometry import describe_path
+from ..grading import GradingRule, grade_runs
 from ..inspection import inspect_track
 from ..posterior import sample_posterior
 from ..result import LawFit
 from ..track import Track
-from ..units import format_measurement, strength_unit
+from ..units import format_measurement
 from ._common import EXIT_OK
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
     datasets = demo_datasets(args.data)
-    sampled = False
     for dataset in datasets:
         print(f"\n== {dataset.title}")
         expected = dataset.expected
         print(f"   true law: n = {expected['exponent']:g}, k = {expected['strength']:.6g} "
               f"{expected['strength_unit']}")
         if dataset.is_class_set:
-            print(f"   {'run':<8} {'points':>6} {'duration':>9}  {'exponent n':<22} "
-                  f"{'k at the nearest whole n':<26} checks")
+            _grade_class(dataset, args.out)
+            continue
         for path in dataset.paths:
             try:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore", ForcefitWarning)
                     for track in dataset.load(path):
-                        if dataset.is_class_set:
-                            fit = _class_line(track)
-                            if not sampled:
-                                sampled = True
-                                pending = fit
-                        else:
-                            _demo_track(track, dataset.fit_options)
+                        _demo_track(track, dataset.fit_options)
             except ForcefitError as exc:
                 print(f"   {path.name}: refused — {exc}")
-    if sampled:
-        print(f"\n== posterior of {pending.track_name} (emcee, run until converged)")
-        print(sample_posterior(pending, seed=1, progress=True).summary())
     return EXIT_OK
 
 
@@ -54,16 +47,25 @@ def _failed(fit: LawFit) -> str:
     return "failed: " + ", ".join(failed) if failed else "passed"
 
 
-def _class_line(track: Track) -> LawFit:
-    """One line per student run: the orbit fit, and k at the nearest whole exponent."""
-    fit = fit_orbit(track)
-    nominal = round(fit.exponent)
-    value, error = fit.strength_at_exponent(nominal)
-    unit = strength_unit(track.length_unit, track.time_unit, nominal)
-    print(f"   {track.name:<8} {track.n_points:6d} {track.duration:7.2f} {track.time_unit}  "
-          f"{format_measurement(fit.exponent, fit.exponent_stderr):<22} "
-          f"{format_measurement(value, error, unit):<26} {_failed(fit)}")
-    return fit
+def _grade_class(dataset: DemoDataset, out: str) -> None:
+    """Grade the class set against its expected law and write the class report."""
+    expected = dataset.expected
+    rule = GradingRule(expect=expected["exponent"], tolerance=expected["exponent_tolerance"],
+                       strength=expected["strength"], strength_tolerance=expected["strength_tolerance"],
+                       load_options=dict(dataset.load_options))
+    print(f"   grading {len(dataset.paths)} runs: |n - {rule.expect:g}| <= {rule.tolerance:g} and k within "
+          f"{100 * (rule.strength_tolerance or 0):g}% of {rule.strength:.5g} {expected['strength_unit']}")
+    frame = grade_runs(list(dataset.paths), rule, out, title="pendulum lab (demo class set)")
+    for row in frame.to_dict("records"):
+        exponent = (format_measurement(row["exponent"], row["exponent_stderr"])
+                    if math.isfinite(row["exponent"]) else "—")
+        print(f"   {row['run']:<8} {'pass' if row['passed'] else 'FAIL'}  n = {exponent:<20} "
+              f"{row['reason']}")
+    print(f"   class report: {Path(out) / 'index.html'}  (results table {Path(out) / 'results.csv'})")
+    first = dataset.paths[0]
+    track = dataset.load(first)[0]
+    print(f"\n== posterior of {track.name} (emcee, run until converged)")
+    print(sample_posterior(fit_orbit(track), seed=1, progress=True).summary())
 
 
 def _demo_track(track: Track, options: dict[str, Any]) -> None:
@@ -91,4 +93,6 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
         "demo", help="run forcefit on the bundled demo data",
         description="Run the main job on the bundled, invented demo data.")
     demo.add_argument("--data", metavar="DIR", help="demo folder (default: datasets_demo)")
+    demo.add_argument("--out", default="forcefit-report", metavar="DIR",
+                      help="where the class report goes (default forcefit-report)")
     demo.set_defaults(handler=_cmd_demo)

@@ -21,6 +21,7 @@ from ..estimators import (
 from ..estimators.dual_check import check_duality
 from ..geometry import describe_path
 from ..laws import EARTH_ROTATION_RATE
+from ..report import write_report
 from ..result import LawFit
 from ..track import Track
 from ..units import time_factor
@@ -87,10 +88,13 @@ def _cmd_fit(args: argparse.Namespace) -> int:
             duality = check_duality(track, fit, ESTIMATORS[method])
         if not fit.passed or (duality is not None and not duality.passed):
             status = EXIT_FAILED_CHECKS
+        page = write_report(fit, args.report, track=track) if args.report else None
         if args.json:
             report = fit.to_dict()
             if duality is not None:
                 report["duality"] = duality.to_dict()
+            if page is not None:
+                report["report"] = str(page)
             if profile is not None:
                 report["profile"] = json_safe(profile.table.to_dict("list"))
             if comparison is not None:
@@ -109,6 +113,8 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         if profile is not None:
             print(f"\nforce profile ({'F/h^2, no timestamps' if profile.force_is_per_h2 else 'F'}):")
             print(profile.to_text())
+        if page is not None:
+            print(f"  report: {page}")
         if comparison is not None:
             print("\nlaws compared (a small p-value rejects the fixed law):")
             columns = ["exponent", "chi2", "reduced_chi2", "aic", "bic", "delta_bic", "p_value"]
@@ -152,6 +158,7 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     fit.add_argument("--centre", type=pair, metavar="X,Y",
                      help="the force centre, if known (default: found from the data)")
     fit.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    fit.add_argument("--report", metavar="DIR", help="write an HTML report with figures into DIR")
     add_orbit_options(fit)
     fit.add_argument("--compare", type=_exponents, metavar="N1,N2",
                      help="compare fixed laws with the free fit (e.g. 1,-2)")

@@ -11,6 +11,7 @@ from ..errors import InputError
 from ..estimators import fit_orbit
 from ..figures import corner_figure, save_figure, trace_figure
 from ..posterior import sample_posterior
+from ..report import write_report
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, pair, read_tracks
 from .cmd_fit import add_orbit_options, orbit_options
 
@@ -56,11 +57,15 @@ def _cmd_sample(args: argparse.Namespace) -> int:
             folder.mkdir(parents=True, exist_ok=True)
             save_figure(corner_figure(posterior), folder / f"{track.name}_corner.png")
             save_figure(trace_figure(posterior), folder / f"{track.name}_trace.png")
+        page = write_report(fit, args.report, track=track, posterior=posterior) if args.report else None
         if args.json:
-            reports.append({"track": track.name, "fit": fit.to_dict(), "posterior": posterior.to_dict()})
+            reports.append({"track": track.name, "fit": fit.to_dict(), "posterior": posterior.to_dict(),
+                            "report": str(page) if page else None})
             continue
         print(f"{track.name} — orbit fit: n = {fit.exponent:.6g} ± {fit.exponent_stderr:.2g}")
         print(posterior.summary())
+        if page is not None:
+            print(f"report: {page}")
         if args.figures:
             print(f"figures: {Path(args.figures) / (track.name + '_corner.png')}, "
                   f"{Path(args.figures) / (track.name + '_trace.png')}")
@@ -89,5 +94,6 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     sampling.add_argument("--save", metavar="FILE", help="keep the chain in this HDF5 file")
     sampling.add_argument("--resume", metavar="FILE", help="continue the chain in this HDF5 file")
     sampling.add_argument("--figures", metavar="DIR", help="write corner and trace plots (PNG) here")
+    sampling.add_argument("--report", metavar="DIR", help="write an HTML report with the posterior into DIR")
     sampling.add_argument("--json", action="store_true", help="print JSON instead of a table")
     parser.set_defaults(handler=_cmd_sample)
