@@ -15,8 +15,9 @@ import glob
 import math
 import os
 import traceback
-from collections.abc import Callable, Iterable, Sequence
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from concurrent.futures import Future, ProcessPoolExecutor, as_completed
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from multiprocessing import get_context
 from pathlib import Path
@@ -168,7 +169,22 @@ def read_results(path: str | os.PathLike[str]) -> pd.DataFrame:
     return frame
 
 
+class _InProcess:
+    """Runs each submitted call at once, here, on one thread like a worker process: the
+    executor for ``workers=1``."""
+
+    def submit(self, function: Callable[..., Any], *args: Any) -> Future[Any]:
+        from threadpoolctl import threadpool_limits
+
+        future: Future[Any] = Future()
+        with threadpool_limits(limits=1):
+            future.set_result(function(*args))
+        return future
+
+
 def _executor(workers: int | None, scheduler: str | None) -> tuple[Any, Callable[[], None]]:
+    if workers == 1 and scheduler is None:
+        return _InProcess(), lambda: None
     if scheduler is not None:
         try:
             from dask.distributed import Client
@@ -178,8 +194,21 @@ def _executor(workers: int | None, scheduler: str | None) -> tuple[Any, Callable
         client = Client(scheduler)
         return client, client.close
     pool = ProcessPoolExecutor(max_workers=workers or os.cpu_count() or 1,
-                               mp_context=get_context("spawn"))
+                               mp_context=get_context("spawn"), initializer=_one_thread_each)
     return pool, lambda: pool.shutdown(cancel_futures=True)
+
+
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS")
+
+
+def _one_thread_each() -> None:
+    """Worker start-up: one thread per process, so that workers do not fight over the cores.
+
+    The variables must be set before numpy loads its linear-algebra library; the pool
+    passes them to each worker through the environment (see `_single_threaded`).
+    """
+    for name in THREAD_VARIABLES:
+        os.environ.setdefault(name, "1")
 
 
 def grade_runs(
@@ -203,7 +232,7 @@ def grade_runs(
     out_dir : path
         Where ``results.csv``, ``index.html``, ``exponents.png`` and ``runs/`` go.
     workers : int, optional
-        Local worker processes (default: all cores).
+        Local worker processes (default: all cores); 1 grades in this process.
     scheduler : str, optional
         Address of a dask.distributed scheduler to run on instead.
     resume : bool
@@ -229,7 +258,8 @@ def grade_runs(
     paths = [p for p in find_runs(source) if str(p) not in rows]
     executor, close = _executor(workers, scheduler)
     try:
-        futures = [executor.submit(grade_run, str(p), rule, str(folder)) for p in paths]
+        with _single_threaded():
+            futures = [executor.submit(grade_run, str(p), rule, str(folder)) for p in paths]
         done = _completed(futures, scheduler is not None)
         with tqdm(total=len(paths), disable=not progress, unit="run", desc="grading") as bar:
             for future in done:
@@ -246,6 +276,21 @@ def grade_runs(
                        strength=rule.strength, strength_tolerance=rule.strength_tolerance,
                        strength_unit=unit, csv_name=RESULTS, title=title)
     return frame
+
+
+@contextmanager
+def _single_threaded() -> Iterator[None]:
+    """While worker processes start, tell them to use one thread each (BLAS, OpenMP, numba)."""
+    saved = {name: os.environ.get(name) for name in THREAD_VARIABLES}
+    os.environ.update({name: "1" for name in THREAD_VARIABLES})
+    try:
+        yield
+    finally:
+        for name, value in saved.items():
+            if value is None:
+                os.environ.pop(name, None)
+            else:
+                os.environ[name] = value
 
 
 def _completed(futures: list[Any], on_dask: bool) -> Iterable[Any]:

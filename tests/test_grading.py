@@ -1,0 +1,144 @@
+"""Grading the demo class set, locally and on dask; resuming; reports that are safe to open."""
+
+import os
+import re
+import shutil
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from forcefit.grading import GradingRule, grade_runs, read_results
+from forcefit.report import safe_name
+
+from .conftest import DEMO
+
+# The demo class set's card (datasets_demo/README.md): n = 1 within 0.05, k = g/L = 9.81/2.40 s^-2
+# within 3%; runs 9-12 fail for the stated reasons.
+RULE = GradingRule(expect=1.0, tolerance=0.05, strength=9.81 / 2.40, strength_tolerance=0.03,
+                   load_options={"length_unit": "px"})
+CLASS = DEMO / "class_pendulum"
+
+
+@pytest.fixture(scope="module")
+def graded(tmp_path_factory):
+    out = tmp_path_factory.mktemp("graded")
+    return out, grade_runs(CLASS, RULE, out, workers=2, progress=False)
+
+
+def test_demo_class_set_is_graded_with_reasons(graded):
+    out, frame = graded
+    result = dict(zip(frame["run"], zip(frame["passed"], frame["reason"])))
+    assert len(result) == 12
+    assert all(result[f"run_{i:02d}"][0] for i in range(1, 9))
+    assert not result["run_09"][0] and result["run_09"][1].startswith("strength outside tolerance")
+    assert not result["run_10"][0] and "exponent outside tolerance" in result["run_10"][1]
+    assert not result["run_11"][0] and "too short" in result["run_11"][1]
+    assert not result["run_12"][0] and "load error" in result["run_12"][1] and "row 904" in result["run_12"][1]
+    table = pd.read_csv(out / "results.csv")
+    assert "strength_at_expected [s^-2]" in table.columns and "duration [s]" in table.columns
+
+
+class _Checker(HTMLParser):
+    """Checks that every non-void element is closed in order."""
+
+    VOID = {"meta", "img", "br", "hr", "link", "input"}
+
+    def __init__(self):
+        super().__init__()
+        self.stack, self.problems, self.images, self.links = [], [], [], []
+
+    def handle_starttag(self, tag, attrs):
+        attributes = dict(attrs)
+        if tag == "img":
+            self.images.append(attributes.get("src", ""))
+        if tag == "a":
+            self.links.append(attributes.get("href", ""))
+        if tag not in self.VOID:
+            self.stack.append(tag)
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack.pop() != tag:
+            self.problems.append(tag)
+
+
+def _check_page(path: Path) -> _Checker:
+    checker = _Checker()
+    checker.feed(path.read_text(encoding="utf-8"))
+    assert not checker.problems and not checker.stack, (path, checker.problems, checker.stack)
+    return checker
+
+
+def test_reports_are_well_formed_and_every_figure_exists(graded):
+    out, _ = graded
+    index = _check_page(out / "index.html")
+    assert (out / "exponents.png").stat().st_size > 5000
+    pages = [out / link for link in index.links]
+    assert len(pages) == 11                                   # the unreadable run has no page
+    for page in pages:
+        checker = _check_page(page)
+        assert checker.images and all(src.startswith("data:image/png;base64,") for src in checker.images)
+        for name in re.findall(r"\((run_\d+_\w+\.png)\)", page.read_text()):
+            assert (page.parent / name).stat().st_size > 1000
+
+
+def test_text_from_files_is_escaped(tmp_path):
+    hostile = "run<img src=x onerror=alert(1)>"
+    shutil.copy(CLASS / "run_02.csv", tmp_path / f"{hostile}.csv")
+    out = tmp_path / "out"
+    frame = grade_runs(tmp_path, RULE, out, workers=1, progress=False)
+    assert frame["run"].tolist() == [hostile]
+    for page in (out / "index.html", out / "runs" / f"{safe_name(hostile)}.html"):
+        text = page.read_text()
+        assert "<img src=x" not in text and "&lt;img src=x onerror=alert(1)&gt;" in text
+    assert safe_name("../../x") == "x"
+    assert all(p.resolve().is_relative_to(out.resolve()) for p in out.rglob("*"))
+
+
+def test_an_interrupted_batch_resumes_without_redoing_or_losing_runs(tmp_path):
+    runs = sorted(CLASS.glob("run_0[1-4].csv"))
+    out = tmp_path / "out"
+    grade_runs(runs[:2], RULE, out, workers=1, progress=False)            # interrupted after two
+    first = {p.name: p.stat().st_mtime_ns for p in (out / "runs").glob("*.html")}
+    frame = grade_runs(runs, RULE, out, workers=1, progress=False, resume=True)
+    assert sorted(frame["run"]) == ["run_01", "run_02", "run_03", "run_04"]
+    for name, stamp in first.items():
+        assert (out / "runs" / name).stat().st_mtime_ns == stamp          # not graded again
+    assert len(read_results(out / "results.csv")) == 4
+
+
+def test_dask_local_cluster_gives_the_same_table(graded):
+    distributed = pytest.importorskip("dask.distributed")
+    out, local = graded
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster:
+        on_dask = grade_runs(CLASS, RULE, out.parent / "dask", scheduler=cluster.scheduler_address,
+                             progress=False)
+    columns = ["run", "passed", "reason", "exponent", "strength_at_expected"]
+    pd.testing.assert_frame_equal(local[columns], on_dask[columns], check_exact=False, rtol=1e-9)
+
+
+@pytest.mark.slow
+def test_report_renders_in_headless_chromium(graded, tmp_path):
+    browser = shutil.which("chromium") or shutil.which("chromium-browser")
+    if browser is None:
+        pytest.skip("chromium is not installed (apt install chromium)")
+    import subprocess
+
+    out, _ = graded
+    page = next((out / "runs").glob("run_01.html"))
+    shot = tmp_path / "shot.png"
+    subprocess.run([browser, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
+                    "--no-first-run", "--disable-background-networking", "--disable-component-update",
+                    "--disable-sync", f"--user-data-dir={tmp_path / 'profile'}",
+                    f"--screenshot={shot}", "--window-size=1200,2400", page.as_uri()],
+                   check=True, capture_output=True, timeout=120, env={**os.environ})
+    from matplotlib.image import imread
+
+    image = imread(shot)
+    assert image.shape[0] >= 2000
+    # the figures are drawn: many pixels of the data colour (Okabe-Ito blue #0072B2)
+    blue = (abs(image[..., 0] - 0x00 / 255) < 0.08) & (abs(image[..., 1] - 0x72 / 255) < 0.08) & (
+        abs(image[..., 2] - 0xB2 / 255) < 0.08)
+    assert blue.sum() > 2000
