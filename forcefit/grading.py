@@ -16,7 +16,7 @@ import math
 import os
 import traceback
 from collections.abc import Callable, Iterable, Iterator, Sequence
-from concurrent.futures import Future, ProcessPoolExecutor, as_completed
+from concurrent.futures import ProcessPoolExecutor, as_completed
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from multiprocessing import get_context
@@ -169,22 +169,29 @@ def read_results(path: str | os.PathLike[str]) -> pd.DataFrame:
     return frame
 
 
-class _InProcess:
-    """Runs each submitted call at once, here, on one thread like a worker process: the
-    executor for ``workers=1``."""
-
-    def submit(self, function: Callable[..., Any], *args: Any) -> Future[Any]:
+def _graded(paths: Sequence[Path], rule: GradingRule, folder: Path, workers: int | None,
+            scheduler: str | None) -> Iterator[dict[str, Any]]:
+    """Rows as runs finish: here one by one (``workers=1``, on one thread like a worker
+    process), or from worker processes or a dask cluster in the order they complete."""
+    if workers == 1 and scheduler is None:
         from threadpoolctl import threadpool_limits
 
-        future: Future[Any] = Future()
-        with threadpool_limits(limits=1):
-            future.set_result(function(*args))
-        return future
+        for path in paths:
+            with threadpool_limits(limits=1):
+                row = grade_run(str(path), rule, str(folder))
+            yield row
+        return
+    executor, close = _executor(workers, scheduler)
+    try:
+        with _single_threaded():
+            futures = [executor.submit(grade_run, str(p), rule, str(folder)) for p in paths]
+        for future in _completed(futures, scheduler is not None):
+            yield future.result()
+    finally:
+        close()
 
 
 def _executor(workers: int | None, scheduler: str | None) -> tuple[Any, Callable[[], None]]:
-    if workers == 1 and scheduler is None:
-        return _InProcess(), lambda: None
     if scheduler is not None:
         try:
             from dask.distributed import Client
@@ -256,20 +263,12 @@ def grade_runs(
     if resume and table.exists():
         rows = {row["file"]: row for row in read_results(table).to_dict("records")}
     paths = [p for p in find_runs(source) if str(p) not in rows]
-    executor, close = _executor(workers, scheduler)
-    try:
-        with _single_threaded():
-            futures = [executor.submit(grade_run, str(p), rule, str(folder)) for p in paths]
-        done = _completed(futures, scheduler is not None)
-        with tqdm(total=len(paths), disable=not progress, unit="run", desc="grading") as bar:
-            for future in done:
-                row = future.result()
-                rows[row["file"]] = row
-                _write_table(rows.values(), table)
-                bar.update(1)
-                bar.set_postfix_str(f"{row['run']}: {'pass' if row['passed'] else 'fail'}")
-    finally:
-        close()
+    with tqdm(total=len(paths), disable=not progress, unit="run", desc="grading") as bar:
+        for row in _graded(paths, rule, folder, workers, scheduler):
+            rows[row["file"]] = row
+            _write_table(rows.values(), table)          # whole, after every run
+            bar.update(1)
+            bar.set_postfix_str(f"{row['run']}: {'pass' if row['passed'] else 'fail'}")
     frame = _write_table(rows.values(), table) if rows else pd.DataFrame()
     unit = next((u for u in frame.get("strength_unit", []) if u), "")
     write_class_report(frame.to_dict("records"), folder, expect=rule.expect, tolerance=rule.tolerance,

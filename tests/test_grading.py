@@ -139,7 +139,10 @@ def test_report_renders_in_headless_chromium(graded, tmp_path):
 
     image = imread(shot)
     assert image.shape[0] >= 2000
-    # the figures are drawn: many pixels of the data colour (Okabe-Ito blue #0072B2)
-    blue = (abs(image[..., 0] - 0x00 / 255) < 0.08) & (abs(image[..., 1] - 0x72 / 255) < 0.08) & (
-        abs(image[..., 2] - 0xB2 / 255) < 0.08)
-    assert blue.sum() > 2000
+    # the figures are drawn: pixels of the data colour (Okabe-Ito blue #0072B2) and many of the
+    # fitted-orbit colour (vermillion #D55E00)
+    def count(red, green, blue):
+        return int(((abs(image[..., 0] - red / 255) < 0.08) & (abs(image[..., 1] - green / 255) < 0.08)
+                    & (abs(image[..., 2] - blue / 255) < 0.08)).sum())
+
+    assert count(0x00, 0x72, 0xB2) > 500 and count(0xD5, 0x5E, 0x00) > 2000
