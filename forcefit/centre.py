@@ -96,7 +96,7 @@ def _from_accelerations(track: Track, curve: SmoothedCurve) -> CentreEstimate:
     accel_sd = np.sqrt(second_var[:, 0] + second_var[:, 1])
     if np.mean(magnitude > MIN_SIGNAL * accel_sd) < MIN_SIGNIFICANT_FRACTION:
         raise NotIdentifiable(
-            f"track {track.name!r}: the acceleration is not significantly different from zero "
+            f"{track.label}: the acceleration is not significantly different from zero "
             "along the path; it looks straight, so no force (or too weak a force) acts on it."
         )
     normal = np.column_stack((-accel[:, 1], accel[:, 0])) / np.maximum(magnitude, 1e-300)[:, None]
@@ -160,14 +160,14 @@ def _starting_centres(points: FloatArray) -> list[FloatArray]:
 def _from_curvature_relation(track: Track, curve: SmoothedCurve) -> CentreEstimate:
     if is_straight(track.x, track.y, curve.noise):
         raise NotIdentifiable(
-            f"track {track.name!r}: the path stays within its noise of a straight line; it looks "
+            f"{track.label}: the path stays within its noise of a straight line; it looks "
             "straight, so no force can be read from it."
         )
     kappa, kappa_err = curvature_of(curve)
     used = attractive_points(curve, kappa, kappa_err)
     if used.sum() < 10:
         raise NotIdentifiable(
-            f"track {track.name!r}: the curvature is too noisy to locate the centre from the shape "
+            f"{track.label}: the curvature is too noisy to locate the centre from the shape "
             f"({int(used.sum())} of {track.n_points} points bend significantly). Give the centre."
         )
     size = float(np.ptp(curve.value, axis=0).max())
@@ -180,7 +180,7 @@ def _from_curvature_relation(track: Track, curve: SmoothedCurve) -> CentreEstima
             found.append(estimate)
     if not found:
         raise NotIdentifiable(
-            f"track {track.name!r}: no point makes the path a power-law orbit without timestamps "
+            f"{track.label}: no point makes the path a power-law orbit without timestamps "
             "(is it circular about its own centre?). Give the centre, or timestamps."
         )
     found.sort(key=lambda estimate: estimate.reduced_chi2)

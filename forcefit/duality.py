@@ -105,7 +105,7 @@ def dual_track(track: Track, exponent: float, centre: Sequence[float] = (0.0, 0.
     dx, dy = track.x - centre[0], track.y - centre[1]
     radius = np.hypot(dx, dy)
     if np.any(radius == 0.0):
-        raise InputError(f"track {track.name!r} passes through the centre, where w = z**alpha is "
+        raise InputError(f"{track.label} passes through the centre, where w = z**alpha is "
                          "singular; give the right centre.")
     theta = np.unwrap(np.arctan2(dy, dx))
     modulus = radius**alpha

@@ -147,7 +147,7 @@ def _about(
 ) -> PathGeometry:
     offset = curve.value - np.asarray(centre)
     if np.any(np.hypot(offset[:, 0], offset[:, 1]) == 0.0):
-        raise GeometryError(f"track {track.name!r}: the path passes through the centre {centre}.")
+        raise GeometryError(f"{track.label}: the path passes through the centre {centre}.")
     polar = polar_about(curve, np.asarray(centre))
     velocity = curve.first
     kappa, kappa_err = curvature_of(curve)
@@ -166,7 +166,7 @@ def _about(
         notes.append(f"only {track.n_points / turns:.0f} samples per revolution; at least "
                      f"{MIN_POINTS_PER_TURN} resolve the curvature well.")
     for note in notes:
-        warnings.warn(f"track {track.name!r}: {note}", ForcefitWarning, stacklevel=3)
+        warnings.warn(f"{track.label}: {note}", ForcefitWarning, stacklevel=3)
     return PathGeometry(
         track=track, parameter=curve.parameter, position=curve.value, velocity=velocity,
         acceleration=curve.second, speed=speed,

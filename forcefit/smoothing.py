@@ -55,13 +55,13 @@ def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
     steps = np.diff(parameter)
     if track.t is not None and np.ptp(steps) > 0.01 * np.median(steps):
         raise GeometryError(
-            f"track {track.name!r}: Savitzky-Golay smoothing needs evenly spaced samples, but "
+            f"{track.label}: Savitzky-Golay smoothing needs evenly spaced samples, but "
             "the spacing varies (dropped frames?). Use the default spline smoothing."
         )
     window = min(window | 1, (track.n_points - 1) | 1 if track.n_points % 2 == 0 else track.n_points)
     order, delta = 4, float(np.mean(steps))
     if window <= order + 1:
-        raise GeometryError(f"track {track.name!r}: too few points for Savitzky-Golay smoothing.")
+        raise GeometryError(f"{track.label}: too few points for Savitzky-Golay smoothing.")
     data = np.column_stack((track.x, track.y))
     derivative = [savgol_filter(data, window, order, deriv=d, delta=delta, axis=0) for d in range(3)]
     coefficients = [savgol_coeffs(window, order, deriv=d, delta=delta, use="dot") for d in range(3)]

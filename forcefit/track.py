@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import pathlib
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 from types import MappingProxyType
@@ -142,6 +143,16 @@ class Track:
                 "error. Leave sigma out if it is not known."
             )
         return sigma
+
+    @property
+    def label(self) -> str:
+        """How messages name the track: its source file (and id) when read from one."""
+        source = self.metadata.get("source")
+        if source and source != "<DataFrame>":
+            suffix = self.name[len(pathlib.Path(source).stem):] if self.name.startswith(
+                pathlib.Path(source).stem) else f" ({self.name})"
+            return f"{source}{suffix}"
+        return f"track {self.name!r}"
 
     @property
     def n_points(self) -> int:

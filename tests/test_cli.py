@@ -72,12 +72,13 @@ def test_simulate_without_a_law_exits_2(capsys):
     assert "--exponent" in capsys.readouterr().err
 
 
-def test_demo_inspects_every_bundled_run(capsys):
-    assert main(["demo"]) == 0
+def test_demo_runs_the_main_job_on_every_bundled_run(capsys, tmp_path):
+    assert main(["demo", "--out", str(tmp_path / "report")]) == 0
     out = capsys.readouterr().out
     for name in ("stairwell_pendulum", "airtable_puck", "comet_heliocentric", "run_01", "run_11"):
         assert name in out
-    assert "run_12.csv: refused" in out and "row 904" in out
+    assert "load error" in out and "row 904" in out and "converged" in out
+    assert (tmp_path / "report" / "index.html").exists()
 
 
 def test_fit_prints_a_table_with_units(capsys):

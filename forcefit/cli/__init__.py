@@ -54,7 +54,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     handler: Callable[[argparse.Namespace], int] = args.handler
-    warnings.formatwarning = _one_line_warning
+    previous, warnings.formatwarning = warnings.formatwarning, _one_line_warning
     try:
         return handler(args)
     except ForcefitError as exc:
@@ -66,6 +66,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     except BrokenPipeError:                    # the reader (head, less) stopped listening
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return EXIT_OK
+    finally:
+        warnings.formatwarning = previous
 
 
 def _one_line_warning(message: Any, category: Any, *_: Any, **__: Any) -> str:

@@ -10,7 +10,7 @@ import numpy as np
 from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
 from ..curves import is_straight
-from ..errors import NotIdentifiable
+from ..errors import GeometryError, NotIdentifiable
 from ..geometry import PathGeometry
 from ..result import Diagnostic
 
@@ -24,20 +24,33 @@ def require_orbit(path: PathGeometry) -> None:
         For a circle about the centre (r constant: a circular orbit exists for every
         exponent) and for a path that does not bend (no force).
     """
-    name = path.track.name
     if is_straight(path.track.x, path.track.y, path.smoothing.noise):
         raise NotIdentifiable(
-            f"track {name!r}: the path does not bend significantly; a straight path shows no "
+            f"{path.track.label}: the path does not bend significantly; a straight path shows no "
             "force, so no exponent can be read from it."
         )
     spread = float(np.ptp(path.radius))
     noise = float(np.median(path.radius_stderr))
     if spread < max(6.0 * noise, 1e-9 * float(path.radius.mean())):
         raise NotIdentifiable(
-            f"track {name!r}: the distance from the centre is constant (a circle about the "
+            f"{path.track.label}: the distance from the centre is constant (a circle about the "
             f"centre, r = {path.radius.mean():.6g} {path.track.length_unit}); a circular orbit "
             "exists for every exponent, so the exponent cannot be determined. Launch the body "
             "off-circular so that r varies."
+        )
+
+
+def require_monotonic(path: PathGeometry) -> None:
+    """theta must keep turning one way about the centre on a central orbit."""
+    step = np.diff(path.polar_angle)
+    sense = np.sign(path.polar_angle[-1] - path.polar_angle[0])
+    back = sense * step < -3.0 * (path.gamma_stderr[1:] + 1e-12)
+    if back.mean() > 0.01:
+        index = int(np.argmax(back)) + 1
+        raise GeometryError(
+            f"{path.track.label}: the path winds back about the centre "
+            f"({path.centre[0]:.6g}, {path.centre[1]:.6g}) near sample {index}: the polar angle "
+            "must turn one way along a central-force orbit. Check the centre, or the data."
         )
 
 

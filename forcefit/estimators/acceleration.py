@@ -95,7 +95,7 @@ def fit_acceleration(
     """
     if not track.has_times:
         raise NotIdentifiable(
-            f"track {track.name!r}: the acceleration estimator needs timestamps; use the "
+            f"{track.label}: the acceleration estimator needs timestamps; use the "
             "curvature or shape estimator for a shape-only path."
         )
     path = path if path is not None else describe_path(track, centre=centre, smoothing=smoothing)
@@ -103,7 +103,7 @@ def fit_acceleration(
     radius, radial, sigma = _radial(path, path.centre)
     inward = radial < -2.0 * sigma
     if inward.sum() < 10:
-        raise NotIdentifiable(f"track {track.name!r}: the radial acceleration is not significantly "
+        raise NotIdentifiable(f"{track.label}: the radial acceleration is not significantly "
                               "inward anywhere; no attractive central force is seen.")
     pilot = fit_line(np.log(radius[inward]), np.log(-radial[inward]), sigma[inward] / -radial[inward])
     scale = float(np.exp(np.mean(np.log(radius))))     # where k r**n is best determined

@@ -230,7 +230,7 @@ def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
     apses = _find_apses(track, path, sense)
     if len(apses) < MIN_APSES:
         raise NotIdentifiable(
-            f"track {track.name!r}: {len(apses)} apses (peri- or apocentres) found, at least "
+            f"{track.label}: {len(apses)} apses (peri- or apocentres) found, at least "
             f"{MIN_APSES} are needed for the apsidal angle. Record a longer stretch of the orbit."
         )
     angles = np.array([apse.angle for apse in apses])

@@ -129,7 +129,7 @@ def _fit_about(track: Track, path: PathGeometry) -> LawFit:
     used = attractive_points(path.smoothing, path.curvature, path.curvature_stderr)
     if used.sum() < MIN_USED:
         raise NotIdentifiable(
-            f"track {track.name!r}: only {int(used.sum())} points bend significantly towards the "
+            f"{track.label}: only {int(used.sum())} points bend significantly towards the "
             "centre; the curvature is too noisy for the curvature estimator. Try the shape estimator."
         )
     log_radius, log_force, sigma = _relation(path, path.centre, used)

@@ -25,7 +25,7 @@ from ..geometry import PathGeometry, describe_path
 from ..orbit_model import OrbitModel, observed
 from ..result import Diagnostic, LawFit
 from ..track import Track
-from ._common import require_orbit, runs_diagnostic
+from ._common import require_monotonic, require_orbit, runs_diagnostic
 from .curvature import fit_curvature
 
 Loss = Literal["linear", "soft_l1", "huber"]
@@ -40,7 +40,7 @@ def _as_tracks(track_or_tracks: Track | Sequence[Track]) -> tuple[Track, ...]:
     for track in tracks:
         if not track.has_times:
             raise NotIdentifiable(
-                f"track {track.name!r}: the orbit estimator needs timestamps; fit a shape-only "
+                f"{track.label}: the orbit estimator needs timestamps; fit a shape-only "
                 "path with the shape or curvature estimator."
             )
     return tracks
@@ -185,6 +185,7 @@ def fit_orbit(
     paths = [describe_path(track, centre=centre) for track in tracks]
     for path in paths:
         require_orbit(path)
+        require_monotonic(path)
     epochs, indices = zip(*(_epoch(track, epoch) for track in tracks))
     radius = float(np.exp(np.mean(np.concatenate([np.log(path.radius) for path in paths]))))
     rate = 0.0 if rotation_rate is None or rotation_rate == "fit" else float(rotation_rate)

@@ -110,7 +110,7 @@ def force_profile(
     smallest = max(10, int(0.02 * label.size))
     groups = [np.flatnonzero(label == b) for b in range(bins) if np.sum(label == b) >= smallest]
     if len(groups) < 3:
-        raise NotIdentifiable(f"track {track.name!r}: too few points spread over too small a range "
+        raise NotIdentifiable(f"{track.label}: too few points spread over too small a range "
                               "of radius for a force profile; use fewer bins or a longer track.")
     rows = []
     for group in groups:

@@ -28,7 +28,13 @@ from ..geometry import PathGeometry, describe_path
 from ..result import Diagnostic, LawFit
 from ..smoothing import Smoothing
 from ..track import Track
-from ._common import angular_momentum, constancy_diagnostic, require_orbit, runs_diagnostic
+from ._common import (
+    angular_momentum,
+    constancy_diagnostic,
+    require_monotonic,
+    require_orbit,
+    runs_diagnostic,
+)
 from .curvature import fit_curvature
 
 AMBIGUITY_FACTOR = 1.5
@@ -91,20 +97,6 @@ def _residuals(
     if prior is None:
         return residual
     return np.concatenate((residual, (np.asarray(centre) - prior[0]) / prior[1]))
-
-
-def _require_monotonic(path: PathGeometry) -> None:
-    """theta must keep turning one way about the centre on a central orbit."""
-    step = np.diff(path.polar_angle)
-    sense = np.sign(path.polar_angle[-1] - path.polar_angle[0])
-    back = sense * step < -3.0 * (path.gamma_stderr[1:] + 1e-12)
-    if back.mean() > 0.01:
-        index = int(np.argmax(back)) + 1
-        raise GeometryError(
-            f"track {path.track.name!r}: the path winds back about the centre "
-            f"({path.centre[0]:.6g}, {path.centre[1]:.6g}) near sample {index}: the polar angle "
-            "must turn one way along a central-force orbit. Check the centre, or the data."
-        )
 
 
 GRID_EXPONENTS = (-5.0, -4.0, -3.0, -2.5, -2.0, -1.5, -1.0, -0.5, 0.0, 0.5, 1.0, 2.0, 3.0)
@@ -239,10 +231,10 @@ def fit_shape(
 
 def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit:
     require_orbit(path)
-    _require_monotonic(path)
+    require_monotonic(path)
     result, reference, sigma = _solve(track, path, free_centre)
     if not result.success:
-        raise FitError(f"track {track.name!r}: the shape fit did not converge ({result.message}).",
+        raise FitError(f"{track.label}: the shape fit did not converge ({result.message}).",
                        last_params=dict(zip(("exponent", "log_ratio", "log_r0", "slope0"), result.x)))
     n_params = result.x.size
     chi2 = 2.0 * float(result.cost)
