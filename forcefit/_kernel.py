@@ -21,8 +21,12 @@ E3 = np.ascontiguousarray(tableau.E3)
 E5 = np.ascontiguousarray(tableau.E5)
 
 SAFETY, MIN_FACTOR, MAX_FACTOR = 0.9, 0.2, 10.0
-MAX_STEPS = 2_000_000
-"""Steps allowed per orbit before it is given up as failed (e.g. falling into the centre)."""
+BASE_STEPS, STEPS_PER_SAMPLE = 50_000, 500
+"""Steps allowed per leg: BASE_STEPS + STEPS_PER_SAMPLE per requested time; beyond, the orbit
+is given up as failed (an optimiser's trial orbit that dives at the centre, say)."""
+
+CLOSEST = 1e-6
+"""An orbit that comes nearer the centre than this fraction of its start radius has failed."""
 
 OK, FAILED = 0, 1
 
@@ -56,6 +60,8 @@ def _leg(times, order, start, y0, exponent, strength, linear, quadratic, rtol, a
     radius = np.sqrt(y[0] ** 2 + y[1] ** 2)
     h_abs = 0.01 * min(radius / max(speed, 1e-300), np.sqrt(radius / max(accel, 1e-300)))
     steps = 0
+    limit = BASE_STEPS + STEPS_PER_SAMPLE * order.size
+    closest2 = (CLOSEST * radius) ** 2
     for index in order:
         target = times[index]
         while t != target:
@@ -63,7 +69,7 @@ def _leg(times, order, start, y0, exponent, strength, linear, quadratic, rtol, a
             accepted = False
             while not accepted:
                 steps += 1
-                if steps > MAX_STEPS or h_abs < 1e-15 * max(abs(t), 1.0):
+                if steps > limit or h_abs < 1e-15 * max(abs(t), 1.0):
                     return FAILED
                 h = min(h_abs, abs(target - t)) * direction
                 for s in range(1, STAGES):
@@ -105,6 +111,8 @@ def _leg(times, order, start, y0, exponent, strength, linear, quadratic, rtol, a
                     for i in range(n_state):
                         y[i] = y_new[i]
                         k[0][i] = k[STAGES][i]
+                    if y[0] * y[0] + y[1] * y[1] < closest2 or not np.isfinite(y[0] + y[1]):
+                        return FAILED
                 else:
                     h_abs = abs(h) * max(MIN_FACTOR, SAFETY * error ** (-1.0 / 8.0))
         for i in range(n_state):

@@ -97,7 +97,8 @@ def _from_accelerations(track: Track, curve: SmoothedCurve) -> CentreEstimate:
     if np.mean(magnitude > MIN_SIGNAL * accel_sd) < MIN_SIGNIFICANT_FRACTION:
         raise NotIdentifiable(
             f"{track.label}: the acceleration is not significantly different from zero "
-            "along the path; it looks straight, so no force (or too weak a force) acts on it."
+            "along the path; it looks straight, so no force (or too weak a force) acts on it. Check "
+            "that the body moved under the force (and not only the camera)."
         )
     normal = np.column_stack((-accel[:, 1], accel[:, 0])) / np.maximum(magnitude, 1e-300)[:, None]
     offset = np.sum(normal * value, axis=1)
@@ -161,7 +162,8 @@ def _from_curvature_relation(track: Track, curve: SmoothedCurve) -> CentreEstima
     if is_straight(track.x, track.y, curve.noise):
         raise NotIdentifiable(
             f"{track.label}: the path stays within its noise of a straight line; it looks "
-            "straight, so no force can be read from it."
+            "straight, so no force can be read from it. Check that the body moved under the force "
+            "(and not only the camera)."
         )
     kappa, kappa_err = curvature_of(curve)
     used = attractive_points(curve, kappa, kappa_err)

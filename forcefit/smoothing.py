@@ -105,12 +105,16 @@ def smooth_track(
         return _savgol(np.asarray(parameter, dtype=float), track, window)
     if smoothing not in ("auto", "spline"):
         raise GeometryError(f'smoothing {smoothing!r} is unknown; use "spline" or "savgol".')
-    if track.t is None:
-        return smooth_curve(_arc_length(track, level), track.x, track.y, sigma=track.sigma, level=level)
-    parameter = np.asarray(track.t, dtype=float)
-    pilot = _pilot(parameter, track, level)
-    return smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level,
-                        penalty_weight=_arc_length_weight(pilot))
+    try:
+        if track.t is None:
+            return smooth_curve(_arc_length(track, level), track.x, track.y, sigma=track.sigma,
+                                level=level)
+        parameter = np.asarray(track.t, dtype=float)
+        pilot = _pilot(parameter, track, level)
+        return smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level,
+                            penalty_weight=_arc_length_weight(pilot))
+    except GeometryError as exc:
+        raise GeometryError(f"{track.label}: {exc} Record a longer stretch of the path.") from None
 
 
 def _arc_length_weight(pilot: SmoothedCurve) -> PenaltyWeight:

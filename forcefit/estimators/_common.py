@@ -27,7 +27,8 @@ def require_orbit(path: PathGeometry) -> None:
     if is_straight(path.track.x, path.track.y, path.smoothing.noise):
         raise NotIdentifiable(
             f"{path.track.label}: the path does not bend significantly; a straight path shows no "
-            "force, so no exponent can be read from it."
+            "force, so no exponent can be read from it. Check that the body moved under the force "
+            "(and not only the camera)."
         )
     spread = float(np.ptp(path.radius))
     noise = float(np.median(path.radius_stderr))

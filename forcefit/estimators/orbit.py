@@ -133,7 +133,7 @@ def fit_orbit(
     centre: tuple[float, float] | None = None,
     shared_centre: bool = True,
     rotation_rate: float | Literal["fit"] | None = None,
-    max_evaluations: int = 2000,
+    max_evaluations: int = 200,
 ) -> LawFit:
     """Fit the integrated orbit of F = -k r**n r_hat to every sample of timestamped tracks.
 

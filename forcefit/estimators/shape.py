@@ -63,9 +63,9 @@ def _binet_radius(
         targets = points[order]
         solution = solve_ivp(derivative, (reference, float(targets[-1])), [u0, w0], method="DOP853",
                              t_eval=targets, rtol=1e-10, atol=1e-12 * abs(u0), events=escape)
-        reached = solution.y.shape[1]
-        index = np.flatnonzero(side)[order][:reached]
-        u[index], w[index] = solution.y[0], solution.y[1]
+        values = np.asarray(solution.y, dtype=float).reshape(2, -1)     # empty if it failed at once
+        index = np.flatnonzero(side)[order][: values.shape[1]]
+        u[index], w[index] = values[0], values[1]
     return 1.0 / u, u / np.hypot(u, w)
 
 
@@ -90,10 +90,15 @@ def _residuals(
     exponent, log_ratio, log_r0, slope0 = params[:4]
     centre = fixed_centre if fixed_centre is not None else (float(params[4]), float(params[5]))
     radius, theta = _polar(x, y, centre, reference)
-    r0 = math.exp(log_r0)
-    model, cos_gamma = _binet_radius(theta, reference, exponent, math.exp(log_ratio),
-                                     1.0 / r0, -slope0 / r0)
-    residual = np.where(np.isfinite(model), (radius - model) * cos_gamma / sigma, penalty)
+    try:
+        r0 = math.exp(log_r0)
+        with np.errstate(all="ignore"):
+            model, cos_gamma = _binet_radius(theta, reference, exponent, math.exp(log_ratio),
+                                             1.0 / r0, -slope0 / r0)
+            residual = np.where(np.isfinite(model), (radius - model) * cos_gamma / sigma, penalty)
+    except (OverflowError, ZeroDivisionError, ValueError):     # the optimiser strayed far out
+        residual = np.full(radius.size, penalty)
+    residual = np.where(np.isfinite(residual), residual, penalty)
     if prior is None:
         return residual
     return np.concatenate((residual, (np.asarray(centre) - prior[0]) / prior[1]))
@@ -126,7 +131,7 @@ def _start(
             return _residuals(np.concatenate(([exponent], params)), track.x, track.y, sigma,
                               reference, path.centre, 1e6, None)
 
-        trial = least_squares(held, [-(exponent + 3.0) * mean_log_r, log_r0, slope], max_nfev=60)
+        trial = least_squares(held, [-(exponent + 3.0) * mean_log_r, log_r0, slope], max_nfev=20)
         if trial.cost < best_cost:
             best, best_cost = np.concatenate(([exponent], trial.x)), float(trial.cost)
     return np.asarray(best)
@@ -155,7 +160,7 @@ def _solve(
              if free_centre and track.has_times and np.all(stderr > 0) else None)
     result = least_squares(
         _residuals, start, args=(track.x, track.y, sigma, reference, fixed, penalty, prior),
-        method="trf", x_scale="jac", max_nfev=400,
+        method="trf", x_scale="jac", max_nfev=200,
     )
     return result, reference, sigma
 
