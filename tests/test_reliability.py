@@ -1,0 +1,106 @@
+"""Issue #8: failed fits are marked everywhere, nothing is lost, outputs are safe."""
+
+import json
+import os
+import re
+
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+
+import forcefit._atomic as atomic
+import forcefit.grading as grading
+from forcefit.cli import main
+from forcefit.estimators import fit_orbit
+from forcefit.grading import GradingRule, grade_runs, read_results
+from forcefit.loaders import save_track
+from forcefit.report import write_report
+from forcefit.track import Track
+
+from .conftest import DEMO, ROOT
+
+
+def _screened(tmp_path):
+    """A screened force exp(-r)/r^2: no power law describes it."""
+    def derivative(_, s):
+        r = np.hypot(s[0], s[1])
+        a = -np.exp(-r) / r**2
+        return [s[2], s[3], a * s[0] / r, a * s[1] / r]
+
+    t = np.linspace(0.0, 80.0, 1200)
+    solution = solve_ivp(derivative, (0, 80), [1.5, 0, 0, 0.28], t_eval=t, rtol=1e-11, atol=1e-13)
+    rng = np.random.default_rng(2)
+    track = Track(t=t, x=solution.y[0] + 0.002 * rng.standard_normal(t.size),
+                  y=solution.y[1] + 0.002 * rng.standard_normal(t.size), sigma=0.002, name="screened")
+    path = tmp_path / "screened.csv"
+    save_track(track, path)
+    return track, path
+
+
+def test_a_failed_fit_is_marked_in_every_output(tmp_path, capsys):
+    track, path = _screened(tmp_path)
+    fit = fit_orbit(track)
+    assert not fit.passed
+    assert "[FAIL]" in fit.summary()
+    assert fit.to_dict()["passed"] is False
+    page = write_report(fit, tmp_path / "report", track=track)
+    assert "CHECKS FAILED" in page.read_text()
+    assert main(["fit", str(path)]) == 1
+    assert "[FAIL]" in capsys.readouterr().out
+    assert main(["fit", str(path), "--json"]) == 1
+    assert json.loads(capsys.readouterr().out)[0]["passed"] is False
+
+
+def test_an_unconverged_fit_fails_its_convergence_check(tmp_path):
+    track, _ = _screened(tmp_path)
+    fit = fit_orbit(track, max_evaluations=2)
+    assert fit.diagnostics["convergence"].passed is False and not fit.passed
+
+
+def test_outputs_are_written_whole_or_not_at_all(tmp_path, monkeypatch):
+    target = tmp_path / "results.csv"
+    target.write_text("old, complete contents\n")
+
+    def broken_replace(source, destination):
+        raise OSError("disk full")
+
+    monkeypatch.setattr(atomic.os, "replace", broken_replace)
+    with pytest.raises(OSError, match="disk full"):
+        atomic.write_atomic(target, "new contents that never arrive\n")
+    assert target.read_text() == "old, complete contents\n"
+    assert [p.name for p in tmp_path.iterdir()] == ["results.csv"]       # no temporary left over
+
+
+def test_an_interrupted_batch_keeps_every_finished_row(tmp_path, monkeypatch):
+    runs = sorted((DEMO / "class_pendulum").glob("run_0[1-4].csv"))
+    real = grading.grade_run
+    calls = []
+
+    def interrupted(path, rule, out_dir=None):
+        calls.append(path)
+        if len(calls) == 3:
+            raise KeyboardInterrupt                                        # Ctrl-C during run 3
+        return real(path, rule, out_dir)
+
+    monkeypatch.setattr(grading, "grade_run", interrupted)
+    rule = GradingRule(expect=1.0, tolerance=0.05, load_options={"length_unit": "px"})
+    with pytest.raises(KeyboardInterrupt):
+        grade_runs(runs, rule, tmp_path, workers=1, progress=False)
+    assert sorted(read_results(tmp_path / "results.csv")["run"]) == ["run_01", "run_02"]
+
+
+def test_run_names_cannot_escape_the_output_folder(tmp_path):
+    track = Track(t=np.linspace(0, 10, 300), x=np.cos(np.linspace(0, 10, 300)),
+                  y=0.5 * np.sin(np.linspace(0, 10, 300)), name="../../x")
+    page = write_report(fit_orbit(track, centre=(0.0, 0.0)), tmp_path / "out", track=track)
+    assert page.parent == tmp_path / "out"
+    assert all(p.resolve().is_relative_to((tmp_path / "out").resolve()) for p in tmp_path.rglob("*")
+               if p.is_file())
+
+
+def test_no_eval_pickle_or_unsafe_yaml_on_user_data():
+    source = "\n".join(p.read_text() for p in (ROOT / "forcefit").rglob("*.py"))
+    for pattern in (r"\beval\(", r"\bexec\(", r"\bpickle\b", r"yaml\.load\(", r"\bmarshal\b",
+                    r"allow_pickle=True"):
+        assert not re.search(pattern, source), pattern
+    assert os.path.exists(ROOT / "forcefit" / "templates" / "run.html.j2")
