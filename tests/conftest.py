@@ -29,3 +29,25 @@ def write(tmp_path: Path):
         return path
 
     return _write
+
+
+def screened_track(n_points: int = 1500, *, with_sigma: bool = True, scale: float = 1.0):
+    """A noisy orbit in the screened force F = exp(-r/scale)/r^2, which no power law describes
+    (its local exponent is -2 - r/scale; a Yukawa-like force, common practice)."""
+    import numpy as np
+    from scipy.integrate import solve_ivp
+
+    from forcefit.track import Track
+
+    def derivative(_, s):
+        r = np.hypot(s[0], s[1])
+        a = -np.exp(-r / scale) / r**2
+        return [s[2], s[3], a * s[0] / r, a * s[1] / r]
+
+    t = np.linspace(0.0, 80.0, n_points)
+    solution = solve_ivp(derivative, (0, 80), [1.5, 0, 0, 0.28], t_eval=t, rtol=1e-11, atol=1e-13,
+                         method="DOP853")
+    rng = np.random.default_rng(2)
+    return Track(t=t, x=solution.y[0] + 0.002 * rng.standard_normal(t.size),
+                 y=solution.y[1] + 0.002 * rng.standard_normal(t.size),
+                 sigma=0.002 if with_sigma else None, name="screened")

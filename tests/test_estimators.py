@@ -3,7 +3,6 @@
 import erfa
 import numpy as np
 import pytest
-from scipy.integrate import solve_ivp
 
 from forcefit.errors import GeometryError, NotIdentifiable
 from forcefit.estimators import fit_acceleration, fit_curvature, fit_shape, force_profile
@@ -12,6 +11,8 @@ from forcefit.loaders import load_track
 from forcefit.result import LawFit
 from forcefit.simulate import simulate_orbit
 from forcefit.track import Track
+
+from .conftest import screened_track
 
 EXPONENTS = [-2.5, -2.0, -1.5, -1.0, -0.5, 0.0, 0.5, 1.0, 2.0]
 ESTIMATORS = {"curvature": (fit_curvature, 0.05), "acceleration": (fit_acceleration, 0.05),
@@ -111,18 +112,7 @@ def test_screened_force_profile_follows_its_local_exponent():
     # F = exp(-r/lambda)/r^2 (a screened, Yukawa-like force; common practice): its local exponent
     # d ln F / d ln r = -2 - r/lambda.
     scale = 1.0
-
-    def derivative(_, s):
-        r = np.hypot(s[0], s[1])
-        a = -np.exp(-r / scale) / r**2
-        return [s[2], s[3], a * s[0] / r, a * s[1] / r]
-
-    t = np.linspace(0.0, 80.0, 1500)
-    solution = solve_ivp(derivative, (0, 80), [1.5, 0, 0, 0.28], t_eval=t, rtol=1e-11, atol=1e-13,
-                         method="DOP853")
-    rng = np.random.default_rng(2)
-    track = Track(t=t, x=solution.y[0] + 0.002 * rng.standard_normal(t.size),
-                  y=solution.y[1] + 0.002 * rng.standard_normal(t.size))
+    track = screened_track(with_sigma=False, scale=scale)
     profile = force_profile(track, bins=6)
     table = profile.table
     expected = -2.0 - table["exponent_radius"] / scale

@@ -4,7 +4,6 @@ import erfa
 import numpy as np
 import pandas as pd
 import pytest
-from scipy.integrate import solve_ivp
 
 from forcefit.errors import NotIdentifiable
 from forcefit.estimators import compare_laws, fit_orbit
@@ -14,6 +13,7 @@ from forcefit.propagate import Drag, propagate_batch, propagate_reference
 from forcefit.simulate import simulate_orbit
 from forcefit.track import Track
 
+from .conftest import screened_track
 from .test_propagate import _kepler_positions
 
 GAUSS_K2 = 0.01720209895**2     # au^3/d^2: Gauss (1809), IAU 1976 system
@@ -140,17 +140,7 @@ def test_keplers_third_law_on_the_fitted_orbit():
 
 def test_screened_force_is_flagged_as_not_a_power_law():
     # F = exp(-r/lambda)/r^2 has no single exponent: the fit's residuals must show it.
-    def derivative(_, s):
-        r = np.hypot(s[0], s[1])
-        a = -np.exp(-r) / r**2
-        return [s[2], s[3], a * s[0] / r, a * s[1] / r]
-
-    t = np.linspace(0.0, 80.0, 1500)
-    solution = solve_ivp(derivative, (0, 80), [1.5, 0, 0, 0.28], t_eval=t, rtol=1e-11, atol=1e-13,
-                         method="DOP853")
-    rng = np.random.default_rng(2)
-    track = Track(t=t, x=solution.y[0] + 0.002 * rng.standard_normal(t.size),
-                  y=solution.y[1] + 0.002 * rng.standard_normal(t.size), sigma=0.002)
+    track = screened_track()
     fit = fit_orbit(track)
     assert not fit.passed
     assert any(not check.passed for name, check in fit.diagnostics.items()

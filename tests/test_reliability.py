@@ -6,7 +6,6 @@ import re
 
 import numpy as np
 import pytest
-from scipy.integrate import solve_ivp
 
 import forcefit._atomic as atomic
 import forcefit.grading as grading
@@ -17,21 +16,12 @@ from forcefit.loaders import save_track
 from forcefit.report import write_report
 from forcefit.track import Track
 
-from .conftest import DEMO, ROOT
+from .conftest import DEMO, ROOT, screened_track
 
 
 def _screened(tmp_path):
-    """A screened force exp(-r)/r^2: no power law describes it."""
-    def derivative(_, s):
-        r = np.hypot(s[0], s[1])
-        a = -np.exp(-r) / r**2
-        return [s[2], s[3], a * s[0] / r, a * s[1] / r]
-
-    t = np.linspace(0.0, 80.0, 1200)
-    solution = solve_ivp(derivative, (0, 80), [1.5, 0, 0, 0.28], t_eval=t, rtol=1e-11, atol=1e-13)
-    rng = np.random.default_rng(2)
-    track = Track(t=t, x=solution.y[0] + 0.002 * rng.standard_normal(t.size),
-                  y=solution.y[1] + 0.002 * rng.standard_normal(t.size), sigma=0.002, name="screened")
+    """A screened force exp(-r)/r^2 (no power law describes it), and its file."""
+    track = screened_track(1200)
     path = tmp_path / "screened.csv"
     save_track(track, path)
     return track, path
