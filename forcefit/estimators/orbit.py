@@ -195,7 +195,42 @@ def fit_orbit(
     params = _parameters(model, paths, indices, _starting_law(paths, exponent, radius),
                          exponent, centre, rate)
     result, sigma, sigma_known = optimise(model, params, paths, loss, max_evaluations)
+    if result.covar is None:
+        _covariance_at_end(result, model, paths, sigma, sigma_known)
+    if result.covar is None or not np.all(np.isfinite(result.covar)):
+        raise FitError(
+            f"{tracks[0].label}: the orbit fit found no well-determined solution (its covariance "
+            f"is singular after {result.nfev} evaluations: {result.message}). The path is probably "
+            "not an orbit in a central power law; check the centre, the units and the data.",
+            last_params={name: float(result.params[name].value) for name in result.params})
     return _law_fit(model, result, tracks, paths, sigma, sigma_known, loss)
+
+
+def _covariance_at_end(result: lmfit.minimizer.MinimizerResult, model: OrbitModel,
+                       paths: Sequence[PathGeometry], sigma: FloatArray, sigma_known: bool) -> None:
+    """Fill in the covariance lmfit leaves out when the optimiser stopped early (the fit is
+    then marked as not converged), from the Jacobian at the last point; leave it None when
+    even that is singular."""
+    vector = np.array([result.params[name].value for name in model.names])
+    varying = [model.index(name) for name in result.var_names]
+    data = observed(model.tracks)
+    size = float(np.ptp(data, axis=0).max())
+    speed = float(np.median(np.concatenate([np.hypot(*p.velocity.T) for p in paths])))
+    duration = float(max(track.duration for track in model.tracks))
+    steps = _steps(model, vector, size, speed, duration)
+    jacobian = model.jacobian(vector, steps, varying) / np.repeat(sigma.ravel(), 2)[:, None]
+    if not np.all(np.isfinite(jacobian)):
+        return
+    try:
+        covariance = np.linalg.inv(jacobian.T @ jacobian)
+    except np.linalg.LinAlgError:
+        return
+    if not sigma_known:
+        covariance *= float(result.chisqr) / max(data.size - len(varying), 1)
+    if np.all(np.isfinite(covariance)) and np.all(np.diag(covariance) > 0):
+        result.covar = covariance
+        for k, name in enumerate(result.var_names):
+            result.params[name].stderr = float(np.sqrt(covariance[k, k]))
 
 
 def _value(result: lmfit.minimizer.MinimizerResult, name: str) -> tuple[float, float]:
@@ -276,10 +311,10 @@ def _law_fit(
     dof = max(data.size - result.nvarys, 1)
     reduced = float(result.chisqr) / dof
     diagnostics = {
-        "convergence": Diagnostic(bool(result.success) and result.covar is not None,
+        "convergence": Diagnostic(bool(result.success),
                                   f"{result.message} ({result.nfev} evaluations)"
-                                  + ("" if result.covar is not None else "; no covariance: some "
-                                     "parameters are not determined by the data")),
+                                  + ("" if result.success else "; the optimiser stopped before "
+                                     "converging: the values and errors are those where it stopped")),
     }
     if sigma_known:
         spread = math.sqrt(2.0 / dof)
