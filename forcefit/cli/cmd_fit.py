@@ -75,7 +75,16 @@ def orbit_options(args: argparse.Namespace, track: Track) -> dict[str, Any]:
 
 def _cmd_fit(args: argparse.Namespace) -> int:
     status, reports = EXIT_OK, []
-    for track in read_tracks(args.file, args):
+    tracks = read_tracks(args.file, args)
+    if args.joint:
+        if len(tracks) < 2 or (args.method or "orbit") != "orbit":
+            raise InputError("--joint fits several runs of one file (an id column) with the orbit "
+                             f"method together; {args.file} holds {len(tracks)} track(s).")
+        options = orbit_options(args, tracks[0])
+        fit = fit_orbit(tracks, shared_centre=not args.separate_centres, **options)
+        print(json.dumps([fit.to_dict()], indent=2) if args.json else fit.summary())
+        return EXIT_OK if fit.passed else EXIT_FAILED_CHECKS
+    for track in tracks:
         fit = fit_track(track, args)
         profile = force_profile(track, bins=args.profile, centre=fit.centre) if args.profile else None
         comparison = None
@@ -162,6 +171,10 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     add_orbit_options(fit)
     fit.add_argument("--compare", type=_exponents, metavar="N1,N2",
                      help="compare fixed laws with the free fit (e.g. 1,-2)")
+    fit.add_argument("--joint", action="store_true",
+                     help="fit the runs of the file (an id column) together, sharing n and k")
+    fit.add_argument("--separate-centres", action="store_true",
+                     help="with --joint: each run has its own centre")
     fit.add_argument("--check-duality", action="store_true",
                      help="map the track by w = z^((n+3)/2), refit, compare with the dual exponent")
     timefree = fit.add_argument_group("the time-free methods")
