@@ -124,6 +124,9 @@ def coverage(replicates: int = 200, workers: int = 2) -> None:
 
 
 if __name__ == "__main__":
+    if "--coverage-only" in sys.argv:                     # e.g. while another job holds a core
+        coverage(workers=1 if "--one-worker" in sys.argv else 2)
+        sys.exit()
     elapsed, steps = converged_posterior()
     per_walker_solve_ivp(elapsed, steps)
     if "--coverage" in sys.argv:
