@@ -47,6 +47,18 @@ def test_an_unconverged_fit_fails_its_convergence_check(tmp_path):
     assert fit.diagnostics["convergence"].passed is False and not fit.passed
 
 
+def test_a_fit_that_runs_away_is_refused_not_returned_with_infinities():
+    # Found by the slow property suite: 12 samples, each a third of a turn apart, of an n = 3
+    # orbit; the optimiser wanders to n ~ -256 where the strength overflows.
+    from forcefit.errors import FitError
+    from forcefit.simulate import simulate_orbit
+
+    track = simulate_orbit(exponent=3.0, duration=21.02, rate=11 / 21.02, noise=1e-4,
+                           rng=np.random.default_rng(9), velocity=(0.0, 1.25))
+    with pytest.raises(FitError, match="ran away|no well-determined solution"):
+        fit_orbit(track)
+
+
 def test_outputs_are_written_whole_or_not_at_all(tmp_path, monkeypatch):
     target = tmp_path / "results.csv"
     target.write_text("old, complete contents\n")

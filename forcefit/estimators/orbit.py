@@ -340,6 +340,13 @@ def _law_fit(
     for name in ("drag", "rotation_rate"):
         if name in result.params:
             details[name], details[f"{name}_stderr"] = _value(result, name)
+    derived = (strength, strength * log_k_se, strength / h**2, math.exp(log_force))
+    if not all(math.isfinite(value) for value in derived):
+        raise FitError(
+            f"{tracks[0].label}: the orbit fit ran away (n = {n:.4g}, the strength overflows); "
+            "the samples are probably too sparse for the orbit (fewer than a few per turn) or the "
+            "path is not an orbit in a central power law. Check the times, the units and the data.",
+            last_params={name: float(result.params[name].value) for name in result.params})
     names = tuple(result.var_names)
     covariance = result.covar if result.covar is not None else np.full((len(names),) * 2, math.nan)
     return LawFit(
