@@ -7,8 +7,12 @@ per-walker solve_ivp one, and the coverage of the credible intervals.
     of steps and scaled to the whole run — target >= 50x slower than (a);
 (c) with --coverage: over 200 noisy replicates, how often the 68% and 95% intervals of n
     contain the truth — targets 63-73% and 92-98% (a slow study: about 50 minutes on 2 cores).
-    --coverage-only runs just (c); --log FILE appends each replicate to FILE and a rerun with the
-    same FILE resumes where an interrupted study stopped; --one-worker keeps one core free.
+    --coverage-only runs just (c); --replicates N changes the count; --log FILE appends each
+    replicate to FILE and a rerun with the same FILE resumes where an interrupted study stopped;
+    --one-worker keeps one core free. The least-squares intervals of the same fits are printed
+    beside the posterior's.
+(d) --lsq-coverage N: the least-squares intervals alone over N replicates (2000 take ~8 min),
+    to tell a miscalibrated error from the Monte Carlo scatter of 200 replicates.
 """
 
 from __future__ import annotations
@@ -96,19 +100,32 @@ def per_walker_solve_ivp(fast_time: float, steps: int, probe: int = 15) -> None:
           f"{slow_time / fast_time:.0f}x faster (target >= 50x)")
 
 
-def _covers(seed: int) -> tuple[bool, bool]:
-    """Whether the 68% and 95% intervals of n from one noisy replicate contain the truth."""
-    posterior = sample_posterior(fit_orbit(rosette(1000 + seed)), seed=seed, progress=False)
+Z68, Z95 = 0.9945, 1.9600          # two-sided normal quantiles of the 68% and 95% intervals
+
+
+def _covers(seed: int) -> tuple[bool, bool, bool, bool]:
+    """Whether the 68% and 95% intervals of n from one noisy replicate contain the truth: the
+    posterior's credible intervals, then the least-squares ones (n ± z·stderr) of the same fit."""
+    fit = fit_orbit(rosette(1000 + seed))
+    posterior = sample_posterior(fit, seed=seed, progress=False)
     low68, high68 = posterior.interval("exponent", 0.68)
     low95, high95 = posterior.interval("exponent", 0.95)
-    return bool(low68 <= -1.5 <= high68), bool(low95 <= -1.5 <= high95)
+    z = abs(fit.exponent + 1.5) / fit.exponent_stderr
+    return (bool(low68 <= -1.5 <= high68), bool(low95 <= -1.5 <= high95),
+            bool(z <= Z68), bool(z <= Z95))
+
+
+def _line(name: str, inside: int, total: int, target: str) -> str:
+    share = inside / total
+    return (f"    {name} contains the truth in {share:6.1%} ± {np.sqrt(share * (1 - share) / total):.1%}"
+            f" (binomial s.e.; target {target})")
 
 
 def coverage(replicates: int = 200, workers: int = 2, log: str | None = None) -> None:
-    """Coverage of the n intervals over noisy replicates.
+    """Coverage of the n intervals over noisy replicates, posterior and least squares side by side.
 
-    With ``log``, each finished replicate is appended to that file (seed, in68, in95) and a rerun
-    skips the seeds already there, so an interrupted study resumes.
+    With ``log``, each finished replicate is appended to that file (seed and four 0/1 flags) and
+    a rerun skips the seeds already there, so an interrupted study resumes.
     """
     import os
     from concurrent.futures import ProcessPoolExecutor, as_completed
@@ -116,40 +133,59 @@ def coverage(replicates: int = 200, workers: int = 2, log: str | None = None) ->
 
     for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS"):
         os.environ[name] = "1"
-    finished: dict[int, tuple[bool, bool]] = {}
+    finished: dict[int, tuple[bool, ...]] = {}
     if log and os.path.exists(log):
         for line in open(log, encoding="utf-8"):
-            seed, in68, in95 = (int(word) for word in line.split())
-            finished[seed] = (bool(in68), bool(in95))
-    inside68 = sum(a for a, _ in finished.values())
-    inside95 = sum(b for _, b in finished.values())
-    done = len(finished)
+            seed, *flags = (int(word) for word in line.split())
+            finished[seed] = tuple(bool(flag) for flag in flags)
     remaining = [seed for seed in range(replicates) if seed not in finished]
     with ProcessPoolExecutor(workers, mp_context=get_context("spawn")) as pool:
         futures = {pool.submit(_covers, seed): seed for seed in remaining}
         for future in as_completed(futures):
-            in68, in95 = future.result()
+            flags = future.result()
+            finished[futures[future]] = flags
             if log:
                 with open(log, "a", encoding="utf-8") as handle:
-                    handle.write(f"{futures[future]} {int(in68)} {int(in95)}\n")
-            inside68 += in68
-            inside95 += in95
-            done += 1
-            print(f"    {done:4d} replicates: 68% covers {inside68 / done:.1%}, "
-                  f"95% covers {inside95 / done:.1%}", end="\r", flush=True)
-    print(f"\n(c) coverage over {replicates} replicates")
-    print(f"    68% interval contains the truth in {inside68 / replicates:.1%} (target 63-73%)")
-    print(f"    95% interval contains the truth in {inside95 / replicates:.1%} (target 92-98%)")
+                    handle.write(f"{futures[future]} " + " ".join(str(int(f)) for f in flags) + "\n")
+            counts = np.sum([finished[seed] for seed in finished if seed < replicates], axis=0)
+            done = sum(seed < replicates for seed in finished)
+            print(f"    {done:4d} replicates: 68% covers {counts[0] / done:.1%}, "
+                  f"95% covers {counts[1] / done:.1%}", end="\r", flush=True)
+    counts = np.sum([finished[seed] for seed in range(replicates)], axis=0)
+    print(f"\n(c) coverage of n = -1.5 over {replicates} noisy replicates")
+    print(_line("posterior 68% interval", counts[0], replicates, "63-73%"))
+    print(_line("posterior 95% interval", counts[1], replicates, "92-98%"))
+    print(_line("least-squares 68%     ", counts[2], replicates, "63-73%"))
+    print(_line("least-squares 95%     ", counts[3], replicates, "92-98%"))
+
+
+def least_squares_coverage(replicates: int) -> None:
+    """The least-squares intervals alone over many replicates (a fit takes a quarter second):
+    separates a miscalibrated error from the Monte Carlo scatter of a 200-replicate study."""
+    from tqdm import tqdm
+
+    z = np.array([(fit.exponent + 1.5) / fit.exponent_stderr
+                  for fit in (fit_orbit(rosette(1000 + seed)) for seed in tqdm(range(replicates)))])
+    print(f"\n(d) least-squares z = (n - truth) / stderr over {replicates} replicates: "
+          f"mean {z.mean():+.3f}, std {z.std(ddof=1):.3f} (1 if the errors are right)")
+    print(_line("68% interval", int(np.sum(np.abs(z) <= Z68)), replicates, "63-73%"))
+    print(_line("95% interval", int(np.sum(np.abs(z) <= Z95)), replicates, "92-98%"))
 
 
 if __name__ == "__main__":
-    if "--coverage-only" in sys.argv:                     # e.g. while another job holds a core
-        log = sys.argv[sys.argv.index("--log") + 1] if "--log" in sys.argv else None
-        coverage(workers=1 if "--one-worker" in sys.argv else 2, log=log)
+    def option(name: str, default: str | None) -> str | None:
+        return sys.argv[sys.argv.index(name) + 1] if name in sys.argv else default
+
+    replicates = int(option("--replicates", "200"))
+    if "--lsq-coverage" in sys.argv:
+        least_squares_coverage(int(option("--lsq-coverage", "2000")))
+        sys.exit()
+    if "--coverage-only" in sys.argv:
+        coverage(replicates, workers=1 if "--one-worker" in sys.argv else 2, log=option("--log", None))
         sys.exit()
     elapsed, steps = converged_posterior()
     per_walker_solve_ivp(elapsed, steps)
     if "--coverage" in sys.argv:
-        coverage()
+        coverage(replicates, log=option("--log", None))
     else:
-        print("\n(c) coverage: run with --coverage (about 20 minutes on 2 cores)")
+        print("\n(c) coverage: run with --coverage (about 45 minutes on 2 cores)")
