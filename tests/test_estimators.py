@@ -145,6 +145,26 @@ def test_path_winding_back_about_the_centre_is_refused():
         fit_shape(track, centre=(0.0, 0.0))
 
 
+def test_shape_fit_trials_that_stray_into_stiff_laws_are_cut_short(monkeypatch):
+    # Found by the slow property suite: the optimiser strayed to n ~ 1850, where one integration
+    # of Binet's equation would have run for minutes. Such trials get the penalty residual.
+    import forcefit.estimators.shape as shape
+
+    theta = np.linspace(0.0, 4.0 * np.pi, 300)
+    r = 1.0 / (1.0 + 0.5 * np.cos(theta))
+    x, y, sigma = r * np.cos(theta), r * np.sin(theta), np.full(theta.size, 1e-3)
+    penalty = 1e4
+
+    def residuals(params):
+        return shape._residuals(np.array(params), x, y, sigma, 2.0 * np.pi, None, penalty, None)
+
+    kepler = [-2.0, 0.0, np.log(2.0 / 3.0), 0.0, 0.0, 0.0]   # u'' + u = 1 from r(2 pi) = 2/3
+    assert np.max(np.abs(residuals(kepler))) < 1e-3                # this very ellipse
+    assert np.all(residuals([1853.4, -27057.7, 0.0, 0.1, 0.0, 0.0]) == penalty)
+    monkeypatch.setattr(shape, "EVALUATIONS_PER_TURN", 10)          # the budget, when it runs out
+    assert np.all(residuals(kepler) == penalty)
+
+
 def test_acceleration_needs_timestamps():
     with pytest.raises(NotIdentifiable, match="needs timestamps"):
         fit_acceleration(noisy_orbit(1.0, rng=1).shape_only())

@@ -41,11 +41,34 @@ AMBIGUITY_FACTOR = 1.5
 """Solutions whose reduced chi-square is within this factor of the best are all reported."""
 
 
+EXPONENT_RANGE = 50.0
+"""|n| beyond which the optimiser is taken to have strayed: the Binet equation is then so stiff
+that one integration could take minutes; such a trial gets the penalty residual instead."""
+
+EVALUATIONS_PER_TURN = 10_000
+"""Right-hand-side evaluations allowed per turn of polar angle (plus as many again for the
+first), about five times what even a pendulum ellipse with b/a = 0.01 needs at rtol 1e-10; a
+trial that needs more (a stiff, strayed one) gets the penalty residual."""
+
+
+class _TooStiff(Exception):
+    """A trial integration exceeded its evaluation budget (EVALUATIONS_PER_TURN)."""
+
+
 def _binet_radius(
     theta: FloatArray, reference: float, exponent: float, ratio: float, u0: float, w0: float
 ) -> tuple[FloatArray, FloatArray]:
-    """Model r(theta) and cos(gamma) at ``theta`` from u(reference) = u0, u'(reference) = w0."""
+    """Model r(theta) and cos(gamma) at ``theta`` from u(reference) = u0, u'(reference) = w0.
+
+    Raises ``_TooStiff`` when an integration exceeds its budget (EVALUATIONS_PER_TURN).
+    """
+    evaluations, budget = 0, 0
+
     def derivative(_: float, state: FloatArray) -> FloatArray:
+        nonlocal evaluations
+        evaluations += 1
+        if evaluations > budget:
+            raise _TooStiff
         u, w = state
         return np.array([w, ratio * max(u, 1e-300) ** (-exponent - 2.0) - u])
 
@@ -61,6 +84,8 @@ def _binet_radius(
             continue
         order = np.argsort(np.abs(points - reference))
         targets = points[order]
+        evaluations = 0
+        budget = int(EVALUATIONS_PER_TURN * (1.0 + abs(float(targets[-1]) - reference) / (2.0 * math.pi)))
         solution = solve_ivp(derivative, (reference, float(targets[-1])), [u0, w0], method="DOP853",
                              t_eval=targets, rtol=1e-10, atol=1e-12 * abs(u0), events=escape)
         values = np.asarray(solution.y, dtype=float).reshape(2, -1)     # empty if it failed at once
@@ -91,12 +116,14 @@ def _residuals(
     centre = fixed_centre if fixed_centre is not None else (float(params[4]), float(params[5]))
     radius, theta = _polar(x, y, centre, reference)
     try:
+        if not abs(exponent) <= EXPONENT_RANGE:
+            raise _TooStiff
         r0 = math.exp(log_r0)
         with np.errstate(all="ignore"):
             model, cos_gamma = _binet_radius(theta, reference, exponent, math.exp(log_ratio),
                                              1.0 / r0, -slope0 / r0)
             residual = np.where(np.isfinite(model), (radius - model) * cos_gamma / sigma, penalty)
-    except (OverflowError, ZeroDivisionError, ValueError):     # the optimiser strayed far out
+    except (OverflowError, ZeroDivisionError, ValueError, _TooStiff):   # the optimiser strayed
         residual = np.full(radius.size, penalty)
     residual = np.where(np.isfinite(residual), residual, penalty)
     if prior is None:
