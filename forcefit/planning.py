@@ -171,11 +171,15 @@ def required_duration(target: float, *, longest: float = 1e4, **plan: Any) -> fl
                         / target)
 
     period = 2 * math.pi / math.sqrt(plan["strength"])
-    low, high = math.log(0.5 * period), math.log(longest)
-    if gap(high) > 0:
-        raise NotIdentifiable(f"even {longest:g} time units would not reach ± {target:g} in n.")
+    low = math.log(0.5 * period)
     if gap(low) < 0:
         return math.exp(low)
+    high = low
+    while gap(high) > 0:          # double until the target is passed: a forecast costs as
+        low = high                # many samples as it spans, so never try the longest first
+        if high >= math.log(longest):
+            raise NotIdentifiable(f"even {longest:g} time units would not reach ± {target:g} in n.")
+        high = min(high + math.log(2.0), math.log(longest))
     return math.exp(brentq(gap, low, high, xtol=1e-3))
 
 

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from forcefit.errors import InputError
+from forcefit.errors import InputError, NotIdentifiable
 from forcefit.estimators import fit_orbit
 from forcefit.planning import forecast_precision, required_duration, required_rate
 from forcefit.simulate import simulate_orbit
@@ -29,6 +29,11 @@ def test_needs_for_a_target_precision():
     faster = required_rate(target, duration=20.0, **{k: v for k, v in PLAN.items()})
     plan = {**PLAN, "rate": faster}
     assert forecast_precision(duration=20.0, **plan).exponent_stderr == pytest.approx(target, rel=0.05)
+
+
+def test_a_target_out_of_reach_is_refused():
+    with pytest.raises(NotIdentifiable, match="even 40 time units"):
+        required_duration(1e-9, longest=40.0, **PLAN)
 
 
 def test_bad_plans_are_refused():
