@@ -124,7 +124,7 @@ def _check_estimator(track, estimator):
 
 QUICK = settings(max_examples=200, deadline=None, suppress_health_check=list(HealthCheck))
 LONG = settings(max_examples=5000, deadline=None, suppress_health_check=list(HealthCheck))
-PATIENT = settings(LONG, deadline=timedelta(seconds=60))   # an answer, and in bounded time
+PATIENT = settings(LONG, deadline=timedelta(seconds=300))  # an answer, and in bounded time
 
 
 @QUICK

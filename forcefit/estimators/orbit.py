@@ -340,7 +340,9 @@ def _law_fit(
     for name in ("drag", "rotation_rate"):
         if name in result.params:
             details[name], details[f"{name}_stderr"] = _value(result, name)
-    derived = (strength, strength * log_k_se, strength / h**2, math.exp(log_force))
+    with np.errstate(all="ignore"):
+        derived = (strength, strength * log_k_se, float(np.float64(strength) / h**2),
+                   float(np.exp(log_force)))
     if not all(math.isfinite(value) for value in derived):
         raise FitError(
             f"{tracks[0].label}: the orbit fit ran away (n = {n:.4g}, the strength overflows); "
