@@ -37,29 +37,27 @@ def tables(draw):
     return "\n".join(body) + draw(st.sampled_from(["", "\n", "\r\n"]))
 
 
-def _check_tables(text, tmp_path_factory):
-    path = tmp_path_factory.mktemp("table") / "table.csv"
-    path.write_text(text, encoding="utf-8")
+def _load_or_refuse(source):
+    """The tracks in ``source``, or [] when forcefit refuses it (any other exception fails)."""
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ForcefitWarning)
-            tracks = load_tracks(path)
+            return load_tracks(source)
     except ForcefitError:
-        return
-    for track in tracks:
+        return []
+
+
+def _check_tables(text, tmp_path_factory):
+    path = tmp_path_factory.mktemp("table") / "table.csv"
+    path.write_text(text, encoding="utf-8")
+    for track in _load_or_refuse(path):
         for array in (track.x, track.y, track.t, track.sigma):
             if array is not None:
                 assert np.all(np.isfinite(array))
 
 
 def _check_frames(frame):
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", ForcefitWarning)
-            tracks = load_tracks(frame)
-    except ForcefitError:
-        return
-    for track in tracks:
+    for track in _load_or_refuse(frame):
         assert np.all(np.isfinite(track.x)) and np.all(np.isfinite(track.y))
 
 
