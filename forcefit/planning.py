@@ -174,12 +174,11 @@ def required_duration(target: float, *, longest: float = 1e4, **plan: Any) -> fl
     low = math.log(0.5 * period)
     if gap(low) < 0:
         return math.exp(low)
-    high = low
+    high = min(low + math.log(2.0), math.log(longest))
     while gap(high) > 0:          # double until the target is passed: a forecast costs as
-        low = high                # many samples as it spans, so never try the longest first
-        if high >= math.log(longest):
+        if high >= math.log(longest):   # many samples as it spans, so never try the longest first
             raise NotIdentifiable(f"even {longest:g} time units would not reach ± {target:g} in n.")
-        high = min(high + math.log(2.0), math.log(longest))
+        low, high = high, min(high + math.log(2.0), math.log(longest))
     return math.exp(brentq(gap, low, high, xtol=1e-3))
 
 

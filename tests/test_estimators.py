@@ -158,6 +158,7 @@ def test_shape_fit_trials_that_stray_into_stiff_laws_are_cut_short(monkeypatch):
     def residuals(params):
         return shape._residuals(np.array(params), x, y, sigma, 2.0 * np.pi, None, penalty, None)
 
+    # Binet: for F = k/r^2, u'' + u = k/h^2, solved by u = (1 + e cos theta)/p (common practice)
     kepler = [-2.0, 0.0, np.log(2.0 / 3.0), 0.0, 0.0, 0.0]   # u'' + u = 1 from r(2 pi) = 2/3
     assert np.max(np.abs(residuals(kepler))) < 1e-3                # this very ellipse
     assert np.all(residuals([1853.4, -27057.7, 0.0, 0.1, 0.0, 0.0]) == penalty)

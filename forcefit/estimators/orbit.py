@@ -108,6 +108,19 @@ def _parameters(
     return params
 
 
+def _step_scales(model: OrbitModel, paths: Sequence[PathGeometry]) -> tuple[float, float, float]:
+    """The data's size (L), median speed (L/T) and longest duration (T): what `_steps` scales by."""
+    size = float(np.ptp(observed(model.tracks), axis=0).max())
+    speed = float(np.median(np.concatenate([np.hypot(*p.velocity.T) for p in paths])))
+    duration = float(max(track.duration for track in model.tracks))
+    return size, speed, duration
+
+
+def _last_params(result: lmfit.minimizer.MinimizerResult) -> dict[str, float]:
+    """Where the optimiser stopped, for a FitError."""
+    return {name: float(result.params[name].value) for name in result.params}
+
+
 def _steps(model: OrbitModel, vector: FloatArray, size: float, speed: float, duration: float) -> FloatArray:
     """Central-difference steps for each parameter, in its own unit."""
     scale = {"exponent": 1.0, "log_force": 1.0, "drag": 1.0 / duration, "rotation_rate": 1.0 / duration}
@@ -202,7 +215,7 @@ def fit_orbit(
             f"{tracks[0].label}: the orbit fit found no well-determined solution (its covariance "
             f"is singular after {result.nfev} evaluations: {result.message}). The path is probably "
             "not an orbit in a central power law; check the centre, the units and the data.",
-            last_params={name: float(result.params[name].value) for name in result.params})
+            last_params=_last_params(result))
     return _law_fit(model, result, tracks, paths, sigma, sigma_known, loss)
 
 
@@ -214,10 +227,7 @@ def _covariance_at_end(result: lmfit.minimizer.MinimizerResult, model: OrbitMode
     vector = np.array([result.params[name].value for name in model.names])
     varying = [model.index(name) for name in result.var_names]
     data = observed(model.tracks)
-    size = float(np.ptp(data, axis=0).max())
-    speed = float(np.median(np.concatenate([np.hypot(*p.velocity.T) for p in paths])))
-    duration = float(max(track.duration for track in model.tracks))
-    steps = _steps(model, vector, size, speed, duration)
+    steps = _steps(model, vector, *_step_scales(model, paths))
     jacobian = model.jacobian(vector, steps, varying) / np.repeat(sigma.ravel(), 2)[:, None]
     if not np.all(np.isfinite(jacobian)):
         return
@@ -348,7 +358,7 @@ def _law_fit(
             f"{tracks[0].label}: the orbit fit ran away (n = {n:.4g}, the strength overflows); "
             "the samples are probably too sparse for the orbit (fewer than a few per turn) or the "
             "path is not an orbit in a central power law. Check the times, the units and the data.",
-            last_params={name: float(result.params[name].value) for name in result.params})
+            last_params=_last_params(result))
     names = tuple(result.var_names)
     covariance = result.covar if result.covar is not None else np.full((len(names),) * 2, math.nan)
     return LawFit(
@@ -436,9 +446,7 @@ def optimise(
                             else np.full(track.n_points, float(path.smoothing.noise[0]))
                             for track, path in zip(model.tracks, paths)])[:, None]
     data = observed(model.tracks)
-    size = float(np.ptp(data, axis=0).max())
-    speed = float(np.median(np.concatenate([np.hypot(*p.velocity.T) for p in paths])))
-    duration = float(max(track.duration for track in model.tracks))
+    scales = _step_scales(model, paths)
     penalty = 1e4
 
     def vector_of(values: lmfit.Parameters) -> FloatArray:
@@ -453,7 +461,7 @@ def optimise(
     def jacobian(values: lmfit.Parameters) -> FloatArray:
         vector = vector_of(values)
         varying = [i for i, name in enumerate(model.names) if values[name].vary]
-        steps = _steps(model, vector, size, speed, duration)
+        steps = _steps(model, vector, *scales)
         return np.nan_to_num(-model.jacobian(vector, steps, varying) / np.repeat(sigma.ravel(), 2)[:, None])
 
     minimizer = lmfit.Minimizer(residual, params, scale_covar=not sigma_known)
