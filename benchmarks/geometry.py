@@ -19,7 +19,7 @@ CHILD = """
 import sys, time, resource
 import numpy as np
 from forcefit import Track
-from forcefit.geometry import describe_path
+from forcefit.geometry.path import describe_path
 n = int(sys.argv[1])
 t = np.linspace(0.0, 40 * np.pi, n)                    # 20 turns of a Hooke ellipse
 rng = np.random.default_rng(1)
@@ -46,7 +46,7 @@ def run_child(n_points: int) -> tuple[float, float, float, float]:
 def accuracy_against_full_gcv(n_points: int = 10_000) -> None:
     """Curvature error of forcefit's windowed-GCV smoothing vs scipy's full GCV, same data."""
     from forcefit import Track
-    from forcefit.geometry import describe_path
+    from forcefit.geometry.path import describe_path
 
     t = np.linspace(0.0, 40 * np.pi, n_points)
     rng = np.random.default_rng(2)

@@ -11,7 +11,7 @@ from pathlib import Path
 import numpy as np
 
 from forcefit import save_track, simulate_pendulum
-from forcefit.grading import GradingRule, grade_runs
+from forcefit.apps.grading import GradingRule, grade_runs
 
 
 def make_runs(folder: Path, count: int = 40) -> None:

@@ -18,12 +18,12 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from forcefit import simulate_orbit
+from forcefit.dynamics.laws import circular_period
+from forcefit.dynamics.orbit_model import OrbitModel
+from forcefit.dynamics.propagate import propagate_batch
 from forcefit.estimators import fit_orbit
 from forcefit.estimators.orbit import _epoch, _parameters, _starting_law, optimise
-from forcefit.geometry import describe_path
-from forcefit.laws import circular_period
-from forcefit.orbit_model import OrbitModel
-from forcefit.propagate import propagate_batch
+from forcefit.geometry.path import describe_path
 
 
 def _rhs(_: float, y: np.ndarray, n: float, k: float) -> list[float]:

@@ -26,7 +26,7 @@ from scipy.integrate import solve_ivp
 
 from forcefit import simulate_orbit
 from forcefit.estimators import fit_orbit
-from forcefit.posterior import sample_posterior
+from forcefit.inference.posterior import sample_posterior
 
 
 def rosette(seed: int) -> object:

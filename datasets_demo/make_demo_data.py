@@ -18,8 +18,8 @@ from pathlib import Path
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from forcefit.propagate import Drag, propagate_reference
-from forcefit.simulate import simulate_orbit, simulate_pendulum
+from forcefit.dynamics.propagate import Drag, propagate_reference
+from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum
 
 HERE = Path(sys.argv[1]) if len(sys.argv) > 1 else Path(__file__).resolve().parent
 CLASS = HERE / "class_pendulum"

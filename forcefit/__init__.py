@@ -1,30 +1,10 @@
 """forcefit: infer the central force law F(r) = -k r**n r_hat behind a planar trajectory."""
 
-from .centre import CentreEstimate, find_centre
-from .coordinates import Calibration, PlaneProjection, project_to_plane
-from .duality import dual_exponent, dual_track, map_power
-from .errors import (
-    FitError,
-    ForcefitError,
-    ForcefitWarning,
-    GeometryError,
-    InputError,
-    NotIdentifiable,
-)
-from .estimators import (
-    ForceProfile,
-    compare_laws,
-    fit_acceleration,
-    fit_curvature,
-    fit_orbit,
-    fit_shape,
-    force_profile,
-)
-from .estimators.apsides import Apsides, measure_apsides
-from .estimators.dual_check import DualityCheck, check_duality
-from .geometry import PathGeometry, describe_path
-from .inspection import TrackSummary, inspect_track
-from .laws import (
+from ._version import __version__
+from .analysis.apsides import Apsides, measure_apsides
+from .analysis.duality_check import DualityCheck, check_duality
+from .dynamics.duality import dual_exponent, dual_track, map_power
+from .dynamics.laws import (
     angular_momentum,
     apsidal_angle,
     apsidal_angle_circular,
@@ -38,16 +18,35 @@ from .laws import (
     radial_force,
     specific_energy,
 )
-from .loaders import load_track, load_tracks, save_track
-from .planning import Forecast, forecast_precision, required_duration, required_rate
-from .posterior import Posterior, sample_posterior
-from .propagate import BatchStates, Drag, States, propagate_batch, propagate_reference
-from .result import Diagnostic, LawFit
-from .simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
+from .dynamics.propagate import BatchStates, Drag, States, propagate_batch, propagate_reference
+from .dynamics.simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
+from .errors import (
+    FitError,
+    ForcefitError,
+    ForcefitWarning,
+    GeometryError,
+    InputError,
+    NotIdentifiable,
+)
+from .estimators import (
+    ForceProfile,
+    fit_acceleration,
+    fit_curvature,
+    fit_orbit,
+    fit_shape,
+    force_profile,
+)
+from .estimators.result import Diagnostic, LawFit
+from .geometry.centre import CentreEstimate, find_centre
+from .geometry.path import PathGeometry, describe_path
+from .inference.comparison import compare_laws
+from .inference.planning import Forecast, forecast_precision, required_duration, required_rate
+from .inference.posterior import Posterior, sample_posterior
+from .reading.coordinates import Calibration, PlaneProjection, project_to_plane
+from .reading.inspection import TrackSummary, inspect_track
+from .reading.loaders import load_track, load_tracks, save_track
 from .track import Track
 from .units import length_factor, parse_length_unit, parse_time_unit, strength_unit, time_factor
-
-__version__ = "0.1.0"
 
 __all__ = [
     "Apsides",

@@ -5,9 +5,8 @@ import math
 import numpy as np
 import pytest
 
-from forcefit.errors import NotIdentifiable
-from forcefit.estimators.apsides import measure_apsides
-from forcefit.laws import (
+from forcefit.analysis.apsides import measure_apsides
+from forcefit.dynamics.laws import (
     apsidal_angle,
     apsidal_angle_circular,
     circular_speed,
@@ -15,7 +14,8 @@ from forcefit.laws import (
     pendulum_precession_rate,
     precession_per_orbit,
 )
-from forcefit.simulate import simulate_orbit, simulate_pendulum
+from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum
+from forcefit.errors import NotIdentifiable
 
 
 @pytest.mark.parametrize(

@@ -11,7 +11,7 @@ import pytest
 from forcefit.cli import main
 from forcefit.errors import ForcefitError, GeometryError, InputError, NotIdentifiable
 from forcefit.estimators import fit_orbit, fit_shape
-from forcefit.loaders import load_tracks
+from forcefit.reading.loaders import load_tracks
 
 from .conftest import sha256
 

@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
-from forcefit.centre import find_centre
+from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import NotIdentifiable
-from forcefit.simulate import simulate_orbit
+from forcefit.geometry.centre import find_centre
 from forcefit.track import Track
 
 

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from forcefit.cli import main
-from forcefit.loaders import load_track
+from forcefit.reading.loaders import load_track
 
 from .conftest import DEMO, sha256
 

@@ -6,7 +6,7 @@ import sys
 
 import pytest
 
-from forcefit.demo import demo_datasets
+from forcefit.apps.demo import demo_datasets
 from forcefit.errors import InputError
 
 from .conftest import DEMO

@@ -3,7 +3,8 @@
 import numpy as np
 import pytest
 
-from forcefit.duality import (
+from forcefit.analysis.duality_check import check_duality
+from forcefit.dynamics.duality import (
     dual_energy,
     dual_exponent,
     dual_strength,
@@ -11,10 +12,9 @@ from forcefit.duality import (
     map_power,
     specific_energy_at,
 )
+from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import InputError
 from forcefit.estimators import fit_orbit, fit_shape
-from forcefit.estimators.dual_check import check_duality
-from forcefit.simulate import simulate_orbit
 from forcefit.track import Track
 
 

@@ -4,12 +4,12 @@ import erfa
 import numpy as np
 import pytest
 
+from forcefit.dynamics.laws import circular_period
+from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import GeometryError, NotIdentifiable
 from forcefit.estimators import fit_acceleration, fit_curvature, fit_shape, force_profile
-from forcefit.laws import circular_period
-from forcefit.loaders import load_track
-from forcefit.result import LawFit
-from forcefit.simulate import simulate_orbit
+from forcefit.estimators.result import LawFit
+from forcefit.reading.loaders import load_track
 from forcefit.track import Track
 
 from .conftest import screened_track

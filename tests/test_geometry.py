@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from forcefit.geometry import describe_path
-from forcefit.simulate import simulate_orbit
+from forcefit.dynamics.simulate import simulate_orbit
+from forcefit.geometry.path import describe_path
 from forcefit.track import Track
 
 

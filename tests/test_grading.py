@@ -9,8 +9,8 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from forcefit.grading import GradingRule, grade_runs, read_results
-from forcefit.report import safe_name
+from forcefit.apps.grading import GradingRule, grade_runs, read_results
+from forcefit.outputs.report import safe_name
 
 from .conftest import DEMO
 

@@ -1,7 +1,7 @@
 import numpy as np
 import pytest
 
-from forcefit.laws import circular_period, circular_speed, potential, radial_force
+from forcefit.dynamics.laws import circular_period, circular_speed, potential, radial_force
 
 
 @pytest.mark.parametrize("exponent", [-2.5, -2.0, -1.0, 0.0, 0.5, 1.0, 2.0])

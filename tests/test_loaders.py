@@ -7,9 +7,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from forcefit.coordinates import Calibration, project_to_plane
 from forcefit.errors import ForcefitWarning, InputError
-from forcefit.loaders import load_track, load_tracks, save_track
+from forcefit.reading.coordinates import Calibration, project_to_plane
+from forcefit.reading.loaders import load_track, load_tracks, save_track
 
 from .conftest import sha256
 

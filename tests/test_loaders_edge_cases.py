@@ -6,9 +6,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from forcefit.coordinates import Calibration
 from forcefit.errors import ForcefitWarning, InputError
-from forcefit.loaders import load_track, load_tracks
+from forcefit.reading.coordinates import Calibration
+from forcefit.reading.loaders import load_track, load_tracks
 from forcefit.track import Track
 
 ROWS = "\n".join(f"{t},{np.cos(t):.4f},{np.sin(t):.4f}" for t in np.arange(0, 2, 0.1))

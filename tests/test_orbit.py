@@ -5,12 +5,13 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from forcefit.dynamics.laws import circular_period
+from forcefit.dynamics.propagate import Drag, propagate_batch, propagate_reference
+from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import NotIdentifiable
-from forcefit.estimators import compare_laws, fit_orbit
-from forcefit.laws import circular_period
-from forcefit.loaders import load_track
-from forcefit.propagate import Drag, propagate_batch, propagate_reference
-from forcefit.simulate import simulate_orbit
+from forcefit.estimators import fit_orbit
+from forcefit.inference.comparison import compare_laws
+from forcefit.reading.loaders import load_track
 from forcefit.track import Track
 
 from .conftest import screened_track

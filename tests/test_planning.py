@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
+from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import InputError, NotIdentifiable
 from forcefit.estimators import fit_orbit
-from forcefit.planning import forecast_precision, required_duration, required_rate
-from forcefit.simulate import simulate_orbit
+from forcefit.inference.planning import forecast_precision, required_duration, required_rate
 
 PLAN = {"exponent": -1.5, "strength": 1.0, "start": (1.0, 0.0), "velocity": (0.0, 0.8), "rate": 15.0,
         "noise": 0.005}

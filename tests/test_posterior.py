@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
+from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import InputError
 from forcefit.estimators import fit_orbit, fit_shape
-from forcefit.posterior import run_ensemble, sample_posterior
-from forcefit.simulate import simulate_orbit
+from forcefit.inference.posterior import run_ensemble, sample_posterior
 
 
 def test_linear_gaussian_toy_matches_the_closed_form():

@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
+from forcefit.dynamics.laws import angular_momentum, circular_period, specific_energy
+from forcefit.dynamics.propagate import Drag, propagate_reference
 from forcefit.errors import InputError
-from forcefit.laws import angular_momentum, circular_period, specific_energy
-from forcefit.propagate import Drag, propagate_reference
 
 
 @pytest.mark.parametrize("exponent", [-2.9, -2.0, -1.0, 0.0, 1.0, 3.0])

@@ -11,10 +11,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import ForcefitError, ForcefitWarning
 from forcefit.estimators import fit_acceleration, fit_curvature, fit_orbit, fit_shape
-from forcefit.loaders import load_tracks
-from forcefit.simulate import simulate_orbit
+from forcefit.reading.loaders import load_tracks
 from forcefit.track import Track
 
 HEADERS = ["t", "time (ms)", "T [s]", "x", "X [px]", "x_mm", "y", "y [px]", "Y_mm", "z [m]", "sigma",

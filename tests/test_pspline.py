@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from forcefit.errors import GeometryError
-from forcefit.pspline import (
+from forcefit.geometry.pspline import (
     DEGREE,
     _band_to_dense,
     _selected_inverse,
@@ -54,7 +54,7 @@ def test_error_bars_match_the_scatter_of_values():
 def test_window_level_matches_full_gcv_at_equal_density(monkeypatch):
     # The level chosen on a window transfers: a 3600-point track gives at least the same
     # second-derivative accuracy as GCV on all of it.
-    import forcefit.pspline as pspline
+    import forcefit.geometry.pspline as pspline
 
     rng = np.random.default_rng(4)
     s = np.linspace(0.0, 20 * np.pi, 3600)

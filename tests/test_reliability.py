@@ -8,12 +8,12 @@ import numpy as np
 import pytest
 
 import forcefit._atomic as atomic
-import forcefit.grading as grading
+import forcefit.apps.grading as grading
+from forcefit.apps.grading import GradingRule, grade_runs, read_results
 from forcefit.cli import main
 from forcefit.estimators import fit_orbit
-from forcefit.grading import GradingRule, grade_runs, read_results
-from forcefit.loaders import save_track
-from forcefit.report import write_report
+from forcefit.outputs.report import write_report
+from forcefit.reading.loaders import save_track
 from forcefit.track import Track
 
 from .conftest import DEMO, ROOT, screened_track
@@ -50,8 +50,8 @@ def test_an_unconverged_fit_fails_its_convergence_check(tmp_path):
 def test_a_fit_that_runs_away_is_refused_not_returned_with_infinities():
     # Found by the slow property suite: 12 samples, each a third of a turn apart, of an n = 3
     # orbit; the optimiser wanders to n ~ -256 where the strength overflows.
+    from forcefit.dynamics.simulate import simulate_orbit
     from forcefit.errors import FitError
-    from forcefit.simulate import simulate_orbit
 
     track = simulate_orbit(exponent=3.0, duration=21.02, rate=11 / 21.02, noise=1e-4,
                            rng=np.random.default_rng(9), velocity=(0.0, 1.25))

@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 from scipy.special import ellipk
 
+from forcefit.dynamics.propagate import propagate_reference
+from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
 from forcefit.errors import InputError
-from forcefit.propagate import propagate_reference
-from forcefit.simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
 
 
 def test_noise_free_track_is_the_reference_orbit():

@@ -9,7 +9,7 @@ import warnings
 from collections.abc import Callable, Sequence
 from typing import Any
 
-from .. import __version__
+from .._version import __version__
 from ..errors import ForcefitError
 from . import (
     cmd_apsides,

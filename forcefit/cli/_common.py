@@ -5,10 +5,10 @@ from __future__ import annotations
 import argparse
 import re
 
-from ..coordinates import Calibration
+from ..dynamics.propagate import Drag
 from ..errors import InputError
-from ..loaders import load_tracks
-from ..propagate import Drag
+from ..reading.coordinates import Calibration
+from ..reading.loaders import load_tracks
 from ..track import Track
 
 EXIT_OK, EXIT_FAILED_CHECKS, EXIT_BAD_INPUT = 0, 1, 2

@@ -7,9 +7,9 @@ import json
 import math
 from typing import Any
 
+from ..analysis.apsides import Apsides, measure_apsides
+from ..dynamics.laws import EARTH_ROTATION_RATE, pendulum_precession_rate
 from ..errors import InputError
-from ..estimators.apsides import Apsides, measure_apsides
-from ..laws import EARTH_ROTATION_RATE, pendulum_precession_rate
 from ..track import Track
 from ..units import length_factor, time_factor
 from ._common import EXIT_OK, FORMATTER, pair, read_tracks

@@ -8,14 +8,14 @@ import warnings
 from pathlib import Path
 from typing import Any
 
-from ..demo import DemoDataset, demo_datasets
+from ..apps.demo import DemoDataset, demo_datasets
+from ..apps.grading import GradingRule, grade_runs
 from ..errors import ForcefitError, ForcefitWarning
 from ..estimators import fit_curvature, fit_orbit, fit_shape
-from ..geometry import describe_path
-from ..grading import GradingRule, grade_runs
-from ..inspection import inspect_track
-from ..posterior import sample_posterior
-from ..result import LawFit
+from ..estimators.result import LawFit
+from ..geometry.path import describe_path
+from ..inference.posterior import sample_posterior
+from ..reading.inspection import inspect_track
 from ..track import Track
 from ..units import format_measurement
 from ._common import EXIT_OK

@@ -6,9 +6,9 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from ..duality import dual_exponent, dual_strength, dual_track, specific_energy_at
+from ..dynamics.duality import dual_exponent, dual_strength, dual_track, specific_energy_at
 from ..estimators import fit_orbit, fit_shape
-from ..loaders import save_track
+from ..reading.loaders import save_track
 from ._common import EXIT_OK, FORMATTER, pair, read_tracks
 
 _EXAMPLES = """\

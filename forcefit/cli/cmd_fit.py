@@ -9,20 +9,20 @@ from collections.abc import Callable
 from typing import Any, Literal
 
 from .._json import json_safe
+from ..analysis.duality_check import check_duality
+from ..dynamics.laws import EARTH_ROTATION_RATE
 from ..errors import InputError
 from ..estimators import (
-    compare_laws,
     fit_acceleration,
     fit_curvature,
     fit_orbit,
     fit_shape,
     force_profile,
 )
-from ..estimators.dual_check import check_duality
-from ..geometry import describe_path
-from ..laws import EARTH_ROTATION_RATE
-from ..report import write_report
-from ..result import LawFit
+from ..estimators.result import LawFit
+from ..geometry.path import describe_path
+from ..inference.comparison import compare_laws
+from ..outputs.report import write_report
 from ..track import Track
 from ..units import time_factor
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, pair, read_tracks

@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from ..grading import GradingRule, grade_runs
+from ..apps.grading import GradingRule, grade_runs
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, loading_keywords
 
 _EXAMPLES = """\

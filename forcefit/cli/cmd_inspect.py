@@ -9,7 +9,7 @@ import warnings
 from typing import Any
 
 from ..errors import ForcefitError, ForcefitWarning
-from ..inspection import inspect_track
+from ..reading.inspection import inspect_track
 from ._common import EXIT_BAD_INPUT, EXIT_OK, FORMATTER, read_tracks
 
 _INSPECT_EXAMPLES = """\

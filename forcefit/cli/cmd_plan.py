@@ -8,7 +8,7 @@ import math
 from typing import Any
 
 from ..errors import InputError
-from ..planning import forecast_precision, required_duration, required_rate
+from ..inference.planning import forecast_precision, required_duration, required_rate
 from ._common import EXIT_OK, FORMATTER, pair
 
 _EXAMPLES = """\

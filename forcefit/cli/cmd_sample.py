@@ -9,9 +9,9 @@ from typing import Any
 
 from ..errors import InputError
 from ..estimators import fit_orbit
-from ..figures import corner_figure, save_figure, trace_figure
-from ..posterior import sample_posterior
-from ..report import write_report
+from ..inference.posterior import sample_posterior
+from ..outputs.figures import corner_figure, save_figure, trace_figure
+from ..outputs.report import write_report
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, pair, read_tracks
 from .cmd_fit import add_orbit_options, orbit_options
 

@@ -7,9 +7,9 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from ..dynamics.simulate import simulate_orbit, simulate_pendulum
 from ..errors import InputError
-from ..loaders import save_track
-from ..simulate import simulate_orbit, simulate_pendulum
+from ..reading.loaders import save_track
 from ._common import EXIT_OK, FORMATTER, drag, pair
 
 _SIMULATE_EXAMPLES = """\

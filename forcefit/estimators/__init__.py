@@ -2,13 +2,15 @@
 
 from .acceleration import fit_acceleration
 from .curvature import fit_curvature
-from .orbit import compare_laws, fit_orbit
+from .orbit import fit_orbit
 from .profile import ForceProfile, force_profile
+from .result import Diagnostic, LawFit
 from .shape import fit_shape
 
 __all__ = [
+    "Diagnostic",
     "ForceProfile",
-    "compare_laws",
+    "LawFit",
     "fit_acceleration",
     "fit_curvature",
     "fit_orbit",

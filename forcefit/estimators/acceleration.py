@@ -15,13 +15,12 @@ from scipy.optimize import OptimizeResult, least_squares
 
 from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
-from ..curves import interior
 from ..errors import NotIdentifiable
-from ..geometry import PathGeometry, describe_path
-from ..result import Diagnostic, LawFit
-from ..smoothing import Smoothing
+from ..geometry.curves import interior
+from ..geometry.path import PathGeometry, describe_path
+from ..geometry.smoothing import Smoothing
 from ..track import Track
-from ._common import (
+from ._checks import (
     angular_momentum,
     bend_diagnostic,
     centre_covariance,
@@ -29,6 +28,7 @@ from ._common import (
     leverage_diagnostic,
     require_orbit,
 )
+from .result import Diagnostic, LawFit
 
 
 def _radial(path: PathGeometry, centre: tuple[float, float]) -> tuple[FloatArray, FloatArray, FloatArray]:

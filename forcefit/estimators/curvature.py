@@ -19,13 +19,12 @@ import numpy as np
 
 from .._regression import fit_line
 from .._types import FloatArray
-from ..curves import attractive_points, curvature_relation
 from ..errors import NotIdentifiable
-from ..geometry import PathGeometry, describe_path
-from ..result import Diagnostic, LawFit
-from ..smoothing import Smoothing
+from ..geometry.curves import attractive_points, curvature_relation
+from ..geometry.path import PathGeometry, describe_path
+from ..geometry.smoothing import Smoothing
 from ..track import Track
-from ._common import (
+from ._checks import (
     angular_momentum,
     bend_diagnostic,
     centre_covariance,
@@ -33,6 +32,7 @@ from ._common import (
     leverage_diagnostic,
     require_orbit,
 )
+from .result import Diagnostic, LawFit
 
 MIN_USED = 10
 """Fewest significantly bending points the regression needs."""

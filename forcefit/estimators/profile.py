@@ -15,12 +15,12 @@ import numpy as np
 import pandas as pd
 
 from .._regression import autocorrelation_time
-from ..curves import attractive_points, curvature_relation
 from ..errors import NotIdentifiable
-from ..geometry import PathGeometry, describe_path
-from ..smoothing import Smoothing
+from ..geometry.curves import attractive_points, curvature_relation
+from ..geometry.path import PathGeometry, describe_path
+from ..geometry.smoothing import Smoothing
 from ..track import Track
-from ._common import angular_momentum, require_orbit
+from ._checks import angular_momentum, require_orbit
 
 
 @dataclass(frozen=True)

@@ -24,11 +24,10 @@ from scipy.optimize import OptimizeResult, least_squares
 
 from .._types import FloatArray
 from ..errors import FitError, GeometryError, NotIdentifiable
-from ..geometry import PathGeometry, describe_path
-from ..result import Diagnostic, LawFit
-from ..smoothing import Smoothing
+from ..geometry.path import PathGeometry, describe_path
+from ..geometry.smoothing import Smoothing
 from ..track import Track
-from ._common import (
+from ._checks import (
     angular_momentum,
     constancy_diagnostic,
     require_monotonic,
@@ -36,6 +35,7 @@ from ._common import (
     runs_diagnostic,
 )
 from .curvature import fit_curvature
+from .result import Diagnostic, LawFit
 
 AMBIGUITY_FACTOR = 1.5
 """Solutions whose reduced chi-square is within this factor of the best are all reported."""

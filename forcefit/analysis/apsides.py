@@ -1,0 +1,264 @@
+"""Apsides: where the orbit is nearest and farthest, the apsidal angle, and the precession.
+
+Between a pericentre and the next apocentre the polar angle advances by the apsidal
+angle psi, which for a power law depends only on n and r_max / r_min. A closed orbit
+has psi = pi (Kepler) or pi/2 (Hooke); a small deviation from either turns the orbit,
+so a measured precession is a measured exponent.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from scipy.signal import find_peaks
+
+from .._json import json_safe
+from .._regression import fit_line
+from .._types import FloatArray
+from ..dynamics.laws import exponent_from_apsidal_angle
+from ..errors import NotIdentifiable
+from ..geometry.path import PathGeometry, describe_path
+from ..track import Track
+
+WINDOW = 0.3
+"""Half-width of the local fit around an apse, as a fraction of the apsidal angle."""
+
+MIN_APSES = 3
+
+MIN_LOCAL_POINTS = 11
+"""Fewest raw points in the local fit around an apse."""
+
+ORDER = 4
+"""Degree of the polynomial in theta fitted to r around an apse (a quadratic biases r there)."""
+
+
+@dataclass(frozen=True)
+class Apse:
+    """One pericentre or apocentre, located by a local quadratic fit of r against theta."""
+
+    kind: str
+    angle: float
+    angle_stderr: float
+    radius: float
+    radius_stderr: float
+    time: float
+    time_stderr: float
+
+
+@dataclass(frozen=True)
+class Apsides:
+    """The apses of a track and what they say about the force law.
+
+    Angles are in rad, measured in the sense of the motion; radii in the track's length
+    unit; times and rates in its time unit (nan for a shape-only track).
+    """
+
+    apses: tuple[Apse, ...]
+    centre: tuple[float, float]
+    sense: int
+    apsidal_angle: float
+    apsidal_angle_stderr: float
+    closure: int
+    precession_per_revolution: float
+    precession_per_revolution_stderr: float
+    precession_rate: float
+    precession_rate_stderr: float
+    radius_ratio: float
+    exponent: float
+    exponent_stderr: float
+    exponent_near_circular: float
+    length_unit: str
+    time_unit: str | None
+    extras: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def pericentres(self) -> tuple[Apse, ...]:
+        return tuple(apse for apse in self.apses if apse.kind == "pericentre")
+
+    @property
+    def apocentres(self) -> tuple[Apse, ...]:
+        return tuple(apse for apse in self.apses if apse.kind == "apocentre")
+
+    def to_text(self) -> str:
+        """The apses and the summary, with units."""
+        length, time = self.length_unit, self.time_unit or ""
+        lines = [f"  {'apse':<11} {'angle [deg]':>18} {'radius [' + length + ']':>24} "
+                 f"{'time [' + time + ']':>20}"]
+        for apse in self.apses:
+            lines.append(f"  {apse.kind:<11} {math.degrees(apse.angle):>10.4f} ± "
+                         f"{math.degrees(apse.angle_stderr):<6.2g} {apse.radius:>14.6g} ± "
+                         f"{apse.radius_stderr:<7.2g} {apse.time:>12.6g} ± {apse.time_stderr:.2g}")
+        lines += [
+            f"  apsidal angle      {math.degrees(self.apsidal_angle):.5f} ± "
+            f"{math.degrees(self.apsidal_angle_stderr):.2g} deg (closed orbit: "
+            f"{180 / self.closure:g} deg)",
+            f"  precession         {math.degrees(self.precession_per_revolution):+.5g} ± "
+            f"{math.degrees(self.precession_per_revolution_stderr):.2g} deg per revolution, in the "
+            "sense of the motion",
+        ]
+        if math.isfinite(self.precession_rate):
+            lines.append(f"                     {self.precession_rate:+.4g} ± "
+                         f"{self.precession_rate_stderr:.2g} rad/{time}")
+        lines += [
+            f"  r_max / r_min      {self.radius_ratio:.6g}",
+            f"  exponent           {self.exponent:.6g} ± {self.exponent_stderr:.2g} (exact apsidal "
+            f"integral); near-circular formula gives {self.exponent_near_circular:.6g}",
+        ]
+        return "\n".join(lines)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-safe form."""
+        return json_safe({
+            "centre": list(self.centre), "sense": self.sense,
+            "apses": [vars(apse) for apse in self.apses],
+            "apsidal_angle_rad": self.apsidal_angle, "apsidal_angle_stderr_rad": self.apsidal_angle_stderr,
+            "precession_per_revolution_rad": self.precession_per_revolution,
+            "precession_per_revolution_stderr_rad": self.precession_per_revolution_stderr,
+            "precession_rate": self.precession_rate, "precession_rate_stderr": self.precession_rate_stderr,
+            "precession_rate_unit": f"rad/{self.time_unit}" if self.time_unit else None,
+            "radius_ratio": self.radius_ratio, "exponent": self.exponent,
+            "exponent_stderr": self.exponent_stderr, "exponent_near_circular": self.exponent_near_circular,
+            "length_unit": self.length_unit, **self.extras,
+        })
+
+
+def _local_apse(
+    kind: str, theta: FloatArray, radius: FloatArray, sigma: FloatArray, around: float,
+    half_width: float, time: FloatArray | None, path_theta: FloatArray,
+) -> Apse | None:
+    """Fit r as a quartic in d = theta - around to the raw points near an apse and locate
+    its extremum (Newton's method), with errors by the delta method."""
+    near = np.abs(theta - around) <= half_width
+    if near.sum() < MIN_LOCAL_POINTS:                  # a fast passage: take the nearest points
+        near = np.zeros(theta.size, dtype=bool)
+        near[np.argsort(np.abs(theta - around))[:MIN_LOCAL_POINTS]] = True
+        half_width = float(np.abs(theta[near] - around).max())
+    d = theta[near] - around
+    design = np.vander(d, ORDER + 1, increasing=True) / sigma[near, None]
+    coefficients, *_ = np.linalg.lstsq(design, radius[near] / sigma[near], rcond=None)
+    residual = radius[near] / sigma[near] - design @ coefficients
+    scale = max(float(residual @ residual) / max(d.size - ORDER - 1, 1), 1.0)
+    covariance = np.linalg.inv(design.T @ design) * scale
+    powers = np.arange(ORDER + 1)
+    slope = powers[1:] * coefficients[1:]                        # dr/dd coefficients
+    bend = powers[2:] * (powers[2:] - 1) * coefficients[2:]      # d2r/dd2 coefficients
+    if (kind == "pericentre") != (coefficients[2] > 0):
+        return None
+    shift = -coefficients[1] / (2 * coefficients[2])
+    for _ in range(20):                                          # Newton on dr/dd = 0
+        step = np.polyval(slope[::-1], shift) / np.polyval(bend[::-1], shift)
+        shift -= step
+        if abs(step) < 1e-15:
+            break
+    if abs(shift) > half_width:
+        return None
+    curvature = float(np.polyval(bend[::-1], shift))
+    gradient_angle = np.concatenate(([0.0], -powers[1:] * shift ** (powers[1:] - 1) / curvature))
+    gradient_radius = shift**powers
+    angle = around + shift
+    angle_se = math.sqrt(float(gradient_angle @ covariance @ gradient_angle))
+    time_at = time_se = math.nan
+    if time is not None:
+        time_at = float(np.interp(angle, path_theta, time))
+        rate = float(np.gradient(path_theta, time)[np.argmin(np.abs(path_theta - angle))])
+        time_se = angle_se / abs(rate)
+    return Apse(kind, float(angle), angle_se, float(np.polyval(coefficients[::-1], shift)),
+                math.sqrt(float(gradient_radius @ covariance @ gradient_radius)), time_at, time_se)
+
+
+def _find_apses(track: Track, path: PathGeometry, sense: int) -> list[Apse]:
+    theta_path = sense * path.polar_angle
+    offset = track.positions - np.asarray(path.centre)
+    radius = np.hypot(offset[:, 0], offset[:, 1])
+    theta = sense * np.unwrap(np.arctan2(offset[:, 1], offset[:, 0]))
+    theta += 2 * math.pi * np.round((theta_path - theta) / (2 * math.pi))
+    sigma = track.sigma if track.sigma is not None else path.smoothing.noise
+    prominence = 5.0 * float(np.median(path.radius_stderr)) + 1e-12 * float(path.radius.max())
+    peaks = [("apocentre", i) for i in find_peaks(path.radius, prominence=prominence)[0]]
+    peaks += [("pericentre", i) for i in find_peaks(-path.radius, prominence=prominence)[0]]
+    peaks.sort(key=lambda item: item[1])
+    if len(peaks) < 2:
+        return []
+    spacing = float(np.median(np.diff([theta_path[i] for _, i in peaks])))
+    half = WINDOW * spacing
+    apses = []
+    for kind, index in peaks:
+        around = float(theta_path[index])
+        if around - half < theta_path.min() or around + half > theta_path.max():
+            continue                                   # the window would run off the track
+        apse = _local_apse(kind, theta, radius, sigma, around, half,
+                           None if track.t is None else np.asarray(track.t), theta_path)
+        if apse is not None:
+            apses.append(apse)
+    return apses
+
+
+def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
+                    path: PathGeometry | None = None) -> Apsides:
+    """Locate the peri- and apocentres and read the apsidal angle, precession and exponent.
+
+    Parameters
+    ----------
+    track : Track
+        Positions (L), with times (T) when known.
+    centre : (float, float), optional
+        The force centre (L); found from the data when not given.
+    path : PathGeometry, optional
+        The track's geometry, if already described.
+
+    Returns
+    -------
+    Apsides
+
+    Raises
+    ------
+    NotIdentifiable
+        With fewer than three apses (record longer), or none of the orbit's turning points.
+
+    Examples
+    --------
+    >>> from forcefit.dynamics.simulate import simulate_orbit
+    >>> apsides = measure_apsides(simulate_orbit(exponent=-2.0, duration=40.0, rate=50.0))
+    >>> round(math.degrees(apsides.apsidal_angle), 3)
+    180.0
+    """
+    path = path if path is not None else describe_path(track, centre=centre)
+    sense = 1 if path.polar_angle[-1] >= path.polar_angle[0] else -1
+    apses = _find_apses(track, path, sense)
+    if len(apses) < MIN_APSES:
+        raise NotIdentifiable(
+            f"{track.label}: {len(apses)} apses (peri- or apocentres) found, at least "
+            f"{MIN_APSES} are needed for the apsidal angle. Record a longer stretch of the orbit."
+        )
+    angles = np.array([apse.angle for apse in apses])
+    errors = np.array([max(apse.angle_stderr, 1e-12) for apse in apses])
+    spacing = float(np.median(np.diff(angles)))
+    count = np.round((angles - angles[0]) / spacing)       # apse number, robust to a missed apse
+    line = fit_line(count, angles, errors)
+    psi, psi_se = line.slope, math.sqrt(line.covariance[0, 0])
+    closure = 1 if psi > 0.75 * math.pi else 2
+    per_revolution = 2 * closure * psi - 2 * math.pi
+    rate = rate_se = math.nan
+    if track.has_times:
+        times = np.array([apse.time for apse in apses])
+        turning = angles - count * math.pi / closure
+        drift = fit_line(times - times.mean(), turning, errors)
+        rate, rate_se = drift.slope, math.sqrt(drift.covariance[0, 0])
+    peri = np.mean([a.radius for a in apses if a.kind == "pericentre"] or [np.nan])
+    apo = np.mean([a.radius for a in apses if a.kind == "apocentre"] or [np.nan])
+    ratio = float(apo / peri)
+    exponent = exponent_from_apsidal_angle(psi, ratio)
+    step = max(psi_se, 1e-9)
+    slope = (exponent_from_apsidal_angle(psi + step, ratio)
+             - exponent_from_apsidal_angle(psi - step, ratio)) / (2 * step)
+    return Apsides(
+        apses=tuple(apses), centre=path.centre, sense=sense, apsidal_angle=psi,
+        apsidal_angle_stderr=psi_se, closure=closure, precession_per_revolution=per_revolution,
+        precession_per_revolution_stderr=2 * closure * psi_se, precession_rate=rate,
+        precession_rate_stderr=rate_se, radius_ratio=ratio, exponent=exponent,
+        exponent_stderr=abs(slope) * psi_se, exponent_near_circular=(math.pi / psi) ** 2 - 3.0,
+        length_unit=track.length_unit, time_unit=track.time_unit if track.has_times else None,
+    )

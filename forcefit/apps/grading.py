@@ -1,0 +1,300 @@
+"""Grading many runs against an expected law: in parallel, resumable, never stopped by one bad run.
+
+Each run is loaded and fitted on its own (the orbit method with timestamps, the shape
+method without) in a worker process — local processes, or a dask.distributed cluster —
+and graded: it passes when its exponent lies within the tolerance of the expected one, its
+strength (when one is expected) within its relative tolerance, it covers enough of the
+orbit, and the fit passed its own checks. Every failure says why. The results table is
+rewritten whole after each run, so an interrupted batch keeps what finished and a resumed
+one skips it.
+"""
+
+from __future__ import annotations
+
+import glob
+import math
+import os
+import traceback
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from multiprocessing import get_context
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from .._atomic import write_atomic
+from ..errors import FitError, ForcefitError, InputError, NotIdentifiable
+from ..units import format_measurement, strength_unit
+
+RUN_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".json", ".xlsx", ".parquet")
+RESULTS = "results.csv"
+
+
+@dataclass(frozen=True)
+class GradingRule:
+    """What a run must show to pass.
+
+    Attributes
+    ----------
+    expect, tolerance : float
+        The expected exponent and the largest |n - expect| that passes.
+    strength, strength_tolerance : float, optional
+        The expected strength k at the expected exponent (in the runs' units; for n = 1 in
+        1/time**2 whatever the length unit) and the largest relative deviation that passes.
+    min_turns : float
+        The least number of turns about the centre a run must cover.
+    load_options : dict
+        Passed to `load_tracks` (units, calibration, column names).
+    """
+
+    expect: float
+    tolerance: float
+    strength: float | None = None
+    strength_tolerance: float | None = None
+    min_turns: float = 1.0
+    load_options: dict[str, Any] = field(default_factory=dict)
+
+
+def find_runs(source: str | os.PathLike[str] | Sequence[str | os.PathLike[str]]) -> list[Path]:
+    """The run files of a folder, a glob pattern, or a list of paths, sorted by name."""
+    if isinstance(source, (list, tuple)):
+        return sorted(Path(p) for p in source)
+    text = os.fspath(source)  # type: ignore[arg-type]
+    if Path(text).is_dir():
+        return sorted(p for p in Path(text).iterdir() if p.suffix.lower() in RUN_SUFFIXES and p.is_file())
+    matches = sorted(Path(p) for p in glob.glob(text))
+    if not matches:
+        raise InputError(f"{text}: no such folder, and no file matches it as a pattern.")
+    return matches
+
+
+def _row(path: Path, name: str, **values: Any) -> dict[str, Any]:
+    base = {"run": name, "file": str(path), "passed": False, "reason": "", "exponent": math.nan,
+            "exponent_stderr": math.nan, "strength_at_expected": math.nan,
+            "strength_at_expected_stderr": math.nan, "strength_unit": "", "duration": math.nan,
+            "time_unit": "", "turns": math.nan, "reduced_chi2": math.nan, "n_points": 0,
+            "method": "", "report": ""}
+    base.update(values)
+    return base
+
+
+def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | None = None) -> dict[str, Any]:
+    """Load, fit and grade one run file; never raises (a failure is a failing row).
+
+    Returns
+    -------
+    dict
+        One row of the results table.
+    """
+    from ..estimators import fit_orbit, fit_shape
+    from ..outputs.report import Verdict, write_report
+    from ..reading.loaders import load_tracks
+
+    path = Path(path)
+    name = path.stem
+    try:
+        tracks = load_tracks(path, **rule.load_options)
+        if len(tracks) != 1:
+            return _row(path, name, reason=f"load error: the file holds {len(tracks)} tracks; grade "
+                                           "one run per file.")
+        track = tracks[0]
+        fit = fit_orbit(track) if track.has_times else fit_shape(track)
+    except NotIdentifiable as exc:
+        return _row(path, name, reason=f"not identifiable: {exc}")
+    except InputError as exc:
+        return _row(path, name, reason=f"load error: {exc}")
+    except (FitError, ForcefitError) as exc:
+        return _row(path, name, reason=f"fit failed: {exc}")
+    except Exception as exc:  # one bad run never stops a batch
+        last = traceback.extract_tb(exc.__traceback__)[-1]
+        return _row(path, name, reason=f"internal error: {type(exc).__name__}: {exc} "
+                                       f"({Path(last.filename).name}:{last.lineno})")
+    reasons = []
+    failed = [check for check, result in fit.diagnostics.items() if result.passed is False]
+    if failed:
+        reasons.append(f"poor fit: {', '.join(failed)} check failed")
+    turns = float(fit.details.get("turns", math.nan))
+    if math.isfinite(turns) and turns < rule.min_turns:
+        reasons.append(f"too short: covers {turns:.2f} turns, at least {rule.min_turns:g} needed")
+    if abs(fit.exponent - rule.expect) > rule.tolerance:
+        reasons.append(f"exponent outside tolerance: n = "
+                       f"{format_measurement(fit.exponent, fit.exponent_stderr)}, expected "
+                       f"{rule.expect:g} ± {rule.tolerance:g}")
+    k, k_error = fit.strength_at_exponent(rule.expect)
+    unit = strength_unit(fit.length_unit, fit.time_unit or "T", rule.expect)
+    if rule.strength is not None:
+        relative = abs(k / rule.strength - 1.0) if math.isfinite(k) else math.inf
+        if relative > (rule.strength_tolerance or 0.0):
+            reasons.append(f"strength outside tolerance: k = {format_measurement(k, k_error, unit)}, "
+                           f"expected {rule.strength:.6g} {unit} ± {100 * (rule.strength_tolerance or 0):g}%")
+    row = _row(path, name, passed=not reasons, reason="; ".join(reasons), exponent=fit.exponent,
+               exponent_stderr=fit.exponent_stderr, strength_at_expected=k,
+               strength_at_expected_stderr=k_error, strength_unit=unit, duration=track.duration,
+               time_unit=track.time_unit if track.has_times else "", turns=turns,
+               reduced_chi2=fit.reduced_chi2, n_points=track.n_points, method=fit.method)
+    if out_dir is not None:
+        folder = Path(out_dir) / "runs"
+        verdict = Verdict("PASS" if not reasons else "FAIL", not reasons, tuple(reasons))
+        page = write_report(fit, folder, track=track, verdict=verdict)   # named by safe_name
+        row["report"] = f"runs/{page.name}"
+    return row
+
+
+def _write_table(rows: Iterable[dict[str, Any]], path: Path) -> pd.DataFrame:
+    frame = pd.DataFrame(list(rows)).sort_values("run", kind="stable").reset_index(drop=True)
+    units = {}
+    for key in ("strength_unit", "time_unit"):
+        values = [v for v in frame[key].unique() if v]
+        units[key] = values[0] if len(values) == 1 else f"see {key}"
+    strength, time = units["strength_unit"], units["time_unit"]
+    renamed = frame.rename(columns={
+        "strength_at_expected": f"strength_at_expected [{strength}]",
+        "strength_at_expected_stderr": f"strength_at_expected_stderr [{strength}]",
+        "duration": f"duration [{time}]", "exponent": "exponent [1]",
+        "exponent_stderr": "exponent_stderr [1]", "turns": "turns [1]",
+    })
+    write_atomic(path, renamed.to_csv(index=False, float_format="%.10g", lineterminator="\n"))
+    return frame
+
+
+def read_results(path: str | os.PathLike[str]) -> pd.DataFrame:
+    """A results table written by `grade_runs`, with the units taken back out of the headers."""
+    frame = pd.read_csv(path, keep_default_na=False, na_values=[""])
+    frame.columns = [column.split(" [")[0] for column in frame.columns]
+    frame["reason"] = frame["reason"].fillna("")
+    frame["report"] = frame["report"].fillna("")
+    return frame
+
+
+def _graded(paths: Sequence[Path], rule: GradingRule, folder: Path, workers: int | None,
+            scheduler: str | None) -> Iterator[dict[str, Any]]:
+    """Rows as runs finish: here one by one (``workers=1``, on one thread like a worker
+    process), or from worker processes or a dask cluster in the order they complete."""
+    if workers == 1 and scheduler is None:
+        from threadpoolctl import threadpool_limits
+
+        for path in paths:
+            with threadpool_limits(limits=1):
+                row = grade_run(str(path), rule, str(folder))
+            yield row
+        return
+    executor, close = _executor(workers, scheduler)
+    try:
+        with _single_threaded():
+            futures = [executor.submit(grade_run, str(p), rule, str(folder)) for p in paths]
+        for future in _completed(futures, scheduler is not None):
+            yield future.result()
+    finally:
+        close()
+
+
+def _executor(workers: int | None, scheduler: str | None) -> tuple[Any, Callable[[], None]]:
+    if scheduler is not None:
+        try:
+            from dask.distributed import Client
+        except ImportError as exc:
+            raise ImportError("grading on a cluster needs dask.distributed: pip install "
+                              "'forcefit[cluster]'") from exc
+        client = Client(scheduler)
+        return client, client.close
+    pool = ProcessPoolExecutor(max_workers=workers or os.cpu_count() or 1,
+                               mp_context=get_context("spawn"), initializer=_one_thread_each)
+    return pool, lambda: pool.shutdown(cancel_futures=True)
+
+
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS")
+
+
+def _one_thread_each() -> None:
+    """Worker start-up: one thread per process, so that workers do not fight over the cores.
+
+    The variables must be set before numpy loads its linear-algebra library; the pool
+    passes them to each worker through the environment (see `_single_threaded`).
+    """
+    for name in THREAD_VARIABLES:
+        os.environ.setdefault(name, "1")
+
+
+def grade_runs(
+    source: str | os.PathLike[str] | Sequence[str | os.PathLike[str]],
+    rule: GradingRule,
+    out_dir: str | os.PathLike[str],
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    resume: bool = False,
+    progress: bool = True,
+    title: str = "class report",
+) -> pd.DataFrame:
+    """Grade every run of a folder (or pattern, or list) and write the class report.
+
+    Parameters
+    ----------
+    source : path, pattern or list of paths
+        The run files.
+    rule : GradingRule
+    out_dir : path
+        Where ``results.csv``, ``index.html``, ``exponents.png`` and ``runs/`` go.
+    workers : int, optional
+        Local worker processes (default: all cores); 1 grades in this process.
+    scheduler : str, optional
+        Address of a dask.distributed scheduler to run on instead.
+    resume : bool
+        Keep the rows of an earlier, interrupted batch in ``out_dir`` and skip those runs.
+    progress : bool
+        Show a progress bar.
+
+    Returns
+    -------
+    DataFrame
+        One row per run, sorted by name.
+    """
+    from tqdm.auto import tqdm
+
+    from ..outputs.report import write_class_report
+
+    folder = Path(out_dir)
+    folder.mkdir(parents=True, exist_ok=True)
+    table = folder / RESULTS
+    rows: dict[str, dict[str, Any]] = {}
+    if resume and table.exists():
+        rows = {row["file"]: row for row in read_results(table).to_dict("records")}
+    paths = [p for p in find_runs(source) if str(p) not in rows]
+    with tqdm(total=len(paths), disable=not progress, unit="run", desc="grading") as bar:
+        for row in _graded(paths, rule, folder, workers, scheduler):
+            rows[row["file"]] = row
+            _write_table(rows.values(), table)          # whole, after every run
+            bar.update(1)
+            bar.set_postfix_str(f"{row['run']}: {'pass' if row['passed'] else 'fail'}")
+    frame = _write_table(rows.values(), table) if rows else pd.DataFrame()
+    unit = next((u for u in frame.get("strength_unit", []) if u), "")
+    write_class_report(frame.to_dict("records"), folder, expect=rule.expect, tolerance=rule.tolerance,
+                       strength=rule.strength, strength_tolerance=rule.strength_tolerance,
+                       strength_unit=unit, csv_name=RESULTS, title=title)
+    return frame
+
+
+@contextmanager
+def _single_threaded() -> Iterator[None]:
+    """While worker processes start, tell them to use one thread each (BLAS, OpenMP, numba)."""
+    saved = {name: os.environ.get(name) for name in THREAD_VARIABLES}
+    os.environ.update({name: "1" for name in THREAD_VARIABLES})
+    try:
+        yield
+    finally:
+        for name, value in saved.items():
+            if value is None:
+                os.environ.pop(name, None)
+            else:
+                os.environ[name] = value
+
+
+def _completed(futures: list[Any], on_dask: bool) -> Iterable[Any]:
+    if on_dask:
+        from dask.distributed import as_completed as dask_completed
+
+        return dask_completed(futures)
+    return as_completed(futures)

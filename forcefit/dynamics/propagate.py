@@ -1,0 +1,270 @@
+"""Integrate the equation of motion r'' = -k |r|**(n-1) r (+ drag) about the origin."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Literal, NamedTuple
+
+import numpy as np
+from numpy.typing import ArrayLike
+from scipy.integrate import solve_ivp
+
+from .._types import FloatArray
+from ..errors import InputError
+
+REFERENCE_RTOL = 1e-13
+"""Relative tolerance of the reference integrator (DOP853)."""
+
+
+@dataclass(frozen=True)
+class Drag:
+    """A velocity-dependent drag on the body, per unit mass.
+
+    Parameters
+    ----------
+    kind : {"linear", "quadratic"}
+        ``"linear"``: a = -c v, c in T**-1 (slow motion through air, eddy damping).
+        ``"quadratic"``: a = -c |v| v, c in L**-1 (fast motion through air).
+    coefficient : float
+        c, non-negative.
+    """
+
+    kind: Literal["linear", "quadratic"]
+    coefficient: float
+
+    def __post_init__(self) -> None:
+        if self.kind not in ("linear", "quadratic"):
+            raise InputError(f'drag kind {self.kind!r} is unknown; use "linear" or "quadratic".')
+        if not (np.isfinite(self.coefficient) and self.coefficient >= 0):
+            raise InputError(f"drag coefficient {self.coefficient!r} must be zero or positive.")
+
+    def acceleration(self, velocity: FloatArray) -> FloatArray:
+        """Drag acceleration for velocities of shape (..., 2)."""
+        if self.kind == "linear":
+            return -self.coefficient * velocity
+        speed = np.hypot(velocity[..., 0], velocity[..., 1])[..., None]
+        return -self.coefficient * speed * velocity
+
+
+class States(NamedTuple):
+    """Positions and velocities at the requested times, each of shape (n_times, 2)."""
+
+    position: FloatArray
+    velocity: FloatArray
+
+
+def acceleration(position: FloatArray, exponent: float, strength: float) -> FloatArray:
+    """Central acceleration -k |r|**(n-1) r for positions of shape (..., 2).
+
+    Examples
+    --------
+    >>> acceleration(np.array([2.0, 0.0]), -2.0, 4.0)
+    array([-1., -0.])
+    """
+    r = np.hypot(position[..., 0], position[..., 1])[..., None]
+    return -strength * np.power(r, exponent - 1.0) * position
+
+
+def _rhs(
+    exponent: float, strength: float, drag: Drag | None
+) -> Callable[[float, FloatArray], FloatArray]:
+    def derivative(_: float, state: FloatArray) -> FloatArray:
+        position, velocity = state[:2], state[2:]
+        accel = acceleration(position, exponent, strength)
+        if drag is not None:
+            accel = accel + drag.acceleration(velocity)
+        return np.concatenate((velocity, accel))
+
+    return derivative
+
+
+def _leg(
+    state: FloatArray, epoch: float, times: FloatArray, exponent: float, strength: float,
+    drag: Drag | None, rtol: float,
+) -> FloatArray:
+    """States (4, n) at ``times``, all on one side of ``epoch``, integrating away from it."""
+    if times.size == 0:
+        return np.empty((4, 0))
+    r0 = float(np.hypot(*state[:2]))
+    speed = max(float(np.hypot(*state[2:])), float(np.sqrt(abs(strength) * r0 ** (exponent + 1))))
+    scale = np.array([r0, r0, speed, speed])
+    end = times[-1] if times[-1] != epoch else times[0]
+    if end == epoch:
+        return np.repeat(state[:, None], times.size, axis=1)
+
+    def collision(_: float, y: FloatArray) -> float:
+        return float(np.hypot(y[0], y[1]) - 1e-4 * r0)
+
+    collision.terminal = True  # type: ignore[attr-defined]
+    solution = solve_ivp(
+        _rhs(exponent, strength, drag), (epoch, end), state, method="DOP853",
+        t_eval=times, rtol=rtol, atol=rtol * np.maximum(scale, 1e-300), events=collision,
+    )
+    if solution.status == 1:
+        raise InputError(
+            f"the orbit reaches the force centre at t = {solution.t_events[0][0]:.6g}; "
+            "give the body more angular momentum or a shorter duration."
+        )
+    if solution.status != 0:
+        raise InputError(f"the orbit could not be integrated: {solution.message}")
+    return solution.y
+
+
+def propagate_reference(
+    start: ArrayLike,
+    velocity: ArrayLike,
+    times: ArrayLike,
+    *,
+    exponent: float,
+    strength: float,
+    epoch: float | None = None,
+    drag: Drag | None = None,
+    rtol: float = REFERENCE_RTOL,
+) -> States:
+    """Reference solution of r'' = -k |r|**(n-1) r (+ drag) at the given times.
+
+    The accuracy oracle for the rest of forcefit: scipy's DOP853 (an explicit
+    Runge-Kutta method of order 8 with step control) at relative tolerance 1e-13,
+    integrating forwards and backwards from the epoch.
+
+    Parameters
+    ----------
+    start, velocity : array_like, shape (2,)
+        Position relative to the centre (L) and velocity (L T**-1) at ``epoch``.
+    times : array_like, shape (n_times,)
+        Increasing times (T) at which to report the state.
+    exponent, strength : float
+        n and k of F = -k r**n (k in L**(1-n) T**-2).
+    epoch : float, optional
+        Time of ``start``; default the first time.
+    drag : Drag, optional
+        Velocity-dependent drag.
+    rtol : float
+        Relative tolerance; the absolute tolerance is rtol times the size of the
+        initial position and velocity.
+
+    Returns
+    -------
+    States
+        Positions (L) and velocities (L T**-1), each of shape (n_times, 2).
+
+    References
+    ----------
+    E. Hairer, S. P. Norsett, G. Wanner, Solving Ordinary Differential Equations I,
+    2nd ed. (Springer 1993), section II.10 (DOP853).
+
+    Examples
+    --------
+    >>> t = np.linspace(0.0, 2 * np.pi, 5)                # one period of a circular orbit
+    >>> states = propagate_reference([1.0, 0.0], [0.0, 1.0], t, exponent=-2.0, strength=1.0)
+    >>> bool(np.allclose(states.position[-1], [1.0, 0.0], atol=1e-10))
+    True
+    """
+    times = np.asarray(times, dtype=np.float64)
+    state = np.concatenate((np.asarray(start, float), np.asarray(velocity, float)))
+    if not np.all(np.isfinite(state)) or np.hypot(*state[:2]) == 0:
+        raise InputError("the start must be a finite position away from the centre.")
+    if times.ndim != 1 or (np.diff(times) < 0).any():
+        raise InputError("times must be a one-dimensional, non-decreasing array.")
+    t0 = float(times[0]) if epoch is None else float(epoch)
+    before = times < t0
+    backward = _leg(state, t0, times[before][::-1], exponent, strength, drag, rtol)[:, ::-1]
+    forward = _leg(state, t0, times[~before], exponent, strength, drag, rtol)
+    solution = np.concatenate((backward, forward), axis=1)
+    return States(position=solution[:2].T.copy(), velocity=solution[2:].T.copy())
+
+
+BATCH_RTOL = 3e-13
+"""Relative tolerance of the batch propagator."""
+
+
+class BatchStates(NamedTuple):
+    """States of a batch of orbits at shared times.
+
+    position, velocity : ndarray, shape (n_orbits, n_times, 2)
+        nan for an orbit that could not be integrated.
+    ok : ndarray of bool, shape (n_orbits,)
+        False where integration failed (the orbit fell into the centre, say).
+    """
+
+    position: FloatArray
+    velocity: FloatArray
+    ok: np.ndarray
+
+
+def propagate_batch(
+    times: ArrayLike,
+    start: ArrayLike,
+    velocity: ArrayLike,
+    *,
+    exponent: ArrayLike,
+    strength: ArrayLike,
+    epoch: float,
+    linear_drag: ArrayLike = 0.0,
+    quadratic_drag: ArrayLike = 0.0,
+    rtol: float = BATCH_RTOL,
+) -> BatchStates:
+    """Integrate r'' = -k |r|**(n-1) r - c1 v - c2 |v| v for many parameter sets at once.
+
+    Why this method: fits and samplers evaluate the orbit model thousands of times
+    for slightly different parameters, so the cost per orbit decides everything. A
+    compiled (numba) DOP853 — the same eighth-order Runge-Kutta pair with step control
+    as the reference integrator — steps each orbit of the batch onto every sample time
+    exactly (no interpolation error), shrinking its steps through pericentre passages
+    by the error estimate. Measured against the reference (benchmarks/orbit_fit.py):
+    position errors below 1e-9 of the orbit's size over 5 revolutions for n in
+    [-2.9, 3] and Kepler ellipses up to e = 0.95, at well over 50 times the speed of
+    calling solve_ivp per orbit. A vectorised numpy Runge-Kutta over the batch was
+    the alternative; it has to take the smallest step of any orbit for all of them.
+
+    Parameters
+    ----------
+    times : array_like, shape (n_times,)
+        Increasing sample times (T), shared by the batch.
+    start, velocity : array_like, shape (n_orbits, 2) or (2,)
+        States relative to the centre at ``epoch`` (L, L/T).
+    exponent, strength : array_like, shape (n_orbits,) or scalar
+        n and k of each orbit.
+    epoch : float
+        Time of the start states (T); integration runs forwards and backwards from it.
+    linear_drag, quadratic_drag : array_like
+        c1 (1/T) and c2 (1/L) of each orbit.
+    rtol : float
+        Relative tolerance of the step control.
+
+    Returns
+    -------
+    BatchStates
+
+    Examples
+    --------
+    >>> t = np.linspace(0.0, 2 * np.pi, 9)
+    >>> batch = propagate_batch(t, [[1.0, 0.0], [2.0, 0.0]], [[0.0, 1.0], [0.0, 2.0]],
+    ...                         exponent=[-2.0, 1.0], strength=1.0, epoch=0.0)
+    >>> bool(np.allclose(batch.position[:, -1], [[1.0, 0.0], [2.0, 0.0]], atol=1e-9))
+    True
+    """
+    from ._kernel import integrate_batch
+
+    times = np.ascontiguousarray(times, dtype=np.float64)
+    start = np.atleast_2d(np.asarray(start, dtype=np.float64))
+    velocity = np.atleast_2d(np.asarray(velocity, dtype=np.float64))
+    n_orbits = max(start.shape[0], velocity.shape[0], np.size(exponent), np.size(strength),
+                   np.size(linear_drag), np.size(quadratic_drag))
+    states = np.ascontiguousarray(np.concatenate(
+        (np.broadcast_to(start, (n_orbits, 2)), np.broadcast_to(velocity, (n_orbits, 2))), axis=1))
+
+    def each(value: ArrayLike) -> FloatArray:
+        return np.ascontiguousarray(np.broadcast_to(np.asarray(value, dtype=np.float64), (n_orbits,)))
+
+    n, k = each(exponent), each(strength)
+    radius = np.hypot(states[:, 0], states[:, 1])
+    speed = np.maximum(np.hypot(states[:, 2], states[:, 3]),
+                       np.sqrt(np.abs(k) * radius ** (n + 1.0)))
+    atol = rtol * np.column_stack((radius, radius, speed, speed))
+    out = np.empty((n_orbits, times.size, 4))
+    status = np.zeros(n_orbits, dtype=np.int64)
+    integrate_batch(times, float(epoch), states, n, k, each(linear_drag), each(quadratic_drag),
+                    float(rtol), np.ascontiguousarray(atol), out, status)
+    return BatchStates(position=out[:, :, :2], velocity=out[:, :, 2:], ok=status == 0)

@@ -1,0 +1,158 @@
+"""Pieces every estimator shares: identifiability checks, h from the data, centre errors."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+
+import numpy as np
+
+from .._regression import autocorrelation_time, fit_line
+from .._types import FloatArray
+from ..errors import GeometryError, NotIdentifiable
+from ..geometry.curves import is_straight
+from ..geometry.path import PathGeometry
+from .result import Diagnostic
+
+
+def require_orbit(path: PathGeometry) -> None:
+    """Refuse paths from which no exponent can be read.
+
+    Raises
+    ------
+    NotIdentifiable
+        For a circle about the centre (r constant: a circular orbit exists for every
+        exponent) and for a path that does not bend (no force).
+    """
+    if is_straight(path.track.x, path.track.y, path.smoothing.noise):
+        raise NotIdentifiable(
+            f"{path.track.label}: the path does not bend significantly; a straight path shows no "
+            "force, so no exponent can be read from it. Check that the body moved under the force "
+            "(and not only the camera)."
+        )
+    spread = float(np.ptp(path.radius))
+    noise = float(np.median(path.radius_stderr))
+    if spread < max(6.0 * noise, 1e-9 * float(path.radius.mean())):
+        raise NotIdentifiable(
+            f"{path.track.label}: the distance from the centre is constant (a circle about the "
+            f"centre, r = {path.radius.mean():.6g} {path.track.length_unit}); a circular orbit "
+            "exists for every exponent, so the exponent cannot be determined. Launch the body "
+            "off-circular so that r varies."
+        )
+
+
+def require_monotonic(path: PathGeometry) -> None:
+    """theta must keep turning one way about the centre on a central orbit."""
+    step = np.diff(path.polar_angle)
+    sense = np.sign(path.polar_angle[-1] - path.polar_angle[0])
+    back = sense * step < -3.0 * (path.gamma_stderr[1:] + 1e-12)
+    if back.mean() > 0.01:
+        index = int(np.argmax(back)) + 1
+        raise GeometryError(
+            f"{path.track.label}: the path winds back about the centre "
+            f"({path.centre[0]:.6g}, {path.centre[1]:.6g}) near sample {index}: the polar angle "
+            "must turn one way along a central-force orbit. Check the centre, or the data."
+        )
+
+
+def angular_momentum(path: PathGeometry) -> tuple[float, float, float]:
+    """Mean specific angular momentum h (L**2/T), its standard error, and its drift.
+
+    The drift is the fitted relative change of h over the track; a central force keeps
+    h constant, drag or a non-central force make it drift.
+    """
+    h, sigma = path.angular_momentum, path.angular_momentum_stderr
+    if not np.all(np.isfinite(h)):
+        return math.nan, math.nan, math.nan
+    time = path.parameter - path.parameter.mean()
+    line = fit_line(time, h, sigma)
+    weight = 1.0 / sigma**2
+    mean = float(np.sum(weight * h) / np.sum(weight))
+    scatter = float(np.sum(weight * (h - mean) ** 2) / max(h.size - 1, 1))
+    stderr = math.sqrt(scatter * autocorrelation_time(h - mean) / np.sum(weight))
+    drift = line.slope * float(np.ptp(path.parameter)) / mean if mean else math.nan
+    return mean, stderr, drift
+
+
+def centre_covariance(
+    compute: Callable[[tuple[float, float]], FloatArray], path: PathGeometry
+) -> FloatArray:
+    """Covariance the centre's uncertainty adds to parameters computed about it.
+
+    ``compute`` maps a centre to the parameter vector; its derivative is taken by
+    central differences and combined with the centre's (independent) standard errors.
+    """
+    stderr = np.asarray(path.centre_stderr, dtype=float)
+    base = np.asarray(compute(path.centre))
+    if not np.any(stderr > 0):
+        return np.zeros((base.size, base.size))
+    columns = []
+    for axis in range(2):
+        step = np.zeros(2)
+        step[axis] = max(stderr[axis], 1e-9)
+        plus = np.asarray(compute(tuple(np.asarray(path.centre) + step)))
+        minus = np.asarray(compute(tuple(np.asarray(path.centre) - step)))
+        columns.append((plus - minus) / (2.0 * step[axis]))
+    jacobian = np.column_stack(columns)
+    return jacobian @ np.diag(stderr**2) @ jacobian.T
+
+
+def constancy_diagnostic(drift: float) -> Diagnostic:
+    """Verdict on the angular momentum's drift over the track (central forces keep h)."""
+    if not math.isfinite(drift):
+        return Diagnostic(None, "not checked (no timestamps).")
+    text = f"h changes by {100 * drift:+.2g}% over the track"
+    if abs(drift) > 0.02:
+        return Diagnostic(False, text + ": not a conservative central force (drag, or the "
+                                        "wrong centre).")
+    return Diagnostic(True, text + ".")
+
+
+def bend_diagnostic(x: FloatArray, y: FloatArray, sigma: FloatArray) -> Diagnostic:
+    """Does log F bend against log r? A quadratic term beyond 3 sigma says 'not a power law'."""
+    centred = x - np.average(x, weights=1 / sigma**2)
+    design = np.column_stack((np.ones_like(x), centred, centred**2)) / sigma[:, None]
+    solution, *_ = np.linalg.lstsq(design, y / sigma, rcond=None)
+    residual = y / sigma - design @ solution
+    scale = float(residual @ residual) / max(x.size - 3, 1) * autocorrelation_time(residual)
+    covariance = np.linalg.pinv(design.T @ design) * scale
+    bend = solution[2] / math.sqrt(covariance[2, 2]) if covariance[2, 2] > 0 else 0.0
+    span = float(np.ptp(x))
+    change = 2 * solution[2] * span
+    text = (f"the local exponent changes by {change:+.3g} across the radial range "
+            f"({abs(bend):.1f} standard errors)")
+    if abs(bend) > 4.0 and abs(change) > 0.1:
+        return Diagnostic(False, text + ": the force is not a single power law.")
+    return Diagnostic(True, text + ": consistent with a power law.")
+
+
+def leverage_diagnostic(radius: FloatArray) -> Diagnostic:
+    """Radial range r_max / r_min: the leverage the data give on the exponent."""
+    ratio = float(radius.max() / radius.min())
+    if ratio < 1.05:
+        return Diagnostic(False, f"r varies only by a factor {ratio:.3f}; the exponent is weakly "
+                                 "determined. Launch further from circular.")
+    return Diagnostic(True, f"r spans a factor {ratio:.3g}.")
+
+
+def runs_diagnostic(residuals: FloatArray) -> Diagnostic:
+    """Wald-Wolfowitz runs test on the signs of residuals taken in path order.
+
+    Residuals of a model that describes the path change sign often; long runs of one
+    sign mean systematic misfit. Fails when the runs are fewer than expected by more
+    than 4 standard deviations (Wald & Wolfowitz 1940, Ann. Math. Stat. 11, 147).
+    """
+    signs = residuals[residuals != 0] > 0
+    positive, negative = int(signs.sum()), int((~signs).sum())
+    if positive == 0 or negative == 0:
+        return Diagnostic(False, "every residual has the same sign: the model misses the path.")
+    total = positive + negative
+    runs = 1 + int(np.count_nonzero(signs[1:] != signs[:-1]))
+    expected = 1 + 2.0 * positive * negative / total
+    variance = (expected - 1) * (expected - 2) / (total - 1)
+    z = (runs - expected) / math.sqrt(variance) if variance > 0 else 0.0
+    text = f"{runs} runs of residual signs, {expected:.0f} expected (z = {z:+.1f})"
+    if z < -4.0:
+        return Diagnostic(False, text + ": the residuals wander systematically; the model does "
+                                        "not describe the path.")
+    return Diagnostic(True, text + ".")

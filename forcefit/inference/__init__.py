@@ -1,0 +1,16 @@
+"""Inference on fitted laws: posterior sampling, planning by Fisher information, law comparison."""
+
+from .comparison import compare_laws
+from .planning import Forecast, forecast_precision, required_duration, required_rate
+from .posterior import Posterior, run_ensemble, sample_posterior
+
+__all__ = [
+    "Forecast",
+    "Posterior",
+    "compare_laws",
+    "forecast_precision",
+    "required_duration",
+    "required_rate",
+    "run_ensemble",
+    "sample_posterior",
+]

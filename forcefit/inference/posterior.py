@@ -1,0 +1,458 @@
+"""Posterior sampling of an orbit fit with emcee: converged, with honest intervals.
+
+The log-probability is evaluated for all walkers at once (emcee's ``vectorize``) on the
+compiled batch propagator. Walkers start in a ball drawn from the least-squares
+covariance. The run stops by itself once the chain is longer than ``TAU_FACTOR``
+integrated autocorrelation times and the estimate of those times has settled (emcee's
+own autocorrelation tools), or at ``max_steps``; burn-in is discarded and the chain
+thinned from the autocorrelation time.
+
+References
+----------
+D. Foreman-Mackey, D. W. Hogg, D. Lang and J. Goodman (2013), emcee: the MCMC hammer,
+PASP 125, 306. J. Goodman and J. Weare (2010), Ensemble samplers with affine invariance,
+Comm. App. Math. Comp. Sci. 5, 65. C. J. F. ter Braak and J. A. Vrugt (2008),
+Differential evolution Markov chain with snooker updater, Stat. Comput. 18, 435.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import warnings
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field, replace
+from typing import Any, Literal
+
+import emcee
+import numpy as np
+import pandas as pd
+
+from .._types import FloatArray
+from ..dynamics.orbit_model import OrbitModel, observed
+from ..errors import FitError, InputError
+from ..estimators.result import LawFit
+from ..units import strength_unit
+
+TAU_FACTOR = 50.0
+"""The chain must be this many autocorrelation times long to count as converged."""
+
+TAU_SETTLED = 0.05
+"""Largest relative change of the autocorrelation time between checks, once settled."""
+
+CHECK_EVERY = 250
+"""Steps between convergence checks."""
+
+SAMPLING_RTOL = 1e-10
+"""Integration tolerance while sampling: orbit errors near 1e-8 of the size, far below any
+noise, at half the cost of the fitting tolerance."""
+
+Prior = tuple[str, float, float]
+"""("uniform", low, high) or ("normal", mean, standard deviation)."""
+
+DEFAULT_BOUNDS: Mapping[str, tuple[float, float]] = {
+    "exponent": (-20.0, 20.0),
+    "drag": (0.0, math.inf),
+    "log_noise_scale": (-10.0, 10.0),
+}
+"""Physical bounds applied unless the caller gives a prior for the parameter."""
+
+
+@dataclass(frozen=True)
+class Posterior:
+    """Samples of the orbit parameters' posterior, with their convergence record.
+
+    Attributes
+    ----------
+    samples : DataFrame
+        One row per kept (thinned, post-burn-in) sample; one column per sampled
+        parameter, plus the derived ``strength`` (k) and, when sampled, ``noise_scale``.
+    autocorr_time : dict
+        Integrated autocorrelation time of each sampled parameter, in steps.
+    converged : bool
+        Whether the run met the convergence rule.
+    reason : str
+        Why it converged or did not.
+    n_steps, n_walkers, burn_in, thin : int
+        The run's length, ensemble size, discarded steps and thinning.
+    units : dict
+        The unit of each column.
+    sampler : emcee.EnsembleSampler
+        The sampler, for arviz and further inspection.
+    """
+
+    samples: pd.DataFrame
+    autocorr_time: dict[str, float]
+    converged: bool
+    reason: str
+    n_steps: int
+    n_walkers: int
+    burn_in: int
+    thin: int
+    units: dict[str, str] = field(default_factory=dict)
+    sampler: Any = None
+
+    def interval(self, name: str, level: float = 0.68) -> tuple[float, float]:
+        """Central credible interval of one column at probability ``level``."""
+        if name not in self.samples:
+            raise InputError(f"no parameter {name!r}; the columns are: {', '.join(self.samples)}.")
+        tail = 50.0 * (1.0 - level)
+        low, high = np.percentile(self.samples[name], [tail, 100.0 - tail])
+        return float(low), float(high)
+
+    def effective_sample_size(self) -> dict[str, float]:
+        """Effective number of independent samples of each sampled parameter (arviz)."""
+        return {name: float(value) for name, value in _arviz_summary(self)["ess_bulk"].items()}
+
+    def split_rhat(self) -> dict[str, float]:
+        """Split R-hat of each sampled parameter across walkers (arviz; 1 when mixed)."""
+        return {name: float(value) for name, value in _arviz_summary(self)["r_hat"].items()}
+
+    def to_arviz(self) -> Any:
+        """The chain as an arviz InferenceData (walkers as chains), burn-in and thinning applied."""
+        import arviz
+
+        names = list(self.autocorr_time)
+        return arviz.from_emcee(self.sampler, var_names=names).sel(draw=slice(self.burn_in, None, self.thin))
+
+    def summary(self) -> str:
+        """Median, 68% and 95% intervals of each column, with units, and the convergence verdict."""
+        lines = [f"posterior: {self.n_walkers} walkers x {self.n_steps} steps, burn-in {self.burn_in}, "
+                 f"thinned by {self.thin}: {len(self.samples)} samples",
+                 f"{'converged' if self.converged else 'NOT CONVERGED'}: {self.reason}",
+                 f"  {'parameter':<16} {'median':>14} {'68% interval':>32} {'95% interval':>32}  unit"]
+        for name in self.samples:
+            median = float(np.median(self.samples[name]))
+            low68, high68 = self.interval(name, 0.68)
+            low95, high95 = self.interval(name, 0.95)
+            lines.append(f"  {name:<16} {median:>14.7g} {f'[{low68:.7g}, {high68:.7g}]':>32} "
+                         f"{f'[{low95:.7g}, {high95:.7g}]':>32}  {self.units.get(name, '')}")
+        return "\n".join(lines)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-safe summary: medians, intervals, autocorrelation times, convergence."""
+        from .._json import json_safe
+
+        return json_safe({
+            "converged": self.converged, "reason": self.reason, "n_steps": self.n_steps,
+            "n_walkers": self.n_walkers, "burn_in": self.burn_in, "thin": self.thin,
+            "autocorr_time": self.autocorr_time,
+            "parameters": {name: {"median": float(np.median(self.samples[name])),
+                                  "interval_68": list(self.interval(name, 0.68)),
+                                  "interval_95": list(self.interval(name, 0.95)),
+                                  "unit": self.units.get(name, "")} for name in self.samples},
+        })
+
+
+def _arviz_summary(posterior: Posterior) -> pd.DataFrame:
+    import arviz
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return arviz.summary(posterior.to_arviz(), kind="diagnostics")
+
+
+def _log_prior(theta: FloatArray, names: Sequence[str], priors: Mapping[str, Prior]) -> FloatArray:
+    """Log prior density of each walker (constants dropped; -inf outside bounds)."""
+    total = np.zeros(theta.shape[0])
+    for column, name in enumerate(names):
+        value = theta[:, column]
+        if name in priors:
+            kind, first, second = priors[name]
+            if kind == "uniform":
+                total = np.where((value < first) | (value > second), -np.inf, total)
+            else:
+                total = total - 0.5 * ((value - first) / second) ** 2
+        elif name in DEFAULT_BOUNDS:
+            low, high = DEFAULT_BOUNDS[name]
+            total = np.where((value < low) | (value > high), -np.inf, total)
+    return total
+
+
+def _check_priors(priors: Mapping[str, Prior], names: Sequence[str]) -> None:
+    for name, prior in priors.items():
+        if name not in names:
+            raise InputError(f"a prior was given for {name!r}, which is not sampled; the sampled "
+                             f"parameters are: {', '.join(names)}.")
+        if len(prior) != 3 or prior[0] not in ("uniform", "normal"):
+            raise InputError(f'the prior for {name!r} must be ("uniform", low, high) or '
+                             f'("normal", mean, sd), not {prior!r}.')
+        if prior[0] == "uniform" and not prior[1] < prior[2] or prior[0] == "normal" and not prior[2] > 0:
+            raise InputError(f"the prior for {name!r} is empty or has no width: {prior!r}.")
+
+
+@dataclass(frozen=True)
+class _Problem:
+    """Everything the log-probability needs, fixed for a run."""
+
+    model: OrbitModel
+    template: FloatArray
+    columns: np.ndarray
+    names: tuple[str, ...]
+    data: FloatArray
+    sigma: FloatArray
+    fit_noise: bool
+    priors: Mapping[str, Prior]
+
+    def __call__(self, theta: FloatArray) -> FloatArray:
+        theta = np.atleast_2d(theta)
+        log_p = _log_prior(theta, self.names, self.priors)
+        alive = np.isfinite(log_p)
+        if not alive.any():
+            return log_p
+        full = np.repeat(self.template[None, :], int(alive.sum()), axis=0)
+        full[:, self.columns] = theta[alive][:, : self.columns.size]
+        predictions, ok = self.model.predict(full)
+        stacked = np.concatenate(predictions, axis=1)
+        chi2 = np.sum(((self.data[None] - stacked) / self.sigma[None, :, None]) ** 2, axis=(1, 2))
+        if self.fit_noise:
+            scale = np.exp(theta[alive][:, -1])
+            likelihood = -0.5 * chi2 / scale**2 - self.data.size * np.log(scale)
+        else:
+            likelihood = -0.5 * chi2
+        log_p[alive] += np.where(ok & np.isfinite(likelihood), likelihood, -np.inf)
+        return log_p
+
+
+def _problem(fit: LawFit, noise: str, priors: Mapping[str, Prior]) -> tuple[_Problem, FloatArray, FloatArray]:
+    """The log-probability, the best-fit point and the covariance to start the walkers from."""
+    result = fit.details["lmfit"]
+    model: OrbitModel = replace(fit.details["model"], rtol=SAMPLING_RTOL)
+    varying = list(result.var_names)
+    template = np.array([result.params[name].value for name in model.names])
+    best = np.array([result.params[name].value for name in varying])
+    if result.covar is not None:
+        covariance = np.asarray(result.covar, dtype=float)
+    else:
+        spread = [result.params[name].stderr or 1e-6 * max(abs(result.params[name].value), 1.0)
+                  for name in varying]
+        covariance = np.diag(np.square(spread))
+    fit_noise = noise == "fit"
+    names = tuple(varying) + (("log_noise_scale",) if fit_noise else ())
+    if fit_noise:
+        scale = math.log(max(math.sqrt(fit.reduced_chi2), 1e-6))
+        best = np.append(best, scale)
+        covariance = np.pad(covariance, ((0, 1), (0, 1)))
+        covariance[-1, -1] = 1.0 / (2.0 * fit.n_points)
+    _check_priors(priors, names)
+    problem = _Problem(model=model, template=template,
+                       columns=np.array([model.names.index(name) for name in varying]),
+                       names=names, data=observed(model.tracks), sigma=np.asarray(fit.details["sigma"]),
+                       fit_noise=fit_noise, priors=priors)
+    return problem, best, covariance
+
+
+def _units(fit: LawFit, names: Sequence[str]) -> dict[str, str]:
+    length, time = fit.length_unit, fit.time_unit or "T"
+    units = {"exponent": "", "log_force": f"ln({length} {time}^-2)", "rotation_rate": f"rad/{time}",
+             "log_noise_scale": "", "noise_scale": "", "strength": strength_unit(length, time, fit.exponent)}
+    for name in names:
+        if name.startswith(("centre", "x0", "y0")):
+            units[name] = length
+        elif name.startswith(("vx0", "vy0")):
+            units[name] = f"{length}/{time}"
+        elif name == "drag":
+            drag_kind = fit.details["model"].drag
+            units[name] = f"1/{time}" if drag_kind == "linear" else f"1/{length}"
+    return units
+
+
+def _start(best: FloatArray, covariance: FloatArray, walkers: int,
+           in_prior: Callable[[FloatArray], np.ndarray], rng: np.random.Generator) -> FloatArray:
+    """Walkers drawn from the least-squares normal approximation, kept inside the prior."""
+    scale = np.sqrt(np.clip(np.diag(covariance), 1e-300, None))
+    correlation = covariance / np.outer(scale, scale)
+    jitter = 1e-9 * np.eye(best.size)
+    try:
+        factor = np.linalg.cholesky(correlation + jitter)
+    except np.linalg.LinAlgError:
+        factor = np.eye(best.size)
+    points = best + (rng.standard_normal((walkers * 4, best.size)) @ factor.T) * scale
+    inside = points[in_prior(points)]
+    if inside.shape[0] < walkers:
+        raise FitError("could not place the walkers inside the prior around the least-squares fit; "
+                       "widen the prior.")
+    return inside[:walkers]
+
+
+def _moves(kind: str) -> Any:
+    if kind == "stretch":
+        return emcee.moves.StretchMove()
+    if kind == "de":
+        return [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
+    raise InputError(f'moves {kind!r} is unknown; use "de" or "stretch".')
+
+
+def sample_posterior(
+    fit: LawFit,
+    *,
+    walkers: int | None = None,
+    max_steps: int = 20_000,
+    min_steps: int = 0,
+    priors: Mapping[str, Prior] | None = None,
+    noise: Literal["known", "fit"] | None = None,
+    moves: Literal["de", "stretch"] = "de",
+    progress: bool = True,
+    seed: int | None = None,
+    save: str | os.PathLike[str] | None = None,
+    resume: bool = False,
+) -> Posterior:
+    """Sample the posterior of an orbit fit's parameters with emcee.
+
+    Parameters
+    ----------
+    fit : LawFit
+        A fit from `fit_orbit`; its least-squares covariance places the walkers.
+    walkers : int, optional
+        Ensemble size; default max(32, 2 x parameters + 2).
+    max_steps : int
+        Longest run; the run stops earlier once converged.
+    min_steps : int
+        Shortest run, converged or not (for tests and for resuming).
+    priors : mapping, optional
+        Per parameter ("uniform", low, high) or ("normal", mean, sd); other parameters
+        get flat priors within physical bounds (n in [-20, 20], drag >= 0).
+    noise : {"known", "fit"}, optional
+        Take sigma as given, or sample a noise scale factor too (default: "known" when
+        the tracks carry sigma, else "fit").
+    moves : {"de", "stretch"}
+        Differential-evolution moves (default; shorter autocorrelation on these
+        posteriors, see benchmarks/posterior.py) or emcee's stretch move.
+    progress : bool
+        Show a progress bar.
+    seed : int, optional
+        Seed of the run's random numbers (walker start and moves).
+    save : path, optional
+        HDF5 file that keeps the chain as it grows (emcee's HDFBackend).
+    resume : bool
+        Continue the chain stored in ``save`` instead of starting afresh.
+
+    Returns
+    -------
+    Posterior
+    """
+    if fit.method != "orbit" or "model" not in fit.details:
+        raise InputError("sampling needs a fit from fit_orbit (the orbit method); "
+                         f"this one is a {fit.method} fit.")
+    noise = noise or ("known" if fit.details["sigma_known"] else "fit")
+    problem, best, covariance = _problem(fit, noise, dict(priors or {}))
+
+    def in_prior(points: FloatArray) -> np.ndarray:
+        return np.isfinite(_log_prior(points, problem.names, problem.priors))
+
+    sampler, converged, reason = run_ensemble(
+        problem, best, covariance, in_prior=in_prior, walkers=walkers, max_steps=max_steps,
+        min_steps=min_steps, moves=moves, progress=progress, seed=seed, save=save, resume=resume)
+    return _collect(sampler, problem, fit, converged, reason)
+
+
+def run_ensemble(
+    log_probability: Callable[[FloatArray], FloatArray],
+    best: FloatArray,
+    covariance: FloatArray,
+    *,
+    in_prior: Callable[[FloatArray], np.ndarray] | None = None,
+    walkers: int | None = None,
+    max_steps: int = 20_000,
+    min_steps: int = 0,
+    moves: str = "de",
+    progress: bool = False,
+    seed: int | None = None,
+    save: str | os.PathLike[str] | None = None,
+    resume: bool = False,
+) -> tuple[emcee.EnsembleSampler, bool, str]:
+    """Run emcee on a vectorised log-probability until converged; the engine behind
+    `sample_posterior`, usable on any problem.
+
+    Parameters
+    ----------
+    log_probability : callable
+        Maps walker positions of shape (n_walkers, n_dim) to log densities (n_walkers,).
+    best, covariance : ndarray
+        Centre and covariance of the normal ball the walkers start in.
+    in_prior : callable, optional
+        Maps positions to a mask of those inside the prior's support.
+    walkers, max_steps, min_steps, moves, progress, seed, save, resume
+        As in `sample_posterior`.
+
+    Returns
+    -------
+    sampler, converged, reason
+    """
+    ndim = best.size
+    walkers = walkers or max(32, 2 * ndim + 2)
+    walkers += walkers % 2
+    backend = None
+    if save is not None:
+        backend = emcee.backends.HDFBackend(os.fspath(save))
+        if not resume:
+            backend.reset(walkers, ndim)
+    elif resume:
+        raise InputError("resume needs the chain file: give save=... (--resume FILE).")
+    sampler = emcee.EnsembleSampler(walkers, ndim, log_probability, vectorize=True,
+                                    moves=_moves(moves), backend=backend)
+    if resume and backend is not None and backend.iteration > 0:
+        state = sampler.get_last_sample()
+    else:
+        rng = np.random.default_rng(seed)
+        inside = in_prior or (lambda points: np.ones(points.shape[0], dtype=bool))
+        state = emcee.State(_start(best, covariance, walkers, inside, rng),
+                            random_state=np.random.RandomState(seed).get_state())
+    done = backend.iteration if backend is not None and resume else 0
+    converged, reason = _run(sampler, state, max_steps - done, min_steps, progress)
+    return sampler, converged, reason
+
+
+def _run(sampler: emcee.EnsembleSampler, state: Any, steps: int, min_total: int,
+         progress: bool) -> tuple[bool, str]:
+    """Advance the chain until converged (or ``steps`` more steps); return the verdict."""
+    from tqdm.auto import tqdm
+
+    previous: FloatArray | None = None
+    change = math.inf
+    if steps > 0:
+        with tqdm(total=steps, disable=not progress, unit="step", desc="sampling",
+                  leave=False, mininterval=0.5) as bar:
+            for _ in sampler.sample(state, iterations=steps, store=True):
+                bar.update(1)
+                if sampler.iteration % CHECK_EVERY:
+                    continue
+                tau = sampler.get_autocorr_time(tol=0)
+                if previous is not None:
+                    change = float(np.max(np.abs(previous - tau) / tau))
+                previous = tau
+                bar.set_postfix_str(f"tau {np.max(tau):.0f} steps")
+                if (sampler.iteration >= min_total and sampler.iteration > TAU_FACTOR * np.max(tau)
+                        and change < TAU_SETTLED):
+                    break
+    tau = sampler.get_autocorr_time(tol=0)
+    length = sampler.iteration / float(np.max(tau))
+    if length > TAU_FACTOR and change < TAU_SETTLED:
+        return True, (f"the chain is {length:.0f} autocorrelation times long (tau up to "
+                      f"{np.max(tau):.0f} steps) and tau changed by {100 * change:.1f}% at the last check.")
+    if length <= TAU_FACTOR:
+        return False, (f"after {sampler.iteration} steps the chain is only {length:.0f} autocorrelation "
+                       f"times long ({TAU_FACTOR:.0f} needed; tau up to {np.max(tau):.0f} steps). Run "
+                       "longer (raise max_steps, or resume the saved chain).")
+    return False, (f"tau is still changing ({100 * change:.0f}% between checks); run longer.")
+
+
+def _collect(sampler: emcee.EnsembleSampler, problem: _Problem, fit: LawFit, converged: bool,
+             reason: str) -> Posterior:
+    tau = sampler.get_autocorr_time(tol=0)
+    burn_in = min(int(2 * np.max(tau)), sampler.iteration // 2)
+    thin = max(1, int(0.5 * np.min(tau)))
+    chain = sampler.get_chain(discard=burn_in, thin=thin, flat=True)
+    samples = pd.DataFrame(chain, columns=list(problem.names))
+    model = problem.model
+    exponent = samples["exponent"] if "exponent" in samples else problem.template[0]
+    log_force = samples["log_force"] if "log_force" in samples else problem.template[1]
+    samples["strength"] = np.exp(log_force - exponent * math.log(model.reference_radius))
+    if problem.fit_noise:
+        samples["noise_scale"] = np.exp(samples["log_noise_scale"])
+    return Posterior(
+        samples=samples, autocorr_time=dict(zip(problem.names, map(float, tau))),
+        converged=converged, reason=reason, n_steps=int(sampler.iteration),
+        n_walkers=int(sampler.nwalkers), burn_in=burn_in, thin=thin,
+        units=_units(fit, problem.names), sampler=sampler,
+    )

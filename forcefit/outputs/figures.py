@@ -1,0 +1,244 @@
+"""Figures people would rather look at than read: path and orbit, residuals, the
+force-curvature relation, apsides, the posterior's corner and trace plots, a class histogram.
+
+Pure plotting: each function takes a result and returns a matplotlib Figure; `save_figure`
+writes one whole or not at all. The palette is colour-blind safe (Okabe & Ito 2008,
+"Color universal design").
+"""
+
+from __future__ import annotations
+
+import io
+import os
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+from collections.abc import Sequence  # noqa: E402
+
+import matplotlib.patches  # noqa: E402
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+from matplotlib.figure import Figure  # noqa: E402
+
+from .._atomic import write_atomic  # noqa: E402
+from .._types import FloatArray  # noqa: E402
+from ..analysis.apsides import Apsides  # noqa: E402
+from ..estimators.result import LawFit  # noqa: E402
+from ..inference.posterior import Posterior  # noqa: E402
+from ..track import Track  # noqa: E402
+
+PALETTE = {"ink": "#1b2631", "data": "#0072B2", "model": "#D55E00", "accent": "#009E73",
+           "muted": "#999999", "band": "#E69F00"}
+"""forcefit's colours: Okabe-Ito hues, dark ink for text."""
+
+LABELS = {"exponent": "n", "strength": "k", "log_force": "ln F(r_ref)", "centre_x": "centre x",
+          "centre_y": "centre y", "noise_scale": "noise scale", "drag": "drag",
+          "rotation_rate": "rotation rate"}
+
+
+def _label(posterior: Posterior, name: str) -> str:
+    unit = posterior.units.get(name, "")
+    text = LABELS.get(name, name)
+    return f"{text} [{unit}]" if unit else text
+
+
+def corner_figure(posterior: Posterior, names: list[str] | None = None) -> Figure:
+    """Pairwise marginals of the posterior (``corner`` package), law parameters first.
+
+    Parameters
+    ----------
+    posterior : Posterior
+    names : list of str, optional
+        Columns to show; default the exponent, the strength and the centre.
+    """
+    import corner
+
+    names = names or [name for name in ("exponent", "strength", "centre_x", "centre_y", "drag",
+                                        "rotation_rate", "noise_scale") if name in posterior.samples]
+    values = posterior.samples[names].to_numpy()
+    figure = corner.corner(values, labels=[_label(posterior, n) for n in names],
+                           quantiles=[0.16, 0.5, 0.84], show_titles=True, title_fmt=".4g",
+                           color=PALETTE["data"], hist_kwargs={"color": PALETTE["data"]},
+                           label_kwargs={"fontsize": 9}, title_kwargs={"fontsize": 8})
+    figure.suptitle("posterior (median and 68% interval in each title)", color=PALETTE["ink"], y=1.03)
+    return figure
+
+
+def trace_figure(posterior: Posterior, names: list[str] | None = None, walkers: int = 12) -> Figure:
+    """The chains of a few walkers against step number, burn-in shaded."""
+    names = names or [name for name in ("exponent", "log_force", "centre_x", "centre_y")
+                      if name in posterior.autocorr_time]
+    chain = posterior.sampler.get_chain()
+    columns = list(posterior.autocorr_time)
+    figure, axes = plt.subplots(len(names), 1, figsize=(7.5, 1.7 * len(names) + 0.6), sharex=True,
+                                squeeze=False)
+    steps = np.arange(chain.shape[0])
+    for axis, name in zip(axes[:, 0], names):
+        index = columns.index(name)
+        axis.plot(steps, chain[:, :walkers, index], color=PALETTE["data"], alpha=0.35, linewidth=0.6)
+        axis.axvspan(0, posterior.burn_in, color=PALETTE["muted"], alpha=0.2, linewidth=0)
+        axis.set_ylabel(_label(posterior, name), fontsize=8)
+        axis.tick_params(labelsize=7)
+    axes[-1, 0].set_xlabel("step (grey: burn-in, discarded)")
+    verdict = "converged" if posterior.converged else "NOT converged"
+    figure.suptitle(f"chains of {min(walkers, chain.shape[1])} walkers — {verdict}", fontsize=10)
+    figure.tight_layout()
+    return figure
+
+
+def save_figure(figure: Figure, path: str | os.PathLike[str], *, dpi: int = 120) -> Path:
+    """Write a figure as PNG, whole or not at all, and close it."""
+    return write_atomic(Path(path), figure_png(figure, dpi=dpi))
+
+
+def _style(axis: plt.Axes) -> None:
+    axis.tick_params(labelsize=8, colors=PALETTE["ink"])
+    for side in ("top", "right"):
+        axis.spines[side].set_visible(False)
+    axis.grid(True, color="#e5e8e8", linewidth=0.6)
+    axis.set_axisbelow(True)
+
+
+def path_figure(track: Track, fit: LawFit) -> Figure:
+    """The measured path, the fitted orbit over it (orbit fits) and the centre with its error."""
+    figure, axis = plt.subplots(figsize=(6.0, 5.2))
+    axis.plot(track.x, track.y, ".", color=PALETTE["data"], markersize=2.5, alpha=0.6,
+              label="measured")
+    predicted = fitted_positions(fit)
+    if predicted is not None:
+        axis.plot(predicted[:, 0], predicted[:, 1], "-", color=PALETTE["model"], linewidth=1.0,
+                  label=f"fitted orbit, n = {fit.exponent:.4g}")
+    cx, cy = fit.centre
+    axis.plot([cx], [cy], "+", color=PALETTE["ink"], markersize=12, markeredgewidth=2, label="centre")
+    sx, sy = fit.centre_stderr
+    if np.isfinite(sx) and np.isfinite(sy) and sx > 0:
+        axis.add_patch(matplotlib.patches.Ellipse((cx, cy), 6 * sx, 6 * sy, fill=False,
+                                                  color=PALETTE["ink"], linestyle=":",
+                                                  label="centre ± 3 sd"))
+    axis.set_aspect("equal", adjustable="datalim")
+    axis.set_xlabel(f"x [{track.length_unit}]", fontsize=9)
+    axis.set_ylabel(f"y [{track.length_unit}]", fontsize=9)
+    axis.legend(fontsize=8, loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=4, frameon=False)
+    _style(axis)
+    axis.set_title(f"{track.name}: path and fitted orbit", fontsize=10, color=PALETTE["ink"])
+    return figure
+
+
+def residual_figure(track: Track, fit: LawFit) -> Figure:
+    """Normalised residuals against time (or sample number), with the ±3 band."""
+    residuals = np.asarray(fit.residuals)
+    figure, axis = plt.subplots(figsize=(7.0, 2.8))
+    if fit.method == "orbit" and residuals.size == 2 * track.n_points and track.t is not None:
+        pairs = residuals.reshape(-1, 2)
+        axis.plot(track.t, pairs[:, 0], ".", markersize=2, color=PALETTE["data"], label="x")
+        axis.plot(track.t, pairs[:, 1], ".", markersize=2, color=PALETTE["band"], label="y")
+        axis.set_xlabel(f"t [{track.time_unit}]", fontsize=9)
+        axis.legend(fontsize=8, frameon=False, markerscale=4)
+    else:
+        axis.plot(np.arange(residuals.size), residuals, ".", markersize=2, color=PALETTE["data"])
+        axis.set_xlabel("point", fontsize=9)
+    for level in (-3, 3):
+        axis.axhline(level, color=PALETTE["muted"], linestyle="--", linewidth=0.8)
+    axis.axhline(0, color=PALETTE["ink"], linewidth=0.6)
+    axis.set_ylabel("residual / sigma", fontsize=9)
+    _style(axis)
+    axis.set_title("residuals (a power law that fits leaves noise without pattern)", fontsize=10)
+    return figure
+
+
+def relation_figure(track: Track, fit: LawFit) -> Figure:
+    """The force-curvature relation in log-log, with the fitted law's line."""
+    from ..geometry.curves import attractive_points, curvature_relation
+    from ..geometry.path import describe_path
+
+    path = describe_path(track, centre=fit.centre)
+    used = attractive_points(path.smoothing, path.curvature, path.curvature_stderr)
+    points = curvature_relation(path.smoothing, path.curvature, path.curvature_stderr,
+                                np.asarray(fit.centre), used)
+    y = points.log_force_per_h2
+    label = "ln(F / h^2)"
+    if track.has_times:
+        offset = path.position[used] - np.asarray(fit.centre)
+        velocity = path.velocity[used]
+        y = y + 2 * np.log(np.abs(offset[:, 0] * velocity[:, 1] - offset[:, 1] * velocity[:, 0]))
+        label = f"ln F [F in {track.length_unit} {track.time_unit}^-2]"
+    figure, axis = plt.subplots(figsize=(6.0, 4.0))
+    axis.plot(points.log_radius, y, ".", markersize=2.5, color=PALETTE["data"], alpha=0.6,
+              label="from the curvature of the path")
+    x = np.linspace(points.log_radius.min(), points.log_radius.max(), 50)
+    if track.has_times and np.isfinite(fit.force_at_reference):
+        line = np.log(fit.force_at_reference) + fit.exponent * (x - np.log(fit.reference_radius))
+    else:
+        line = np.log(fit.strength_per_h2) + fit.exponent * x
+    axis.plot(x, line, "-", color=PALETTE["model"], label=f"{fit.method} fit: slope n = {fit.exponent:.4g}")
+    axis.set_xlabel(f"ln r [r in {track.length_unit}]", fontsize=9)
+    axis.set_ylabel(label, fontsize=9)
+    axis.legend(fontsize=8, frameon=False)
+    _style(axis)
+    axis.set_title("force-curvature relation F = h^2 kappa / (r^2 cos^3 gamma)", fontsize=10)
+    return figure
+
+
+def apsides_figure(apsides: Apsides) -> Figure:
+    """How far each apse has turned from a closed orbit's position, against time."""
+    angles = np.array([apse.angle for apse in apsides.apses])
+    count = np.round((angles - angles[0]) / np.median(np.diff(angles)))
+    drift = np.degrees(angles - count * np.pi / apsides.closure - angles[0])
+    errors = np.degrees([apse.angle_stderr for apse in apsides.apses])
+    where = np.array([apse.time for apse in apsides.apses])
+    use_time = bool(np.all(np.isfinite(where)))
+    x = where if use_time else count
+    figure, axis = plt.subplots(figsize=(6.5, 3.0))
+    for kind, colour in (("pericentre", PALETTE["data"]), ("apocentre", PALETTE["band"])):
+        chosen = np.array([apse.kind == kind for apse in apsides.apses])
+        axis.errorbar(x[chosen], drift[chosen], yerr=errors[chosen], fmt="o", markersize=3,
+                      color=colour, label=kind)
+    axis.set_xlabel(f"t [{apsides.time_unit}]" if use_time else "apse number", fontsize=9)
+    axis.set_ylabel("turn of the apse [deg]", fontsize=9)
+    axis.legend(fontsize=8, frameon=False)
+    _style(axis)
+    axis.set_title(f"precession {np.degrees(apsides.precession_per_revolution):+.4g} deg per "
+                   "revolution", fontsize=10)
+    return figure
+
+
+def grade_histogram(exponents: Sequence[float], expected: float, tolerance: float) -> Figure:
+    """The class's fitted exponents against the tolerance band around the expected one."""
+    figure, axis = plt.subplots(figsize=(6.5, 3.0))
+    values = np.asarray([v for v in exponents if np.isfinite(v)])
+    axis.axvspan(expected - tolerance, expected + tolerance, color=PALETTE["accent"], alpha=0.18,
+                 label=f"pass: {expected:g} ± {tolerance:g}")
+    if values.size:
+        span = max(np.ptp(values), 4 * tolerance)
+        bins = np.linspace(min(values.min(), expected - 2 * tolerance) - 0.05 * span,
+                           max(values.max(), expected + 2 * tolerance) + 0.05 * span, 30)
+        axis.hist(values, bins=bins.tolist(), color=PALETTE["data"], edgecolor="white", label="runs")
+    axis.axvline(expected, color=PALETTE["ink"], linewidth=1.0)
+    axis.set_xlabel("fitted exponent n", fontsize=9)
+    axis.set_ylabel("runs", fontsize=9)
+    axis.legend(fontsize=8, frameon=False)
+    _style(axis)
+    axis.set_title("exponents of the class against the tolerance band", fontsize=10)
+    return figure
+
+
+def fitted_positions(fit: LawFit) -> FloatArray | None:
+    """The orbit fit's predicted positions at the samples, all tracks stacked; None otherwise."""
+    model = fit.details.get("model")
+    result = fit.details.get("lmfit")
+    if model is None or result is None:
+        return None
+    vector = np.array([result.params[name].value for name in model.names])
+    predictions, ok = model.predict(vector[None, :])
+    return np.concatenate([p[0] for p in predictions]) if ok[0] else None
+
+
+def figure_png(figure: Figure, *, dpi: int = 110) -> bytes:
+    """A figure as PNG bytes (and closed)."""
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight")
+    plt.close(figure)
+    return buffer.getvalue()

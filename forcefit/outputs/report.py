@@ -1,0 +1,268 @@
+"""Reports people can read at a glance and file: one HTML page per run, one per class.
+
+Each page is self-contained (figures embedded as PNG data), rendered by jinja2 with
+autoescaping on, so text that came from a file (a run's name, a column header) is shown as
+text, never run as markup. The figures are written beside it as PNG files. Everything is
+written whole or not at all.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import math
+import os
+import re
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from jinja2 import Environment, PackageLoader, select_autoescape
+from matplotlib.figure import Figure
+
+from .._atomic import write_atomic
+from .._version import __version__
+from ..analysis.apsides import Apsides
+from ..estimators.result import LawFit
+from ..inference.posterior import Posterior
+from ..track import Track
+from ..units import format_measurement, strength_per_h2_unit
+from .figures import (
+    apsides_figure,
+    corner_figure,
+    figure_png,
+    grade_histogram,
+    path_figure,
+    relation_figure,
+    residual_figure,
+    trace_figure,
+)
+
+
+def safe_name(name: str) -> str:
+    """A run's name as a file name: letters, digits, dot, dash, underscore; never a path.
+
+    Examples
+    --------
+    >>> safe_name("../../x"), safe_name("run<img src=x onerror=alert(1)>.csv")
+    ('x', 'run_img_src_x_onerror_alert_1_.csv')
+    """
+    cleaned = re.sub(r"[^A-Za-z0-9._-]+", "_", name).strip("._")
+    cleaned = re.sub(r"\.{2,}", ".", cleaned)
+    return cleaned[:120] or "run"
+
+
+def _environment() -> Environment:
+    return Environment(loader=PackageLoader("forcefit.outputs", "templates"),
+                       autoescape=select_autoescape(["html", "j2"], default_for_string=True))
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """A pass/fail (or note) with the reasons, as shown at the top of a report."""
+
+    label: str
+    passed: bool | None
+    reasons: tuple[str, ...] = ()
+
+
+def _quantities(fit: LawFit) -> list[dict[str, str]]:
+    length, time = fit.length_unit, fit.time_unit or ""
+    rows = [
+        ("exponent n", format_measurement(fit.exponent, fit.exponent_stderr), ""),
+        ("strength k", format_measurement(fit.strength, fit.strength_stderr), fit.strength_unit),
+        ("k / h²", format_measurement(fit.strength_per_h2, fit.strength_per_h2_stderr),
+         strength_per_h2_unit(length, fit.exponent)),
+        ("reference radius r_ref", format_measurement(fit.reference_radius), length),
+        ("force |F| at r_ref", format_measurement(fit.force_at_reference, fit.force_at_reference_stderr),
+         f"{length} {time}^-2"),
+        ("centre x", format_measurement(fit.centre[0], fit.centre_stderr[0]), length),
+        ("centre y", format_measurement(fit.centre[1], fit.centre_stderr[1]), length),
+        ("chi-square", f"{fit.chi2:.6g}", ""),
+        ("reduced chi-square", f"{fit.reduced_chi2:.4g}", ""),
+        ("points used", str(fit.n_points), ""),
+    ]
+    nominal = round(fit.exponent)
+    if math.isfinite(fit.force_at_reference) and abs(fit.exponent - nominal) > 1e-12:
+        value, error = fit.strength_at_exponent(nominal)
+        rows.insert(2, (f"k for n = {nominal} (same force at r_ref)", format_measurement(value, error),
+                        _unit_for(fit, nominal)))
+    for name, unit in (("drag", f"1/{time}"), ("rotation_rate", f"rad/{time}"), ("noise", length)):
+        if name in fit.details:
+            spread = _number(fit.details.get(f"{name}_stderr"))
+            text = format_measurement(float(fit.details[name]), spread if math.isfinite(spread) else None)
+            rows.append((name.replace("_", " "), text, unit))
+    return [{"label": a, "value": b, "unit": c} for a, b, c in rows]
+
+
+def _unit_for(fit: LawFit, exponent: float) -> str:
+    from ..units import strength_unit
+
+    return strength_unit(fit.length_unit, fit.time_unit or "T", exponent)
+
+
+def _diagnostics(fit: LawFit) -> list[dict[str, str]]:
+    symbols = {True: ("✔", "pass"), False: ("✘", "fail"), None: ("·", "note")}
+    return [{"symbol": symbols[check.passed][0], "mark": symbols[check.passed][1], "name": name,
+             "message": check.message} for name, check in fit.diagnostics.items()]
+
+
+def _posterior_rows(posterior: Posterior) -> dict[str, Any]:
+    rows = []
+    for name in posterior.samples:
+        low68, high68 = posterior.interval(name, 0.68)
+        low95, high95 = posterior.interval(name, 0.95)
+        rows.append({"name": name, "median": f"{np.median(posterior.samples[name]):.7g}",
+                     "i68": f"[{low68:.7g}, {high68:.7g}]", "i95": f"[{low95:.7g}, {high95:.7g}]",
+                     "unit": posterior.units.get(name, "")})
+    return {"verdict": "converged" if posterior.converged else "NOT converged",
+            "reason": posterior.reason, "rows": rows}
+
+
+def _apsides_rows(apsides: Apsides) -> list[dict[str, str]]:
+    rows = [("apses found", str(len(apsides.apses))),
+            ("apsidal angle", f"{math.degrees(apsides.apsidal_angle):.5f} ± "
+                              f"{math.degrees(apsides.apsidal_angle_stderr):.2g} deg"),
+            ("precession per revolution",
+             f"{math.degrees(apsides.precession_per_revolution):+.4g} ± "
+             f"{math.degrees(apsides.precession_per_revolution_stderr):.2g} deg"),
+            ("r_max / r_min", f"{apsides.radius_ratio:.6g}"),
+            ("exponent from the apsidal angle", f"{apsides.exponent:.6g} ± {apsides.exponent_stderr:.2g}")]
+    if math.isfinite(apsides.precession_rate):
+        rows.insert(3, ("precession rate", f"{apsides.precession_rate:+.4g} ± "
+                                           f"{apsides.precession_rate_stderr:.2g} rad/{apsides.time_unit}"))
+    return [{"label": a, "value": b} for a, b in rows]
+
+
+def _track_of(fit: LawFit, track: Track | None) -> Track | None:
+    if track is not None:
+        return track
+    model = fit.details.get("model")
+    return model.tracks[0] if model is not None else None
+
+
+def write_report(
+    fit: LawFit,
+    out_dir: str | os.PathLike[str],
+    *,
+    track: Track | None = None,
+    posterior: Posterior | None = None,
+    apsides: Apsides | None = None,
+    verdict: Verdict | None = None,
+) -> Path:
+    """Write one run's report: an HTML page with every number and figure, and the PNGs.
+
+    Parameters
+    ----------
+    fit : LawFit
+        The fit to report.
+    out_dir : path
+        Folder for the page and figures (created if missing).
+    track : Track, optional
+        The data fitted (taken from an orbit fit when not given); needed for the figures.
+    posterior, apsides : optional
+        Shown when given.
+    verdict : Verdict, optional
+        A grade to show at the top; default the fit's own checks.
+
+    Returns
+    -------
+    Path
+        The HTML page.
+    """
+    folder = Path(out_dir)
+    folder.mkdir(parents=True, exist_ok=True)
+    slug = safe_name(fit.track_name)
+    track = _track_of(fit, track)
+    makers: list[tuple[str, str, Callable[[], Figure]]] = []
+    if track is not None:
+        makers += [("path", "path with the fitted orbit and the centre", lambda: path_figure(track, fit)),
+                   ("residuals", "normalised residuals", lambda: residual_figure(track, fit)),
+                   ("relation", "force-curvature relation, log-log", lambda: relation_figure(track, fit))]
+    if posterior is not None:
+        makers += [("corner", "posterior: pairwise marginals", lambda: corner_figure(posterior)),
+                   ("trace", "posterior: chains of a few walkers", lambda: trace_figure(posterior))]
+    if apsides is not None:
+        makers.append(("apsides", "turn of each apse against time", lambda: apsides_figure(apsides)))
+    figures = []
+    for key, caption, make in makers:
+        try:
+            data = figure_png(make())
+        except Exception as exc:  # a figure that cannot be drawn must not lose the report
+            figures.append({"data": "", "caption": f"{caption}: not drawn ({exc})", "file": "-"})
+            continue
+        file_name = f"{slug}_{key}.png"
+        write_atomic(folder / file_name, data)
+        figures.append({"data": base64.b64encode(data).decode("ascii"), "caption": caption,
+                        "file": file_name})
+    verdict = verdict or Verdict("CHECKS PASSED" if fit.passed else "CHECKS FAILED", fit.passed,
+                                 tuple(f"{name}: {check.message}" for name, check in fit.diagnostics.items()
+                                       if check.passed is False))
+    html = _environment().get_template("run.html.j2").render(
+        name=fit.track_name, method=fit.method, n_points=fit.n_points,
+        source=track.metadata.get("source", "") if track is not None else "",
+        verdict=verdict.label, verdict_class={True: "pass", False: "fail", None: "note"}[verdict.passed],
+        reasons=verdict.reasons, quantities=_quantities(fit), diagnostics=_diagnostics(fit),
+        posterior=_posterior_rows(posterior) if posterior is not None else None,
+        apsides=_apsides_rows(apsides) if apsides is not None else None, figures=figures,
+        version=__version__, written=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
+    )
+    return write_atomic(folder / f"{slug}.html", html)
+
+
+def write_class_report(
+    rows: Sequence[dict[str, Any]],
+    out_dir: str | os.PathLike[str],
+    *,
+    expect: float,
+    tolerance: float,
+    strength: float | None = None,
+    strength_tolerance: float | None = None,
+    strength_unit: str = "",
+    csv_name: str = "results.csv",
+    title: str = "class report",
+) -> Path:
+    """Write the class's index page: every run with its grade and reason, and the histogram.
+
+    ``rows`` are the grading rows (see `forcefit.apps.grading`); a row's ``report`` is the
+    run's page relative to ``out_dir``.
+    """
+    folder = Path(out_dir)
+    folder.mkdir(parents=True, exist_ok=True)
+    exponents = [row.get("exponent", math.nan) for row in rows]
+    histogram = figure_png(grade_histogram([float(v) for v in exponents if v is not None],
+                                           expect, tolerance))
+    write_atomic(folder / "exponents.png", histogram)
+    runs = []
+    for row in rows:
+        exponent = _number(row.get("exponent"))
+        error = _number(row.get("exponent_stderr"))
+        k = _number(row.get("strength_at_expected"))
+        k_error = _number(row.get("strength_at_expected_stderr"))
+        runs.append({
+            "name": row["run"], "report": row.get("report") or "",
+            "grade": "pass" if row["passed"] else "fail", "mark": "pass" if row["passed"] else "fail",
+            "exponent": format_measurement(exponent, error) if math.isfinite(exponent) else "—",
+            "strength": format_measurement(k, k_error, strength_unit) if math.isfinite(k) else "—",
+            "reason": row.get("reason", ""),
+        })
+    html = _environment().get_template("class.html.j2").render(
+        title=title, runs=runs, expect=f"{expect:g}", tolerance=f"{tolerance:g}",
+        strength=f"{strength:.6g}" if strength is not None else None,
+        strength_tolerance=f"{100 * strength_tolerance:g}%" if strength_tolerance else None,
+        strength_unit=strength_unit, passed=sum(1 for row in rows if row["passed"]),
+        failed=sum(1 for row in rows if not row["passed"]),
+        histogram=base64.b64encode(histogram).decode("ascii"), histogram_file="exponents.png",
+        csv=csv_name, version=__version__, written=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
+    )
+    return write_atomic(folder / "index.html", html)
+
+
+def _number(value: Any) -> float:
+    """A table cell as a float; nan for an empty or non-numeric cell."""
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return math.nan
