@@ -38,12 +38,12 @@ def rosette(seed: int) -> object:
 
 def converged_posterior() -> tuple[float, int]:
     fit = fit_orbit(rosette(1))
-    sample_posterior(fit, seed=0, progress=False, max_steps=300)                 # warm up
+    sample_posterior(fit, rng=0, progress=False, max_steps=300)                 # warm up
     print("(a) converged posterior, n = -1.5 rosette, 600 samples, noise 0.5%, 32 walkers")
     result = (0.0, 0)
     for moves in ("de", "stretch"):
         start = time.perf_counter()
-        posterior = sample_posterior(fit, seed=1, progress=False, moves=moves)
+        posterior = sample_posterior(fit, rng=1, progress=False, moves=moves)
         elapsed = time.perf_counter() - start
         tau = max(posterior.autocorr_time.values())
         print(f"    {moves:<8} {elapsed:6.1f} s  {posterior.n_steps:6d} steps  tau {tau:5.0f} steps  "
@@ -59,13 +59,12 @@ def converged_posterior() -> tuple[float, int]:
 def per_walker_solve_ivp(fast_time: float, steps: int, probe: int = 15) -> None:
     track = rosette(1)
     fit = fit_orbit(track)
-    model = fit.details["model"]
-    result = fit.details["lmfit"]
+    model = fit.model
     t, data = np.asarray(track.t), track.positions
-    sigma = np.asarray(fit.details["sigma"])[:, None]
+    sigma = np.asarray(fit.sigma)[:, None]
     epoch = model.epochs[0]
     index = int(np.argmin(np.abs(t - epoch)))
-    names = list(result.var_names)
+    names = list(fit.parameter_names)
     radius = model.reference_radius
 
     def rhs(_: float, y: np.ndarray, n: float, k: float) -> list[float]:
@@ -85,7 +84,7 @@ def per_walker_solve_ivp(fast_time: float, steps: int, probe: int = 15) -> None:
         model_xy = model_xy + np.array([p["centre_x"], p["centre_y"]])
         return -0.5 * float(np.sum(((data - model_xy) / sigma) ** 2))
 
-    best = np.array([result.params[name].value for name in names])
+    best = np.array([fit.values[name] for name in names])
     rng = np.random.default_rng(0)
     start_points = best + 1e-6 * np.abs(best + 1e-3) * rng.standard_normal((32, best.size))
     sampler = emcee.EnsembleSampler(32, best.size, log_probability,
@@ -107,7 +106,7 @@ def _covers(seed: int) -> tuple[bool, bool, bool, bool]:
     """Whether the 68% and 95% intervals of n from one noisy replicate contain the truth: the
     posterior's credible intervals, then the least-squares ones (n ± z·stderr) of the same fit."""
     fit = fit_orbit(rosette(1000 + seed))
-    posterior = sample_posterior(fit, seed=seed, progress=False)
+    posterior = sample_posterior(fit, rng=seed, progress=False)
     low68, high68 = posterior.interval("exponent", 0.68)
     low95, high95 = posterior.interval("exponent", 0.95)
     z = abs(fit.exponent + 1.5) / fit.exponent_stderr

@@ -48,7 +48,7 @@ def test_every_estimator_fills_every_field(method):
     assert fit.covariance.shape == (len(fit.parameter_names),) * 2
     assert np.all(np.isfinite(fit.centre)) and fit.n_points > 500
     assert fit.strength_unit == "m^2.5 s^-2"
-    assert "exponent n" in fit.summary() and fit.to_dict()["method"] == method
+    assert "exponent n" in fit.to_text() and fit.to_dict()["method"] == method
     assert all(isinstance(check.message, str) for check in fit.diagnostics.values())
 
 

@@ -84,7 +84,7 @@ def test_orbit_fit_with_linear_drag():
                            duration=20.0, rate=40.0, rng=3)
     fit = fit_orbit(track, drag="linear")
     assert abs(fit.exponent - 1.0) < 3 * fit.exponent_stderr
-    assert abs(fit.details["drag"] - 0.05) < 3 * fit.details["drag_stderr"]
+    assert abs(fit.drag - 0.05) < 3 * fit.drag_stderr
     plain = fit_orbit(track)
     assert not plain.passed                      # without drag the model misses the decay
 
@@ -109,7 +109,7 @@ def test_three_launches_fitted_jointly():
     single = fit_orbit(tracks[0])
     assert abs(joint.exponent + 1.0) < 3 * joint.exponent_stderr
     assert joint.exponent_stderr < single.exponent_stderr
-    assert joint.details["n_tracks"] == 3 and len(joint.parameter_names) == 2 + 2 + 3 * 4
+    assert joint.n_tracks == 3 and len(joint.parameter_names) == 2 + 2 + 3 * 4
 
 
 def test_mars_from_plan94_is_inverse_square_with_the_gaussian_constant():
@@ -130,7 +130,7 @@ def test_keplers_third_law_on_the_fitted_orbit():
     track = simulate_orbit(exponent=-2.0, strength=2.5, start=(1.0, 0.0), velocity=(0.0, 1.9),
                            duration=30.0, rate=20.0, noise=0.001, rng=4)
     fit = fit_orbit(track)
-    states = fit.details["states"]
+    states = fit.states
     r = np.hypot(states["x0"], states["y0"])
     v2 = states["vx0"] ** 2 + states["vy0"] ** 2
     a = 1.0 / (2.0 / r - v2 / fit.strength)
@@ -165,7 +165,7 @@ def test_frame_rotation_is_fitted():
     rotated = Track(t=track.t, x=np.cos(angle) * track.x - np.sin(angle) * track.y,
                     y=np.sin(angle) * track.x + np.cos(angle) * track.y, sigma=track.sigma)
     fit = fit_orbit(rotated, rotation_rate="fit", exponent=1.0)
-    assert abs(fit.details["rotation_rate"] - omega) < 3 * fit.details["rotation_rate_stderr"]
+    assert abs(fit.rotation_rate - omega) < 3 * fit.rotation_rate_stderr
     assert fit.passed
 
 

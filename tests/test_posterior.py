@@ -26,7 +26,7 @@ def test_linear_gaussian_toy_matches_the_closed_form():
         residual = y[None, :] - theta @ design.T
         return -0.5 * np.sum(residual**2, axis=1) / sigma**2
 
-    sampler, converged, reason = run_ensemble(log_probability, mean, covariance, seed=1,
+    sampler, converged, reason = run_ensemble(log_probability, mean, covariance, rng=1,
                                               max_steps=20_000)
     assert converged, reason
     tau = sampler.get_autocorr_time(tol=0)
@@ -44,14 +44,14 @@ def rosette_fit():
 
 
 def test_posterior_of_an_orbit_agrees_with_least_squares(rosette_fit):
-    posterior = sample_posterior(rosette_fit, seed=2, progress=False)
+    posterior = sample_posterior(rosette_fit, rng=2, progress=False)
     assert posterior.converged, posterior.reason
     spread = float(np.std(posterior.samples["exponent"]))
     assert spread == pytest.approx(rosette_fit.exponent_stderr, rel=0.2)
     assert abs(float(np.median(posterior.samples["exponent"])) + 1.5) < 3 * spread
     low, high = posterior.interval("strength", 0.95)
     assert low < 1.0 < high
-    assert "exponent" in posterior.summary() and "m^2.5 s^-2" in posterior.summary()
+    assert "exponent" in posterior.to_text() and "m^2.5 s^-2" in posterior.to_text()
     rhat = posterior.split_rhat()
     assert max(rhat.values()) < 1.05
     assert min(posterior.effective_sample_size().values()) > 400
@@ -61,25 +61,25 @@ def test_unknown_noise_is_sampled_as_a_scale():
     track = simulate_orbit(exponent=1.0, noise=0.004, rng=3)
     bare = type(track)(t=track.t, x=track.x, y=track.y, name="no sigma")
     fit = fit_orbit(bare)
-    posterior = sample_posterior(fit, seed=3, progress=False, max_steps=6000)
+    posterior = sample_posterior(fit, rng=3, progress=False, max_steps=6000)
     assert "noise_scale" in posterior.samples
-    noise = float(np.median(posterior.samples["noise_scale"])) * float(np.median(fit.details["sigma"]))
+    noise = float(np.median(posterior.samples["noise_scale"])) * float(np.median(fit.sigma))
     assert noise == pytest.approx(0.004, rel=0.1)
 
 
 def test_a_short_run_says_it_has_not_converged(rosette_fit):
-    posterior = sample_posterior(rosette_fit, seed=4, progress=False, max_steps=300)
+    posterior = sample_posterior(rosette_fit, rng=4, progress=False, max_steps=300)
     assert not posterior.converged
     assert "autocorrelation times long" in posterior.reason and "Run longer" in posterior.reason
-    assert "NOT CONVERGED" in posterior.summary()
+    assert "NOT CONVERGED" in posterior.to_text()
 
 
 def test_save_interrupt_resume_gives_the_same_chain(rosette_fit, tmp_path):
-    one = sample_posterior(rosette_fit, seed=5, progress=False, max_steps=500, min_steps=500,
+    one = sample_posterior(rosette_fit, rng=5, progress=False, max_steps=500, min_steps=500,
                            save=tmp_path / "one.h5")
-    sample_posterior(rosette_fit, seed=5, progress=False, max_steps=250, min_steps=250,
+    sample_posterior(rosette_fit, rng=5, progress=False, max_steps=250, min_steps=250,
                      save=tmp_path / "two.h5")                                   # interrupted here
-    two = sample_posterior(rosette_fit, seed=5, progress=False, max_steps=500, min_steps=500,
+    two = sample_posterior(rosette_fit, rng=5, progress=False, max_steps=500, min_steps=500,
                            save=tmp_path / "two.h5", resume=True)
     assert two.n_steps == one.n_steps == 500
     np.testing.assert_array_equal(one.sampler.get_chain(), two.sampler.get_chain())
@@ -90,7 +90,7 @@ def test_priors_are_checked_and_applied(rosette_fit):
         sample_posterior(rosette_fit, priors={"mass": ("uniform", 0, 1)}, progress=False)
     with pytest.raises(InputError, match="uniform"):
         sample_posterior(rosette_fit, priors={"exponent": ("flat", 0, 1)}, progress=False)
-    tight = sample_posterior(rosette_fit, priors={"exponent": ("normal", -1.5, 1e-5)}, seed=6,
+    tight = sample_posterior(rosette_fit, priors={"exponent": ("normal", -1.5, 1e-5)}, rng=6,
                              progress=False, max_steps=1500)
     assert float(np.std(tight.samples["exponent"])) < 2e-5
 

@@ -31,7 +31,7 @@ def test_a_failed_fit_is_marked_in_every_output(tmp_path, capsys):
     track, path = _screened(tmp_path)
     fit = fit_orbit(track)
     assert not fit.passed
-    assert "[FAIL]" in fit.summary()
+    assert "[FAIL]" in fit.to_text()
     assert fit.to_dict()["passed"] is False
     page = write_report(fit, tmp_path / "report", track=track)
     assert "CHECKS FAILED" in page.read_text()
@@ -105,4 +105,4 @@ def test_no_eval_pickle_or_unsafe_yaml_on_user_data():
     for pattern in (r"\beval\(", r"\bexec\(", r"\bpickle\b", r"yaml\.load\(", r"\bmarshal\b",
                     r"allow_pickle=True"):
         assert not re.search(pattern, source), pattern
-    assert os.path.exists(ROOT / "forcefit" / "templates" / "run.html.j2")
+    assert os.path.exists(ROOT / "forcefit" / "outputs" / "templates" / "run.html.j2")

@@ -15,7 +15,7 @@ from typing import Any
 
 from .._json import json_safe
 from ..dynamics.duality import dual_exponent, dual_strength, dual_track, specific_energy_at
-from ..estimators.result import LawFit
+from ..estimators.result import LawFit, OrbitFit
 from ..track import Track
 
 
@@ -76,12 +76,19 @@ def check_duality(track: Track, fit: LawFit, refit: Callable[..., LawFit]) -> Du
     dual = dual_track(track, fit.exponent, fit.centre)
     fitted = refit(dual, centre=(0.0, 0.0))
     slope = 4.0 / (fit.exponent + 3.0) ** 2            # |dA/da|
-    strength = math.nan
-    states = fit.details.get("states")
-    if states and "x0" in states and math.isfinite(fit.strength):
-        energy = specific_energy_at((states["x0"], states["y0"]), (states["vx0"], states["vy0"]),
-                                    fit.exponent, fit.strength)
-        strength = dual_strength(fit.exponent, energy)
     return DualityCheck(predicted_exponent=dual_exponent(fit.exponent),
                         predicted_exponent_stderr=slope * fit.exponent_stderr, fitted=fitted,
-                        predicted_strength=strength)
+                        predicted_strength=predicted_dual_strength(fit))
+
+
+def predicted_dual_strength(fit: LawFit) -> float:
+    """The strength -E (A + 1) the dual law must have, from an orbit fit's energy E.
+
+    nan unless ``fit`` is a single-track `OrbitFit` (only that knows a state, and so E).
+    """
+    if not isinstance(fit, OrbitFit) or "x0" not in fit.states or not math.isfinite(fit.strength):
+        return math.nan
+    states = fit.states
+    energy = specific_energy_at((states["x0"], states["y0"]), (states["vx0"], states["vy0"]),
+                                fit.exponent, fit.strength)
+    return dual_strength(fit.exponent, energy)

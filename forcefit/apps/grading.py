@@ -90,6 +90,7 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
         One row of the results table.
     """
     from ..estimators import fit_orbit, fit_shape
+    from ..estimators.result import OrbitFit
     from ..outputs.report import Verdict, write_report
     from ..reading.loaders import load_tracks
 
@@ -116,7 +117,7 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
     failed = [check for check, result in fit.diagnostics.items() if result.passed is False]
     if failed:
         reasons.append(f"poor fit: {', '.join(failed)} check failed")
-    turns = float(fit.details.get("turns", math.nan))
+    turns = fit.turns if isinstance(fit, OrbitFit) else math.nan
     if math.isfinite(turns) and turns < rule.min_turns:
         reasons.append(f"too short: covers {turns:.2f} turns, at least {rule.min_turns:g} needed")
     if abs(fit.exponent - rule.expect) > rule.tolerance:

@@ -65,7 +65,7 @@ def _grade_class(dataset: DemoDataset, out: str) -> None:
     first = dataset.paths[0]
     track = dataset.load(first)[0]
     print(f"\n== posterior of {track.name} (emcee, run until converged)")
-    print(sample_posterior(fit_orbit(track), seed=1, progress=True).summary())
+    print(sample_posterior(fit_orbit(track), rng=1, progress=True).to_text())
 
 
 def _demo_track(track: Track, options: dict[str, Any]) -> None:
@@ -74,11 +74,11 @@ def _demo_track(track: Track, options: dict[str, Any]) -> None:
     print(inspect_track(track).to_text())
     fit = fit_orbit(track, centre=centre, drag=options.get("drag"),
                     rotation_rate=options.get("rotation_rate"))
-    print(fit.summary())
-    for name in ("drag", "rotation_rate"):
-        if name in fit.details:
-            print(f"  fitted {name.replace('_', ' ')}: {fit.details[name]:.4g} ± "
-                  f"{fit.details[name + '_stderr']:.2g} per {track.time_unit}")
+    print(fit.to_text())
+    for name, value, error in (("drag", fit.drag, fit.drag_stderr),
+                               ("rotation_rate", fit.rotation_rate, fit.rotation_rate_stderr)):
+        if math.isfinite(value):
+            print(f"  fitted {name.replace('_', ' ')}: {value:.4g} ± {error:.2g} per {track.time_unit}")
     path = describe_path(track, centre=centre)
     print("  time-free estimators, for comparison:")
     for method, estimator in (("shape", fit_shape), ("curvature", fit_curvature)):

@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import argparse
+import math
 from pathlib import Path
 from typing import Any
 
-from ..dynamics.duality import dual_exponent, dual_strength, dual_track, specific_energy_at
-from ..estimators import fit_orbit, fit_shape
+from ..analysis.duality_check import predicted_dual_strength
+from ..dynamics.duality import dual_exponent, dual_track
+from ..estimators import LawFit, fit_orbit, fit_shape
 from ..reading.loaders import save_track
 from ._common import EXIT_OK, FORMATTER, pair, read_tracks
 
@@ -21,23 +23,21 @@ examples:
 def _cmd_dual(args: argparse.Namespace) -> int:
     tracks = read_tracks(args.file, args)
     for track in tracks:
-        exponent, centre, energy = args.exponent, args.centre, None
+        exponent, centre, strength = args.exponent, args.centre, math.nan
         if exponent is None or centre is None:
+            fit: LawFit
             if track.has_times:
                 fit = fit_orbit(track, centre=centre, exponent=exponent)
             else:
                 fit = fit_shape(track, centre=centre)
             exponent = fit.exponent if exponent is None else exponent
             centre = fit.centre if centre is None else centre
-            states = fit.details.get("states")
-            if states:
-                energy = specific_energy_at((states["x0"], states["y0"]),
-                                            (states["vx0"], states["vy0"]), exponent, fit.strength)
+            strength = predicted_dual_strength(fit)
         dual = dual_track(track, exponent, centre)
         print(f"{track.name}: n = {exponent:.6g} about ({centre[0]:.6g}, {centre[1]:.6g}) "
               f"{track.length_unit}; mapped by w = z^{(exponent + 3) / 2:.6g}")
         print(f"  predicted dual law: n' = {dual_exponent(exponent):.6g}"
-              + (f", k' = {dual_strength(exponent, energy):.6g}" if energy is not None else ""))
+              + (f", k' = {strength:.6g}" if math.isfinite(strength) else ""))
         if args.out:
             out = Path(args.out)
             if len(tracks) > 1:

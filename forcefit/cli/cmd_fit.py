@@ -19,7 +19,7 @@ from ..estimators import (
     fit_shape,
     force_profile,
 )
-from ..estimators.result import LawFit
+from ..estimators.result import LawFit, OrbitFit
 from ..geometry.path import describe_path
 from ..inference.comparison import compare_laws
 from ..outputs.report import write_report
@@ -81,9 +81,9 @@ def _cmd_fit(args: argparse.Namespace) -> int:
             raise InputError("--joint fits several runs of one file (an id column) with the orbit "
                              f"method together; {args.file} holds {len(tracks)} track(s).")
         options = orbit_options(args, tracks[0])
-        fit = fit_orbit(tracks, shared_centre=not args.separate_centres, **options)
-        print(json.dumps([fit.to_dict()], indent=2) if args.json else fit.summary())
-        return EXIT_OK if fit.passed else EXIT_FAILED_CHECKS
+        joint = fit_orbit(tracks, shared_centre=not args.separate_centres, **options)
+        print(json.dumps([joint.to_dict()], indent=2) if args.json else joint.to_text())
+        return EXIT_OK if joint.passed else EXIT_FAILED_CHECKS
     for track in tracks:
         fit = fit_track(track, args)
         profile = force_profile(track, bins=args.profile, centre=fit.centre) if args.profile else None
@@ -110,15 +110,16 @@ def _cmd_fit(args: argparse.Namespace) -> int:
                 report["comparison"] = json_safe(comparison.reset_index().to_dict("records"))
             reports.append(report)
             continue
-        print(fit.summary())
+        print(fit.to_text())
         if duality is not None:
             print("  " + duality.to_text())
-        for name in ("drag", "rotation_rate"):
-            if name in fit.details:
-                per = fit.time_unit if name != "drag" or args.drag == "linear" else fit.length_unit
-                unit = f"rad/{per}" if name == "rotation_rate" else f"1/{per}"
-                print(f"  {name.replace('_', ' ')}: {fit.details[name]:.6g} ± "
-                      f"{fit.details[name + '_stderr']:.2g} {unit}")
+        if isinstance(fit, OrbitFit):
+            for name, value, error in (("drag", fit.drag, fit.drag_stderr),
+                                       ("rotation_rate", fit.rotation_rate, fit.rotation_rate_stderr)):
+                if math.isfinite(value):
+                    per = fit.time_unit if name != "drag" or args.drag == "linear" else fit.length_unit
+                    unit = f"rad/{per}" if name == "rotation_rate" else f"1/{per}"
+                    print(f"  {name.replace('_', ' ')}: {value:.6g} ± {error:.2g} {unit}")
         if profile is not None:
             print(f"\nforce profile ({'F/h^2, no timestamps' if profile.force_is_per_h2 else 'F'}):")
             print(profile.to_text())

@@ -48,7 +48,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
             chain = Path(chain).with_name(f"{Path(chain).stem}_{track.name}{Path(chain).suffix}")
         posterior = sample_posterior(
             fit, walkers=args.walkers, max_steps=args.max_steps, priors=dict(args.prior),
-            noise=args.noise, progress=not args.json, seed=args.seed, save=chain,
+            noise=args.noise, progress=not args.json, rng=args.seed, save=chain,
             resume=bool(args.resume))
         if not posterior.converged:
             status = EXIT_FAILED_CHECKS
@@ -63,7 +63,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
                             "report": str(page) if page else None})
             continue
         print(f"{track.name} — orbit fit: n = {fit.exponent:.6g} ± {fit.exponent_stderr:.2g}")
-        print(posterior.summary())
+        print(posterior.to_text())
         if page is not None:
             print(f"report: {page}")
         if args.figures:

@@ -69,7 +69,7 @@ class OrbitModel:
         """k = F(r_ref) r_ref**-n for parameter vectors of shape (..., n_params)."""
         return np.exp(vector[..., 1] - vector[..., 0] * math.log(self.reference_radius))
 
-    def _track_columns(self, j: int) -> tuple[int, int, int]:
+    def track_columns(self, j: int) -> tuple[int, int, int]:
         """Indices of track j's centre x and state x0 in the vector."""
         multi = len(self.tracks) > 1
         suffix = f"_{j}" if multi else ""
@@ -91,7 +91,7 @@ class OrbitModel:
         ok = np.ones(len(vectors), dtype=bool)
         predictions = []
         for j, (track, epoch) in enumerate(zip(self.tracks, self.epochs)):
-            cx, cy, state = self._track_columns(j)
+            cx, cy, state = self.track_columns(j)
             batch = propagate_batch(
                 np.asarray(track.t), vectors[:, state:state + 2], vectors[:, state + 2:state + 4],
                 exponent=exponent, strength=strength, epoch=epoch,

@@ -1,16 +1,30 @@
-"""Estimators of the force law; each returns a `LawFit`. Beside them, `force_profile`."""
+"""Estimators of the force law; each returns a typed `LawFit`. `fit` picks one by name (or
+by the track: orbit with timestamps, shape without); beside them, `force_profile`."""
 
 from .acceleration import fit_acceleration
 from .curvature import fit_curvature
 from .orbit import fit_orbit
 from .profile import ForceProfile, force_profile
-from .result import Diagnostic, LawFit
+from .result import (
+    AccelerationFit,
+    CurvatureFit,
+    CurvaturePoints,
+    Diagnostic,
+    LawFit,
+    OrbitFit,
+    ShapeFit,
+)
 from .shape import fit_shape
 
 __all__ = [
+    "AccelerationFit",
+    "CurvatureFit",
+    "CurvaturePoints",
     "Diagnostic",
     "ForceProfile",
     "LawFit",
+    "OrbitFit",
+    "ShapeFit",
     "fit_acceleration",
     "fit_curvature",
     "fit_orbit",

@@ -17,7 +17,7 @@ from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
 from ..errors import NotIdentifiable
 from ..geometry.curves import interior
-from ..geometry.path import PathGeometry, describe_path
+from ..geometry.path import PathGeometry, describe_path, force_relation
 from ..geometry.smoothing import Smoothing
 from ..track import Track
 from ._checks import (
@@ -28,7 +28,7 @@ from ._checks import (
     leverage_diagnostic,
     require_orbit,
 )
-from .result import Diagnostic, LawFit
+from .result import AccelerationFit, CurvaturePoints, Diagnostic
 
 
 def _radial(path: PathGeometry, centre: tuple[float, float]) -> tuple[FloatArray, FloatArray, FloatArray]:
@@ -62,7 +62,7 @@ def fit_acceleration(
     centre: tuple[float, float] | None = None,
     smoothing: Smoothing = "auto",
     path: PathGeometry | None = None,
-) -> LawFit:
+) -> AccelerationFit:
     """Fit a_r = -k r**n to the radial acceleration of a timestamped track.
 
     Parameters
@@ -78,7 +78,7 @@ def fit_acceleration(
 
     Returns
     -------
-    LawFit
+    AccelerationFit
 
     Raises
     ------
@@ -135,7 +135,9 @@ def fit_acceleration(
         "smoothing": Diagnostic(None, f"{path.smoothing.method}: each point averages about "
                                       f"{path.smoothing.span:.3g} {track.time_unit}."),
     }
-    return LawFit(
+    with np.errstate(divide="ignore", invalid="ignore"):
+        relation = force_relation(path, path.centre)
+    return AccelerationFit(
         exponent=float(exponent), exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
         strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
         centre=path.centre, centre_stderr=path.centre_stderr, method="acceleration",
@@ -145,9 +147,8 @@ def fit_acceleration(
         parameter_names=("exponent", "log_force_at_scale"), covariance=covariance,
         residuals=result.fun, length_unit=track.length_unit, time_unit=track.time_unit,
         diagnostics=diagnostics,
-        details={"angular_momentum": h,
-                 "angular_momentum_stderr": h_se, "correlation_time": tau},
-        track_name=track.name,
+        relation=CurvaturePoints(log_radius=relation[0], log_force=relation[1], per_h2=False),
+        angular_momentum=h, angular_momentum_stderr=h_se, correlation_time=tau, track_name=track.name,
     )
 
 

@@ -20,8 +20,8 @@ import numpy as np
 from .._regression import fit_line
 from .._types import FloatArray
 from ..errors import NotIdentifiable
-from ..geometry.curves import attractive_points, curvature_relation
-from ..geometry.path import PathGeometry, describe_path
+from ..geometry.curves import attractive_points
+from ..geometry.path import PathGeometry, describe_path, force_relation
 from ..geometry.smoothing import Smoothing
 from ..track import Track
 from ._checks import (
@@ -32,36 +32,10 @@ from ._checks import (
     leverage_diagnostic,
     require_orbit,
 )
-from .result import Diagnostic, LawFit
+from .result import CurvatureFit, CurvaturePoints, Diagnostic
 
 MIN_USED = 10
 """Fewest significantly bending points the regression needs."""
-
-
-def _relation(
-    path: PathGeometry, centre: tuple[float, float], used: np.ndarray
-) -> tuple[FloatArray, FloatArray, FloatArray]:
-    """log r, log F (or log F/h**2 without timestamps) and its standard error at the used points.
-
-    With timestamps each point's own h = (r x v) enters: F = h**2 kappa / (r**2 cos**3 gamma)
-    holds for the central part of the force even when a drag along the motion makes h
-    change, because such a force has no component across the path.
-    """
-    points = curvature_relation(path.smoothing, path.curvature, path.curvature_stderr,
-                                np.asarray(centre), used)
-    y, variance = points.log_force_per_h2, points.sigma**2
-    if path.track.has_times:
-        curve = path.smoothing
-        offset = curve.value[used] - np.asarray(centre)
-        velocity = curve.first[used]
-        h = np.abs(offset[:, 0] * velocity[:, 1] - offset[:, 1] * velocity[:, 0])
-        h_var = (offset[:, 0] ** 2 * curve.first_var[used, 1]
-                 + offset[:, 1] ** 2 * curve.first_var[used, 0]
-                 + velocity[:, 1] ** 2 * curve.value_var[used, 0]
-                 + velocity[:, 0] ** 2 * curve.value_var[used, 1])
-        y = y + 2.0 * np.log(h)
-        variance = variance + 4.0 * h_var / h**2
-    return points.log_radius, y, np.sqrt(variance)
 
 
 def fit_curvature(
@@ -70,7 +44,7 @@ def fit_curvature(
     centre: tuple[float, float] | None = None,
     smoothing: Smoothing = "auto",
     path: PathGeometry | None = None,
-) -> LawFit:
+) -> CurvatureFit:
     """Fit F = -k r**n through the force-curvature relation (time-free).
 
     Parameters
@@ -86,7 +60,7 @@ def fit_curvature(
 
     Returns
     -------
-    LawFit
+    CurvatureFit
         n and k / h**2 from the shape; k too when the track is timestamped.
 
     Raises
@@ -115,7 +89,7 @@ def fit_curvature(
     return replace(fit, alternatives=others, diagnostics=checks)
 
 
-def _ambiguity(fit: LawFit, others: tuple[LawFit, ...]) -> Diagnostic:
+def _ambiguity(fit: CurvatureFit, others: tuple[CurvatureFit, ...]) -> Diagnostic:
     listed = "; ".join(f"n = {other.exponent:.3f} about ({other.centre[0]:.4g}, {other.centre[1]:.4g})"
                        for other in others)
     return Diagnostic(False, f"the path's shape fits as well about other centres ({listed}). A closed "
@@ -123,7 +97,7 @@ def _ambiguity(fit: LawFit, others: tuple[LawFit, ...]) -> Diagnostic:
                              "give the centre or timestamps to decide.")
 
 
-def _fit_about(track: Track, path: PathGeometry) -> LawFit:
+def _fit_about(track: Track, path: PathGeometry) -> CurvatureFit:
     """The curvature fit about the path's centre."""
     require_orbit(path)
     used = attractive_points(path.smoothing, path.curvature, path.curvature_stderr)
@@ -132,12 +106,12 @@ def _fit_about(track: Track, path: PathGeometry) -> LawFit:
             f"{track.label}: only {int(used.sum())} points bend significantly towards the "
             "centre; the curvature is too noisy for the curvature estimator. Try the shape estimator."
         )
-    log_radius, log_force, sigma = _relation(path, path.centre, used)
+    log_radius, log_force, sigma = force_relation(path, path.centre, used)
     log_reference = float(np.mean(log_radius))
     line = fit_line(log_radius - log_reference, log_force, sigma)
 
     def parameters(about: tuple[float, float]) -> FloatArray:
-        x, y, e = _relation(path, about, used)
+        x, y, e = force_relation(path, about, used)
         fitted = fit_line(x - log_reference, y, e)
         return np.array([fitted.slope, fitted.intercept])
 
@@ -165,7 +139,7 @@ def _fit_about(track: Track, path: PathGeometry) -> LawFit:
         "smoothing": Diagnostic(None, f"{path.smoothing.method}: each point averages about "
                                       f"{path.smoothing.span:.3g} {_parameter_unit(track)} of the path."),
     }
-    return LawFit(
+    return CurvatureFit(
         exponent=exponent, exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
         strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
         centre=path.centre, centre_stderr=path.centre_stderr, method="curvature",
@@ -176,10 +150,9 @@ def _fit_about(track: Track, path: PathGeometry) -> LawFit:
                          else "log_force_per_h2_at_reference"), covariance=covariance,
         residuals=line.residuals, length_unit=track.length_unit,
         time_unit=track.time_unit if track.has_times else None, diagnostics=diagnostics,
-        details={"angular_momentum": h, "angular_momentum_stderr": h_se,
-                 "correlation_time": line.correlation_time,
-                 "smoothing_level": path.smoothing.level, "smoothing_dof": path.smoothing.dof},
-        track_name=track.name,
+        relation=CurvaturePoints(log_radius=log_radius, log_force=log_force, per_h2=not track.has_times),
+        angular_momentum=h, angular_momentum_stderr=h_se, correlation_time=line.correlation_time,
+        smoothing_level=path.smoothing.level, smoothing_dof=path.smoothing.dof, track_name=track.name,
     )
 
 

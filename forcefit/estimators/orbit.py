@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from dataclasses import dataclass, replace
 from typing import Literal
 
 import lmfit
@@ -20,11 +21,11 @@ import numpy as np
 from .._types import FloatArray
 from ..dynamics.orbit_model import OrbitModel, observed
 from ..errors import FitError, InputError, NotIdentifiable
-from ..geometry.path import PathGeometry, describe_path
+from ..geometry.path import PathGeometry, describe_path, force_relation
 from ..track import Track
 from ._checks import require_monotonic, require_orbit, runs_diagnostic
 from .curvature import fit_curvature
-from .result import Diagnostic, LawFit
+from .result import CurvaturePoints, Diagnostic, OrbitFit
 
 Loss = Literal["linear", "soft_l1", "huber"]
 OUTLIER_Z = 5.0
@@ -114,9 +115,46 @@ def _step_scales(model: OrbitModel, paths: Sequence[PathGeometry]) -> tuple[floa
     return size, speed, duration
 
 
-def _last_params(result: lmfit.minimizer.MinimizerResult) -> dict[str, float]:
-    """Where the optimiser stopped, for a FitError."""
-    return {name: float(result.params[name].value) for name in result.params}
+@dataclass(frozen=True)
+class _Solution:
+    """Where the optimiser ended, copied out of lmfit's result so that no result holds (or
+    changes) a library object: every parameter's value and standard error (0 when held, nan
+    when not estimable), the varying ones in covariance order, and the optimiser's record."""
+
+    values: dict[str, float]
+    stderrs: dict[str, float]
+    varying: tuple[str, ...]
+    covariance: FloatArray | None
+    chi2: float
+    residual: FloatArray
+    evaluations: int
+    success: bool
+    message: str
+
+    @classmethod
+    def of(cls, result: lmfit.minimizer.MinimizerResult) -> _Solution:
+        stderrs = {}
+        for name, parameter in result.params.items():
+            if not parameter.vary:
+                stderrs[name] = 0.0
+            else:
+                stderrs[name] = float(parameter.stderr) if parameter.stderr is not None else math.nan
+        covariance = None if result.covar is None else np.array(result.covar, dtype=float)
+        return cls(values={name: float(result.params[name].value) for name in result.params},
+                   stderrs=stderrs, varying=tuple(result.var_names), covariance=covariance,
+                   chi2=float(result.chisqr), residual=np.array(result.residual, dtype=float),
+                   evaluations=int(result.nfev), success=bool(result.success), message=str(result.message))
+
+    def value(self, name: str) -> tuple[float, float]:
+        """A fitted value and its standard error (0 when held fixed, nan when not estimable)."""
+        return self.values[name], self.stderrs[name]
+
+    def covariance_of(self, first: str, second: str) -> float:
+        """The covariance of two varying parameters; 0 when either is held or none is known."""
+        names = list(self.varying)
+        if self.covariance is None or first not in names or second not in names:
+            return 0.0
+        return float(self.covariance[names.index(first), names.index(second)])
 
 
 def _steps(model: OrbitModel, vector: FloatArray, size: float, speed: float, duration: float) -> FloatArray:
@@ -145,7 +183,7 @@ def fit_orbit(
     shared_centre: bool = True,
     rotation_rate: float | Literal["fit"] | None = None,
     max_evaluations: int = 200,
-) -> LawFit:
+) -> OrbitFit:
     """Fit the integrated orbit of F = -k r**n r_hat to every sample of timestamped tracks.
 
     Parameters
@@ -173,9 +211,9 @@ def fit_orbit(
 
     Returns
     -------
-    LawFit
-        With the lmfit result in ``details["lmfit"]``, the fitted noise level, drag and
-        rotation rate (with errors) in ``details``.
+    OrbitFit
+        With the model, every parameter's value and error, the noise assumed, and the
+        fitted drag and rotation rate (nan when not fitted).
 
     Raises
     ------
@@ -206,70 +244,60 @@ def fit_orbit(
     params = _parameters(model, paths, indices, _starting_law(paths, exponent, radius),
                          exponent, centre, rate)
     result, sigma, sigma_known = optimise(model, params, paths, loss, max_evaluations)
-    if result.covar is None:
-        _covariance_at_end(result, model, paths, sigma, sigma_known)
-    if result.covar is None or not np.all(np.isfinite(result.covar)):
+    solution = _Solution.of(result)
+    if solution.covariance is None:
+        solution = _covariance_at_end(solution, model, paths, sigma, sigma_known)
+    if solution.covariance is None or not np.all(np.isfinite(solution.covariance)):
         raise FitError(
             f"{tracks[0].label}: the orbit fit found no well-determined solution (its covariance "
-            f"is singular after {result.nfev} evaluations: {result.message}). The path is probably "
-            "not an orbit in a central power law; check the centre, the units and the data.",
-            last_params=_last_params(result))
-    return _law_fit(model, result, tracks, paths, sigma, sigma_known, loss)
+            f"is singular after {solution.evaluations} evaluations: {solution.message}). The path is "
+            "probably not an orbit in a central power law; check the centre, the units and the data.",
+            last_params=solution.values)
+    return _law_fit(model, solution, solution.covariance, tracks, paths, sigma, sigma_known, loss)
 
 
-def _covariance_at_end(result: lmfit.minimizer.MinimizerResult, model: OrbitModel,
-                       paths: Sequence[PathGeometry], sigma: FloatArray, sigma_known: bool) -> None:
-    """Fill in the covariance lmfit leaves out when the optimiser stopped early (the fit is
-    then marked as not converged), from the Jacobian at the last point; leave it None when
+def _covariance_at_end(solution: _Solution, model: OrbitModel, paths: Sequence[PathGeometry],
+                       sigma: FloatArray, sigma_known: bool) -> _Solution:
+    """The solution with the covariance lmfit leaves out when the optimiser stopped early (the
+    fit is then marked as not converged), from the Jacobian at the last point; unchanged when
     even that is singular."""
-    vector = np.array([result.params[name].value for name in model.names])
-    varying = [model.index(name) for name in result.var_names]
+    vector = np.array([solution.values[name] for name in model.names])
+    varying = [model.index(name) for name in solution.varying]
     data = observed(model.tracks)
     steps = _steps(model, vector, *_step_scales(model, paths))
     jacobian = model.jacobian(vector, steps, varying) / np.repeat(sigma.ravel(), 2)[:, None]
     if not np.all(np.isfinite(jacobian)):
-        return
+        return solution
     try:
         covariance = np.linalg.inv(jacobian.T @ jacobian)
     except np.linalg.LinAlgError:
-        return
+        return solution
     if not sigma_known:
-        covariance *= float(result.chisqr) / max(data.size - len(varying), 1)
-    if np.all(np.isfinite(covariance)) and np.all(np.diag(covariance) > 0):
-        result.covar = covariance
-        for k, name in enumerate(result.var_names):
-            result.params[name].stderr = float(np.sqrt(covariance[k, k]))
+        covariance *= solution.chi2 / max(data.size - len(varying), 1)
+    if not (np.all(np.isfinite(covariance)) and np.all(np.diag(covariance) > 0)):
+        return solution
+    stderrs = {**solution.stderrs, **{name: float(np.sqrt(covariance[k, k]))
+                                      for k, name in enumerate(solution.varying)}}
+    return replace(solution, covariance=covariance, stderrs=stderrs)
 
 
-def _value(result: lmfit.minimizer.MinimizerResult, name: str) -> tuple[float, float]:
-    """A fitted value and its standard error (0 when held fixed, nan when not estimable)."""
-    parameter = result.params[name]
-    if not parameter.vary:
-        return float(parameter.value), 0.0
-    stderr = parameter.stderr
-    return float(parameter.value), float(stderr) if stderr is not None else math.nan
-
-
-def _covariance(result: lmfit.minimizer.MinimizerResult, first: str, second: str) -> float:
-    names = list(result.var_names)
-    if result.covar is None or first not in names or second not in names:
-        return 0.0
-    return float(result.covar[names.index(first), names.index(second)])
-
-
-def _radial_residuals(model: OrbitModel, vector: FloatArray, data: FloatArray) -> FloatArray:
-    """Residuals along the radius of the fitted orbit, track after track, in time order."""
-    predictions, _ = model.predict(vector[None, :])
+def _radial_residuals(
+    model: OrbitModel, vector: FloatArray, data: FloatArray
+) -> tuple[FloatArray, FloatArray]:
+    """Residuals along the radius of the fitted orbit, track after track, in time order, and
+    the fitted positions themselves (nan where the orbit could not be integrated)."""
+    predictions, ok = model.predict(vector[None, :])
     pieces = []
     start = 0
     for j, prediction in enumerate(predictions):
-        cx, cy, _ = model._track_columns(j)
+        cx, cy, _ = model.track_columns(j)
         offset = prediction[0] - np.array([vector[cx], vector[cy]])
         unit = offset / np.hypot(offset[:, 0], offset[:, 1])[:, None]
         observed_part = data[start:start + prediction.shape[1]]
         pieces.append(np.sum((observed_part - prediction[0]) * unit, axis=1))
         start += prediction.shape[1]
-    return np.concatenate(pieces)
+    positions = np.concatenate([prediction[0] for prediction in predictions])
+    return np.concatenate(pieces), positions if ok[0] else np.full_like(positions, np.nan)
 
 
 def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss) -> dict[str, Diagnostic]:
@@ -297,31 +325,15 @@ def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss) -> dict[
     return checks
 
 
-def _law_fit(
-    model: OrbitModel, result: lmfit.minimizer.MinimizerResult, tracks: tuple[Track, ...],
-    paths: Sequence[PathGeometry], sigma: FloatArray, sigma_known: bool, loss: Loss,
-) -> LawFit:
-    vector = np.array([result.params[name].value for name in model.names])
-    n, n_se = _value(result, "exponent")
-    log_force, log_force_se = _value(result, "log_force")
-    log_radius = math.log(model.reference_radius)
-    covariance_n_f = _covariance(result, "exponent", "log_force")
-    log_k_se = math.sqrt(max(log_force_se**2 + log_radius**2 * n_se**2
-                             - 2 * log_radius * covariance_n_f, 0.0))
-    strength = float(model.strength(vector))
-    cx, cx_se = _value(result, "centre_x" if model.shared_centre else "centre_x_0")
-    cy, cy_se = _value(result, "centre_y" if model.shared_centre else "centre_y_0")
-    first = model._track_columns(0)[2]
-    x0, y0, vx0, vy0 = vector[first:first + 4]
-    h = float(x0 * vy0 - y0 * vx0)
-    data = observed(tracks)
-    radial = _radial_residuals(model, vector, data)
-    dof = max(data.size - result.nvarys, 1)
-    reduced = float(result.chisqr) / dof
+def _fit_checks(
+    solution: _Solution, radial: FloatArray, sigma: FloatArray, sigma_known: bool, loss: Loss,
+    reduced: float, dof: int, noise: float, turns: float, length_unit: str,
+) -> dict[str, Diagnostic]:
+    """The orbit fit's checks: convergence, chi-square (known sigma), residuals, noise, coverage."""
     diagnostics = {
-        "convergence": Diagnostic(bool(result.success),
-                                  f"{result.message} ({result.nfev} evaluations)"
-                                  + ("" if result.success else "; the optimiser stopped before "
+        "convergence": Diagnostic(solution.success,
+                                  f"{solution.message} ({solution.evaluations} evaluations)"
+                                  + ("" if solution.success else "; the optimiser stopped before "
                                      "converging: the values and errors are those where it stopped")),
     }
     if sigma_known:
@@ -331,23 +343,46 @@ def _law_fit(
             not (reduced > 1.0 + 5.0 * spread),
             text + (": the model misses the points by more than their sigma." if reduced > 1 + 5 * spread
                     else "."))
-    noise = float(np.median(sigma)) * (math.sqrt(reduced) if not sigma_known else 1.0)
     diagnostics.update(_residual_checks(radial, sigma.ravel(), loss))
-    diagnostics["noise"] = Diagnostic(None, (f"sigma as given (median {noise:.3g} {tracks[0].length_unit})"
+    diagnostics["noise"] = Diagnostic(None, (f"sigma as given (median {noise:.3g} {length_unit})"
                                              if sigma_known else
-                                             f"fitted noise level {noise:.3g} {tracks[0].length_unit}"))
-    turns = sum(path.revolutions for path in paths)
+                                             f"fitted noise level {noise:.3g} {length_unit}"))
     diagnostics["coverage"] = Diagnostic(None, f"the data sweep {turns:.2f} turns about the centre.")
-    details = {"lmfit": result, "model": model, "sigma": sigma.ravel(),
-               "evaluations": int(result.nfev), "noise": noise, "loss": loss,
-               "turns": turns,
-               "sigma_known": sigma_known,
-               "epochs": list(model.epochs), "n_tracks": len(tracks), "angular_momentum": h,
-               "states": {name: float(result.params[name].value) for name in model.names
-                          if name.startswith(("x0", "y0", "vx0", "vy0"))}}
-    for name in ("drag", "rotation_rate"):
-        if name in result.params:
-            details[name], details[f"{name}_stderr"] = _value(result, name)
+    return diagnostics
+
+
+def _relation(path: PathGeometry, centre: tuple[float, float]) -> CurvaturePoints:
+    """The force-curvature relation of the first track about the fitted centre, for the figure."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_radius, log_force, _ = force_relation(path, centre)
+    return CurvaturePoints(log_radius=log_radius, log_force=log_force, per_h2=not path.track.has_times)
+
+
+def _law_fit(
+    model: OrbitModel, solution: _Solution, covariance: FloatArray, tracks: tuple[Track, ...],
+    paths: Sequence[PathGeometry], sigma: FloatArray, sigma_known: bool, loss: Loss,
+) -> OrbitFit:
+    vector = np.array([solution.values[name] for name in model.names])
+    n, n_se = solution.value("exponent")
+    log_force, log_force_se = solution.value("log_force")
+    log_radius = math.log(model.reference_radius)
+    covariance_n_f = solution.covariance_of("exponent", "log_force")
+    log_k_se = math.sqrt(max(log_force_se**2 + log_radius**2 * n_se**2
+                             - 2 * log_radius * covariance_n_f, 0.0))
+    strength = float(model.strength(vector))
+    cx, cx_se = solution.value("centre_x" if model.shared_centre else "centre_x_0")
+    cy, cy_se = solution.value("centre_y" if model.shared_centre else "centre_y_0")
+    first = model.track_columns(0)[2]
+    x0, y0, vx0, vy0 = vector[first:first + 4]
+    h = float(x0 * vy0 - y0 * vx0)
+    data = observed(tracks)
+    radial, positions = _radial_residuals(model, vector, data)
+    dof = max(data.size - len(solution.varying), 1)
+    reduced = solution.chi2 / dof
+    noise = float(np.median(sigma)) * (math.sqrt(reduced) if not sigma_known else 1.0)
+    turns = sum(path.revolutions for path in paths)
+    diagnostics = _fit_checks(solution, radial, sigma, sigma_known, loss, reduced, dof, noise, turns,
+                              tracks[0].length_unit)
     with np.errstate(all="ignore"):
         derived = (strength, strength * log_k_se, float(np.float64(strength) / h**2),
                    float(np.exp(log_force)))
@@ -356,19 +391,23 @@ def _law_fit(
             f"{tracks[0].label}: the orbit fit ran away (n = {n:.4g}, the strength overflows); "
             "the samples are probably too sparse for the orbit (fewer than a few per turn) or the "
             "path is not an orbit in a central power law. Check the times, the units and the data.",
-            last_params=_last_params(result))
-    names = tuple(result.var_names)
-    covariance = result.covar if result.covar is not None else np.full((len(names),) * 2, math.nan)
-    return LawFit(
+            last_params=solution.values)
+    drag, drag_se = solution.value("drag") if model.drag is not None else (math.nan, math.nan)
+    rate, rate_se = solution.value("rotation_rate") if model.fit_rotation else (math.nan, math.nan)
+    return OrbitFit(
         exponent=n, exponent_stderr=n_se, strength=strength, strength_stderr=strength * log_k_se,
         strength_per_h2=strength / h**2, strength_per_h2_stderr=strength * log_k_se / h**2,
         centre=(cx, cy), centre_stderr=(cx_se, cy_se), method="orbit", n_points=data.shape[0],
-        chi2=float(result.chisqr), reduced_chi2=reduced, parameter_names=names,
-        covariance=np.asarray(covariance), residuals=np.asarray(result.residual),
+        chi2=solution.chi2, reduced_chi2=reduced, parameter_names=solution.varying,
+        covariance=covariance, residuals=solution.residual,
         length_unit=tracks[0].length_unit, time_unit=tracks[0].time_unit,
         reference_radius=model.reference_radius, force_at_reference=math.exp(log_force),
         force_at_reference_stderr=math.exp(log_force) * log_force_se, diagnostics=diagnostics,
-        details=details, track_name=" + ".join(track.name for track in tracks),
+        relation=_relation(paths[0], (cx, cy)), track_name=" + ".join(track.name for track in tracks),
+        model=model, values=solution.values, stderrs=solution.stderrs, sigma=sigma.ravel(),
+        sigma_known=sigma_known, noise=noise, loss=loss, evaluations=solution.evaluations,
+        converged=solution.success, turns=turns, angular_momentum=h, fitted_positions=positions,
+        drag=drag, drag_stderr=drag_se, rotation_rate=rate, rotation_rate_stderr=rate_se,
     )
 
 

@@ -1,4 +1,9 @@
-"""`LawFit`: the frozen result every estimator returns, with its text table and JSON form."""
+"""What the estimators return: `LawFit` and a typed subclass for each estimator's extras.
+
+Every result is frozen and complete: arrays are read-only copies, mappings read-only views,
+and a value that cannot be computed is nan with the reason in ``diagnostics``. Each result
+formats its numbers once, in `rows`, which its text, its report page and the command line show.
+"""
 
 from __future__ import annotations
 
@@ -11,7 +16,8 @@ from typing import Any
 import numpy as np
 
 from .._json import json_safe
-from .._types import FloatArray
+from .._types import FloatArray, Row, frozen_array
+from ..dynamics.orbit_model import OrbitModel
 from ..units import format_measurement, strength_per_h2_unit, strength_unit
 
 NAN = float("nan")
@@ -25,12 +31,41 @@ class Diagnostic:
     message: str
 
 
+@dataclass(frozen=True)
+class CurvaturePoints:
+    """The force-curvature relation at the samples that bend towards the fitted centre.
+
+    Attributes
+    ----------
+    log_radius : ndarray
+        ln r, r in the track's length unit L.
+    log_force : ndarray
+        ln F (F in L T**-2) with timestamps; ln(F / h**2) (in L**-3) without.
+    per_h2 : bool
+        True when ``log_force`` holds ln(F / h**2) (a shape-only track).
+    """
+
+    log_radius: FloatArray
+    log_force: FloatArray
+    per_h2: bool
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "log_radius", frozen_array(self.log_radius))
+        object.__setattr__(self, "log_force", frozen_array(self.log_force))
+
+
+def _no_points() -> CurvaturePoints:
+    return CurvaturePoints(log_radius=np.empty(0), log_force=np.empty(0), per_h2=True)
+
+
 @dataclass(frozen=True, kw_only=True)
 class LawFit:
     """Central force per unit mass F(r) = -k r**n r_hat, fitted to one track.
 
     Every estimator fills every field; a value it cannot compute is nan, with the
-    reason in ``diagnostics``.
+    reason in ``diagnostics``. Each estimator returns its own subclass, which adds
+    typed fields for what only it knows (`OrbitFit`, `ShapeFit`, `CurvatureFit`,
+    `AccelerationFit`).
 
     Attributes
     ----------
@@ -50,10 +85,10 @@ class LawFit:
         Weighted sum of squared residuals and that per degree of freedom.
     parameter_names : tuple of str
         Names of the rows and columns of ``covariance``.
-    covariance : ndarray
-        Covariance of the fitted parameters (in the estimator's parametrisation).
+    covariance : ndarray, shape (n_parameters, n_parameters)
+        Covariance of the fitted parameters (in the estimator's parametrisation); read-only.
     residuals : ndarray
-        Normalised residuals of the fit, one per point used.
+        Normalised residuals of the fit, one per point used; read-only.
     length_unit, time_unit : str
         Units of the track (time_unit None when shape-only).
     reference_radius : float
@@ -66,8 +101,8 @@ class LawFit:
     alternatives : tuple of LawFit
         Other solutions the data support equally well (e.g. an ellipse without
         timestamps: n = 1 about its centre, n = -2 about a focus).
-    details : mapping
-        Estimator-specific extras (smoothing level, angular momentum, ...).
+    relation : CurvaturePoints
+        The force-curvature relation of the path about the fitted centre (for the figure).
     track_name : str
         Name of the track fitted.
     """
@@ -94,7 +129,7 @@ class LawFit:
     force_at_reference_stderr: float = NAN
     diagnostics: Mapping[str, Diagnostic] = field(default_factory=dict)
     alternatives: tuple[LawFit, ...] = ()
-    details: Mapping[str, Any] = field(default_factory=dict)
+    relation: CurvaturePoints = field(default_factory=_no_points)
     track_name: str = "track"
 
     def __post_init__(self) -> None:
@@ -106,8 +141,11 @@ class LawFit:
             pair = getattr(self, name)
             object.__setattr__(self, name, (float(pair[0]), float(pair[1])))
         object.__setattr__(self, "n_points", int(self.n_points))
+        object.__setattr__(self, "parameter_names", tuple(self.parameter_names))
+        object.__setattr__(self, "covariance", frozen_array(self.covariance))
+        object.__setattr__(self, "residuals", frozen_array(self.residuals))
         object.__setattr__(self, "diagnostics", MappingProxyType(dict(self.diagnostics)))
-        object.__setattr__(self, "details", MappingProxyType(dict(self.details)))
+        object.__setattr__(self, "alternatives", tuple(self.alternatives))
 
     @property
     def passed(self) -> bool:
@@ -140,33 +178,58 @@ class LawFit:
         denominator = math.sqrt(self.covariance[i, i] * self.covariance[j, j])
         return float(self.covariance[i, j] / denominator) if denominator > 0 else NAN
 
-    def summary(self) -> str:
-        """A short text table of the fitted law, with units, and the diagnostics."""
-        length = self.length_unit
+    def rows(self) -> list[Row]:
+        """The fitted law as table rows with units: the brief ones for the text, all for a report."""
+        length, time = self.length_unit, self.time_unit or ""
+        strength = (Row("strength k", format_measurement(self.strength, self.strength_stderr),
+                        self.strength_unit) if math.isfinite(self.strength)
+                    else Row("strength k", "not determined (no timestamps)"))
         rows = [
-            ("exponent n", format_measurement(self.exponent, self.exponent_stderr)),
-            ("strength k", format_measurement(self.strength, self.strength_stderr,
-                                              self.strength_unit)
-             if math.isfinite(self.strength) else "not determined (no timestamps)"),
-            ("k / h^2", format_measurement(self.strength_per_h2, self.strength_per_h2_stderr,
-                                           strength_per_h2_unit(length, self.exponent))),
-            ("centre x", format_measurement(self.centre[0], self.centre_stderr[0], length)),
-            ("centre y", format_measurement(self.centre[1], self.centre_stderr[1], length)),
-            ("points used", str(self.n_points)),
-            ("reduced chi2", f"{self.reduced_chi2:.3g}"),
+            Row("exponent n", format_measurement(self.exponent, self.exponent_stderr)),
+            strength,
+            Row("k / h^2", format_measurement(self.strength_per_h2, self.strength_per_h2_stderr),
+                strength_per_h2_unit(length, self.exponent)),
+            Row("reference radius r_ref", format_measurement(self.reference_radius), length, brief=False),
+            Row("force |F| at r_ref", format_measurement(self.force_at_reference,
+                                                         self.force_at_reference_stderr),
+                f"{length} {time}^-2", brief=False),
+            Row("centre x", format_measurement(self.centre[0], self.centre_stderr[0]), length),
+            Row("centre y", format_measurement(self.centre[1], self.centre_stderr[1]), length),
+            Row("chi-square", f"{self.chi2:.6g}", brief=False),
+            Row("points used", str(self.n_points)),
+            Row("reduced chi2", f"{self.reduced_chi2:.3g}"),
         ]
-        width = max(len(label) for label, _ in rows)
+        nominal = round(self.exponent)
+        if math.isfinite(self.force_at_reference) and abs(self.exponent - nominal) > 1e-12:
+            value, error = self.strength_at_exponent(nominal)
+            rows.insert(2, Row(f"k for n = {nominal} (same force at r_ref)",
+                               format_measurement(value, error),
+                               strength_unit(length, self.time_unit or "T", nominal), brief=False))
+        return rows + self._extra_rows()
+
+    def _extra_rows(self) -> list[Row]:
+        """Rows an estimator's result adds to the common ones."""
+        return []
+
+    def to_text(self) -> str:
+        """A short text table of the fitted law, with units, and the diagnostics."""
+        rows = [row for row in self.rows() if row.brief]
+        width = max(len(row.label) for row in rows)
         lines = [f"{self.track_name} — {self.method} fit of F = -k r^n"]
-        lines += [f"  {label:<{width}}  {value}" for label, value in rows]
+        lines += [f"  {row.label:<{width}}  {row.text}" for row in rows]
         for name, check in self.diagnostics.items():
             mark = {True: "ok  ", False: "FAIL", None: "note"}[check.passed]
             lines.append(f"  [{mark}] {name}: {check.message}")
         for other in self.alternatives:
             lines.append(
                 f"  also consistent: n = {format_measurement(other.exponent, other.exponent_stderr)}"
-                f" about ({other.centre[0]:.6g}, {other.centre[1]:.6g}) {length}"
+                f" about ({other.centre[0]:.6g}, {other.centre[1]:.6g}) {self.length_unit}"
             )
         return "\n".join(lines)
+
+    def _details(self) -> dict[str, Any]:
+        """The estimator's own numbers, for the ``details`` entry of `to_dict`."""
+        return {}
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe form: numbers (nan as None), lists and strings only."""
@@ -196,6 +259,208 @@ class LawFit:
             "diagnostics": {name: {"passed": check.passed, "message": check.message}
                             for name, check in self.diagnostics.items()},
             "alternatives": [other.to_dict() for other in self.alternatives],
-            "details": {key: value for key, value in self.details.items()
-                        if isinstance(value, (int, float, str, bool, list, tuple, dict))},
+            "details": self._details(),
         })
+
+
+@dataclass(frozen=True, kw_only=True)
+class CurvatureFit(LawFit):
+    """A `LawFit` of the curvature estimator, with what its regression used.
+
+    Attributes
+    ----------
+    angular_momentum, angular_momentum_stderr : float
+        Mean specific angular momentum h (L**2/T) and its error; nan without timestamps.
+    correlation_time : float
+        Integrated autocorrelation time of the regression's residuals, in points.
+    smoothing_level, smoothing_dof : float
+        The smoothing level used and its effective degrees of freedom per coordinate.
+    """
+
+    angular_momentum: float
+    angular_momentum_stderr: float
+    correlation_time: float
+    smoothing_level: float
+    smoothing_dof: float
+
+    def _details(self) -> dict[str, Any]:
+        return {"angular_momentum": self.angular_momentum,
+                "angular_momentum_stderr": self.angular_momentum_stderr,
+                "correlation_time": self.correlation_time, "smoothing_level": self.smoothing_level,
+                "smoothing_dof": self.smoothing_dof}
+
+
+@dataclass(frozen=True, kw_only=True)
+class ShapeFit(LawFit):
+    """A `LawFit` of the shape (Binet) estimator.
+
+    Attributes
+    ----------
+    reference_angle : float
+        The polar angle (rad) about the fitted centre where the Binet solution starts.
+    angular_momentum, angular_momentum_stderr : float
+        Mean specific angular momentum h (L**2/T) and its error; nan without timestamps.
+    evaluations : int
+        Residual evaluations the optimiser used.
+    """
+
+    reference_angle: float
+    angular_momentum: float
+    angular_momentum_stderr: float
+    evaluations: int
+
+    def _details(self) -> dict[str, Any]:
+        return {"reference_angle": self.reference_angle, "angular_momentum": self.angular_momentum,
+                "angular_momentum_stderr": self.angular_momentum_stderr, "evaluations": self.evaluations}
+
+
+@dataclass(frozen=True, kw_only=True)
+class AccelerationFit(LawFit):
+    """A `LawFit` of the acceleration estimator.
+
+    Attributes
+    ----------
+    angular_momentum, angular_momentum_stderr : float
+        Mean specific angular momentum h (L**2/T) and its error.
+    correlation_time : float
+        Integrated autocorrelation time of the residuals, in points (it widens the errors).
+    """
+
+    angular_momentum: float
+    angular_momentum_stderr: float
+    correlation_time: float
+
+    def _details(self) -> dict[str, Any]:
+        return {"angular_momentum": self.angular_momentum,
+                "angular_momentum_stderr": self.angular_momentum_stderr,
+                "correlation_time": self.correlation_time}
+
+
+@dataclass(frozen=True, kw_only=True)
+class OrbitFit(LawFit):
+    """A `LawFit` of the orbit estimator: the model, the solution and the noise it assumed.
+
+    Attributes
+    ----------
+    model : OrbitModel
+        The model fitted (tracks, epochs, reference radius, drag kind, frame rotation).
+    values, stderrs : mapping of str to float
+        Every parameter of ``model.names`` where the fit ended, and its standard error
+        (0 for a parameter held fixed, nan when not estimable). The varying ones are
+        ``parameter_names``, in the order of ``covariance``.
+    sigma : ndarray, shape (n_points,)
+        Position noise per coordinate at each sample (L): as given, or the smoothing's
+        estimate; read-only.
+    sigma_known : bool
+        Whether sigma was given with the data (else the covariance is scaled by the fit).
+    noise : float
+        The noise level the fit implies (L): median sigma, times sqrt(reduced chi2) when
+        sigma was not given.
+    loss : str
+        The loss minimised: ``"linear"`` (least squares), ``"soft_l1"`` or ``"huber"``.
+    evaluations : int
+        Model evaluations the optimiser used.
+    converged : bool
+        Whether the optimiser met its convergence criteria.
+    turns : float
+        Turns the data sweep about the centre (all tracks together).
+    angular_momentum : float
+        Specific angular momentum h = x0 vy0 - y0 vx0 of the first track's state (L**2/T).
+    drag, drag_stderr : float
+        The drag coefficient (1/T linear, 1/L quadratic) and its error; nan when not fitted.
+    rotation_rate, rotation_rate_stderr : float
+        The observer frame's fitted rotation rate (rad/T) and its error; nan when not fitted.
+    fitted_positions : ndarray, shape (n_points, 2)
+        The fitted orbit at the samples, all tracks stacked (L); nan where it could not be
+        integrated; read-only.
+    """
+
+    model: OrbitModel
+    values: Mapping[str, float]
+    stderrs: Mapping[str, float]
+    sigma: FloatArray
+    sigma_known: bool
+    noise: float
+    loss: str
+    evaluations: int
+    converged: bool
+    turns: float
+    angular_momentum: float
+    fitted_positions: FloatArray
+    drag: float = NAN
+    drag_stderr: float = NAN
+    rotation_rate: float = NAN
+    rotation_rate_stderr: float = NAN
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        object.__setattr__(self, "values", MappingProxyType({k: float(v) for k, v in self.values.items()}))
+        object.__setattr__(self, "stderrs", MappingProxyType({k: float(v) for k, v in self.stderrs.items()}))
+        object.__setattr__(self, "sigma", frozen_array(self.sigma))
+        object.__setattr__(self, "fitted_positions", frozen_array(self.fitted_positions))
+
+    @property
+    def vector(self) -> FloatArray:
+        """The fitted parameter vector, in the order of ``model.names``."""
+        return np.array([self.values[name] for name in self.model.names])
+
+    @property
+    def epochs(self) -> tuple[float, ...]:
+        """Each track's epoch (T), where its state is defined."""
+        return self.model.epochs
+
+    @property
+    def n_tracks(self) -> int:
+        """Tracks fitted together."""
+        return len(self.model.tracks)
+
+    @property
+    def states(self) -> Mapping[str, float]:
+        """Each track's fitted state at its epoch: ``x0``, ``y0`` (L), ``vx0``, ``vy0`` (L/T),
+        with a ``_j`` suffix per track when several were fitted."""
+        return MappingProxyType({name: value for name, value in self.values.items()
+                                 if name.startswith(("x0", "y0", "vx0", "vy0"))})
+
+    def predict(self, vector: FloatArray | None = None) -> FloatArray:
+        """Positions the model predicts at the samples, all tracks stacked, shape (n_points, 2).
+
+        Parameters
+        ----------
+        vector : ndarray, optional
+            A parameter vector in the order of ``model.names``; default the fitted one.
+
+        Returns
+        -------
+        ndarray
+            In the tracks' length unit; nan where the orbit could not be integrated.
+        """
+        chosen = self.vector if vector is None else np.asarray(vector, dtype=float)
+        predictions, ok = self.model.predict(chosen[None, :])
+        stacked = np.concatenate([prediction[0] for prediction in predictions])
+        return stacked if ok[0] else np.full_like(stacked, np.nan)
+
+    def _extra_rows(self) -> list[Row]:
+        time, length = self.time_unit or "", self.length_unit
+        rows = []
+        if self.model.drag is not None:
+            unit = f"1/{time}" if self.model.drag == "linear" else f"1/{length}"
+            rows.append(Row("drag", _measurement(self.drag, self.drag_stderr), unit, brief=False))
+        if self.model.fit_rotation:
+            rows.append(Row("rotation rate", _measurement(self.rotation_rate, self.rotation_rate_stderr),
+                            f"rad/{time}", brief=False))
+        rows.append(Row("noise", format_measurement(self.noise), length, brief=False))
+        return rows
+
+    def _details(self) -> dict[str, Any]:
+        fitted: dict[str, float] = {}
+        if self.model.drag is not None:
+            fitted.update(drag=self.drag, drag_stderr=self.drag_stderr)
+        if self.model.fit_rotation:
+            fitted.update(rotation_rate=self.rotation_rate, rotation_rate_stderr=self.rotation_rate_stderr)
+        return {"evaluations": self.evaluations, "noise": self.noise, "loss": self.loss, "turns": self.turns,
+                "sigma_known": self.sigma_known, "epochs": list(self.epochs), "n_tracks": self.n_tracks,
+                "angular_momentum": self.angular_momentum, "states": dict(self.states), **fitted}
+
+
+def _measurement(value: float, stderr: float) -> str:
+    return format_measurement(value, stderr if math.isfinite(stderr) else None)

@@ -24,7 +24,7 @@ from scipy.optimize import OptimizeResult, least_squares
 
 from .._types import FloatArray
 from ..errors import FitError, GeometryError, NotIdentifiable
-from ..geometry.path import PathGeometry, describe_path
+from ..geometry.path import PathGeometry, describe_path, force_relation
 from ..geometry.smoothing import Smoothing
 from ..track import Track
 from ._checks import (
@@ -35,7 +35,7 @@ from ._checks import (
     runs_diagnostic,
 )
 from .curvature import fit_curvature
-from .result import Diagnostic, LawFit
+from .result import CurvaturePoints, Diagnostic, ShapeFit
 
 AMBIGUITY_FACTOR = 1.5
 """Solutions whose reduced chi-square is within this factor of the best are all reported."""
@@ -198,7 +198,7 @@ def fit_shape(
     centre: tuple[float, float] | None = None,
     smoothing: Smoothing = "auto",
     path: PathGeometry | None = None,
-) -> LawFit:
+) -> ShapeFit:
     """Fit Binet's equation to the path: n and k/h**2 from the shape, time-free.
 
     Parameters
@@ -214,7 +214,7 @@ def fit_shape(
 
     Returns
     -------
-    LawFit
+    ShapeFit
         For a shape-only track with a free centre, ``alternatives`` lists the other
         solutions that fit as well (a closed ellipse: n = 1 about its centre and
         n = -2 about a focus).
@@ -261,7 +261,7 @@ def fit_shape(
     return replace(best, alternatives=rest, diagnostics={**best.diagnostics, "centre": check})
 
 
-def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit:
+def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> ShapeFit:
     require_orbit(path)
     require_monotonic(path)
     result, reference, sigma = _solve(track, path, free_centre)
@@ -302,7 +302,7 @@ def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit
         diagnostics["centre"] = Diagnostic(None, f"the shape fixes the centre only to ±{max(centre_se):.3g} "
                                                  f"{track.length_unit}; give it if it is known.")
     names = ("exponent", "log_strength_per_h2", "log_r_reference", "dlnr_dtheta_reference")
-    return LawFit(
+    return ShapeFit(
         exponent=float(exponent), exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
         strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
         centre=centre, centre_stderr=centre_se, method="shape", n_points=track.n_points,
@@ -312,10 +312,16 @@ def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> LawFit
         parameter_names=names + (("centre_x", "centre_y") if free_centre else ()),
         covariance=covariance, residuals=residuals, length_unit=track.length_unit,
         time_unit=track.time_unit if track.has_times else None, diagnostics=diagnostics,
-        details={"reference_angle": reference, "angular_momentum": h,
-                 "angular_momentum_stderr": h_se, "evaluations": int(result.nfev)},
-        track_name=track.name,
+        relation=_relation(path, centre), reference_angle=reference, angular_momentum=h,
+        angular_momentum_stderr=h_se, evaluations=int(result.nfev), track_name=track.name,
     )
+
+
+def _relation(path: PathGeometry, centre: tuple[float, float]) -> CurvaturePoints:
+    """The force-curvature relation about the fitted centre, for the figure."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_radius, log_force, _ = force_relation(path, centre)
+    return CurvaturePoints(log_radius=log_radius, log_force=log_force, per_h2=not path.track.has_times)
 
 
 def _chi2_diagnostic(reduced: float, dof: int) -> Diagnostic:

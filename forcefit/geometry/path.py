@@ -17,7 +17,7 @@ from .._types import FloatArray
 from ..errors import ForcefitWarning, GeometryError
 from ..track import Track
 from .centre import CentreEstimate, find_centre
-from .curves import curvature_of, polar_about
+from .curves import attractive_points, curvature_of, curvature_relation, polar_about
 from .pspline import SmoothedCurve
 from .smoothing import Smoothing, smooth_track
 
@@ -176,3 +176,36 @@ def _about(
         gamma=polar.gamma, gamma_stderr=polar.gamma_stderr,
         angular_momentum=h, angular_momentum_stderr=h_err, smoothing=curve, warnings=tuple(notes),
     )
+
+
+def force_relation(
+    path: PathGeometry, centre: tuple[float, float], used: np.ndarray | None = None
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """ln r, ln F (ln F/h**2 for a shape-only track) and its standard error at the ``used``
+    samples (default: those that bend significantly towards the centre), about ``centre``.
+
+    F/h**2 = kappa / (r**2 cos(gamma)**3). With timestamps each point's own h = (r x v)
+    enters: F = h**2 kappa / (r**2 cos**3 gamma) holds for the central part of the force even
+    when a drag along the motion makes h change, because such a force has no component across
+    the path.
+
+    References
+    ----------
+    I. Newton (1687), Principia, Book I, Prop. VI, Cor. 3-5, and Prop. VII, Cor. 3.
+    """
+    curve = path.smoothing
+    if used is None:
+        used = attractive_points(curve, path.curvature, path.curvature_stderr)
+    points = curvature_relation(curve, path.curvature, path.curvature_stderr, np.asarray(centre), used)
+    y, variance = points.log_force_per_h2, points.sigma**2
+    if path.track.has_times:
+        offset = curve.value[used] - np.asarray(centre)
+        velocity = curve.first[used]
+        h = np.abs(offset[:, 0] * velocity[:, 1] - offset[:, 1] * velocity[:, 0])
+        h_var = (offset[:, 0] ** 2 * curve.first_var[used, 1]
+                 + offset[:, 1] ** 2 * curve.first_var[used, 0]
+                 + velocity[:, 1] ** 2 * curve.value_var[used, 0]
+                 + velocity[:, 0] ** 2 * curve.value_var[used, 1])
+        y = y + 2.0 * np.log(h)
+        variance = variance + 4.0 * h_var / h**2
+    return points.log_radius, y, np.sqrt(variance)

@@ -50,7 +50,7 @@ def compare_laws(
     for value in exponents:
         rows.append((f"n = {value:g}", fit_orbit(track_or_tracks, exponent=float(value), **options)))  # type: ignore[arg-type]
     n_values = 2 * free.n_points
-    sigma_known = bool(free.details["sigma_known"])
+    sigma_known = free.sigma_known
     table = []
     for label, fit in rows:
         parameters = len(fit.parameter_names)

@@ -31,7 +31,7 @@ import pandas as pd
 from .._types import FloatArray
 from ..dynamics.orbit_model import OrbitModel, observed
 from ..errors import FitError, InputError
-from ..estimators.result import LawFit
+from ..estimators.result import LawFit, OrbitFit
 from ..units import strength_unit
 
 TAU_FACTOR = 50.0
@@ -115,7 +115,7 @@ class Posterior:
         names = list(self.autocorr_time)
         return arviz.from_emcee(self.sampler, var_names=names).sel(draw=slice(self.burn_in, None, self.thin))
 
-    def summary(self) -> str:
+    def to_text(self) -> str:
         """Median, 68% and 95% intervals of each column, with units, and the convergence verdict."""
         lines = [f"posterior: {self.n_walkers} walkers x {self.n_steps} steps, burn-in {self.burn_in}, "
                  f"thinned by {self.thin}: {len(self.samples)} samples",
@@ -214,19 +214,15 @@ class _Problem:
         return log_p
 
 
-def _problem(fit: LawFit, noise: str, priors: Mapping[str, Prior]) -> tuple[_Problem, FloatArray, FloatArray]:
+def _problem(
+    fit: OrbitFit, noise: str, priors: Mapping[str, Prior]
+) -> tuple[_Problem, FloatArray, FloatArray]:
     """The log-probability, the best-fit point and the covariance to start the walkers from."""
-    result = fit.details["lmfit"]
-    model: OrbitModel = replace(fit.details["model"], rtol=SAMPLING_RTOL)
-    varying = list(result.var_names)
-    template = np.array([result.params[name].value for name in model.names])
-    best = np.array([result.params[name].value for name in varying])
-    if result.covar is not None:
-        covariance = np.asarray(result.covar, dtype=float)
-    else:
-        spread = [result.params[name].stderr or 1e-6 * max(abs(result.params[name].value), 1.0)
-                  for name in varying]
-        covariance = np.diag(np.square(spread))
+    model: OrbitModel = replace(fit.model, rtol=SAMPLING_RTOL)
+    varying = list(fit.parameter_names)
+    template = np.array([fit.values[name] for name in model.names])
+    best = np.array([fit.values[name] for name in varying])
+    covariance = np.array(fit.covariance, dtype=float)
     fit_noise = noise == "fit"
     names = tuple(varying) + (("log_noise_scale",) if fit_noise else ())
     if fit_noise:
@@ -237,12 +233,12 @@ def _problem(fit: LawFit, noise: str, priors: Mapping[str, Prior]) -> tuple[_Pro
     _check_priors(priors, names)
     problem = _Problem(model=model, template=template,
                        columns=np.array([model.names.index(name) for name in varying]),
-                       names=names, data=observed(model.tracks), sigma=np.asarray(fit.details["sigma"]),
+                       names=names, data=observed(model.tracks), sigma=np.asarray(fit.sigma),
                        fit_noise=fit_noise, priors=priors)
     return problem, best, covariance
 
 
-def _units(fit: LawFit, names: Sequence[str]) -> dict[str, str]:
+def _units(fit: OrbitFit, names: Sequence[str]) -> dict[str, str]:
     length, time = fit.length_unit, fit.time_unit or "T"
     units = {"exponent": "", "log_force": f"ln({length} {time}^-2)", "rotation_rate": f"rad/{time}",
              "log_noise_scale": "", "noise_scale": "", "strength": strength_unit(length, time, fit.exponent)}
@@ -252,8 +248,7 @@ def _units(fit: LawFit, names: Sequence[str]) -> dict[str, str]:
         elif name.startswith(("vx0", "vy0")):
             units[name] = f"{length}/{time}"
         elif name == "drag":
-            drag_kind = fit.details["model"].drag
-            units[name] = f"1/{time}" if drag_kind == "linear" else f"1/{length}"
+            units[name] = f"1/{time}" if fit.model.drag == "linear" else f"1/{length}"
     return units
 
 
@@ -293,7 +288,7 @@ def sample_posterior(
     noise: Literal["known", "fit"] | None = None,
     moves: Literal["de", "stretch"] = "de",
     progress: bool = True,
-    seed: int | None = None,
+    rng: np.random.Generator | int | None = None,
     save: str | os.PathLike[str] | None = None,
     resume: bool = False,
 ) -> Posterior:
@@ -301,7 +296,7 @@ def sample_posterior(
 
     Parameters
     ----------
-    fit : LawFit
+    fit : OrbitFit
         A fit from `fit_orbit`; its least-squares covariance places the walkers.
     walkers : int, optional
         Ensemble size; default max(32, 2 x parameters + 2).
@@ -320,8 +315,8 @@ def sample_posterior(
         posteriors, see benchmarks/posterior.py) or emcee's stretch move.
     progress : bool
         Show a progress bar.
-    seed : int, optional
-        Seed of the run's random numbers (walker start and moves).
+    rng : Generator or int, optional
+        Source of the run's random numbers (walker start and moves), or its seed.
     save : path, optional
         HDF5 file that keeps the chain as it grows (emcee's HDFBackend).
     resume : bool
@@ -331,10 +326,10 @@ def sample_posterior(
     -------
     Posterior
     """
-    if fit.method != "orbit" or "model" not in fit.details:
+    if not isinstance(fit, OrbitFit):
         raise InputError("sampling needs a fit from fit_orbit (the orbit method); "
                          f"this one is a {fit.method} fit.")
-    noise = noise or ("known" if fit.details["sigma_known"] else "fit")
+    noise = noise or ("known" if fit.sigma_known else "fit")
     problem, best, covariance = _problem(fit, noise, dict(priors or {}))
 
     def in_prior(points: FloatArray) -> np.ndarray:
@@ -342,7 +337,7 @@ def sample_posterior(
 
     sampler, converged, reason = run_ensemble(
         problem, best, covariance, in_prior=in_prior, walkers=walkers, max_steps=max_steps,
-        min_steps=min_steps, moves=moves, progress=progress, seed=seed, save=save, resume=resume)
+        min_steps=min_steps, moves=moves, progress=progress, rng=rng, save=save, resume=resume)
     return _collect(sampler, problem, fit, converged, reason)
 
 
@@ -357,7 +352,7 @@ def run_ensemble(
     min_steps: int = 0,
     moves: str = "de",
     progress: bool = False,
-    seed: int | None = None,
+    rng: np.random.Generator | int | None = None,
     save: str | os.PathLike[str] | None = None,
     resume: bool = False,
 ) -> tuple[emcee.EnsembleSampler, bool, str]:
@@ -372,7 +367,7 @@ def run_ensemble(
         Centre and covariance of the normal ball the walkers start in.
     in_prior : callable, optional
         Maps positions to a mask of those inside the prior's support.
-    walkers, max_steps, min_steps, moves, progress, seed, save, resume
+    walkers, max_steps, min_steps, moves, progress, rng, save, resume
         As in `sample_posterior`.
 
     Returns
@@ -394,13 +389,23 @@ def run_ensemble(
     if resume and backend is not None and backend.iteration > 0:
         state = sampler.get_last_sample()
     else:
-        rng = np.random.default_rng(seed)
+        generator, legacy = _random_sources(rng)
         inside = in_prior or (lambda points: np.ones(points.shape[0], dtype=bool))
-        state = emcee.State(_start(best, covariance, walkers, inside, rng),
-                            random_state=np.random.RandomState(seed).get_state())
+        state = emcee.State(_start(best, covariance, walkers, inside, generator),
+                            random_state=legacy.get_state())
     done = backend.iteration if backend is not None and resume else 0
     converged, reason = _run(sampler, state, max_steps - done, min_steps, progress)
     return sampler, converged, reason
+
+
+def _random_sources(
+    rng: np.random.Generator | int | None,
+) -> tuple[np.random.Generator, np.random.RandomState]:
+    """The generator that places the walkers and the legacy generator emcee's moves draw from:
+    both from the seed when one is given (or none), else the second seeded from the first."""
+    if isinstance(rng, np.random.Generator):
+        return rng, np.random.RandomState(int(rng.integers(2**32)))
+    return np.random.default_rng(rng), np.random.RandomState(rng)
 
 
 def _run(sampler: emcee.EnsembleSampler, state: Any, steps: int, min_total: int,
@@ -437,7 +442,7 @@ def _run(sampler: emcee.EnsembleSampler, state: Any, steps: int, min_total: int,
     return False, (f"tau is still changing ({100 * change:.0f}% between checks); run longer.")
 
 
-def _collect(sampler: emcee.EnsembleSampler, problem: _Problem, fit: LawFit, converged: bool,
+def _collect(sampler: emcee.EnsembleSampler, problem: _Problem, fit: OrbitFit, converged: bool,
              reason: str) -> Posterior:
     tau = sampler.get_autocorr_time(tol=0)
     burn_in = min(int(2 * np.max(tau)), sampler.iteration // 2)

@@ -26,7 +26,7 @@ from matplotlib.figure import Figure  # noqa: E402
 from .._atomic import write_atomic  # noqa: E402
 from .._types import FloatArray  # noqa: E402
 from ..analysis.apsides import Apsides  # noqa: E402
-from ..estimators.result import LawFit  # noqa: E402
+from ..estimators.result import LawFit, OrbitFit  # noqa: E402
 from ..inference.posterior import Posterior  # noqa: E402
 from ..track import Track  # noqa: E402
 
@@ -227,13 +227,10 @@ def grade_histogram(exponents: Sequence[float], expected: float, tolerance: floa
 
 def fitted_positions(fit: LawFit) -> FloatArray | None:
     """The orbit fit's predicted positions at the samples, all tracks stacked; None otherwise."""
-    model = fit.details.get("model")
-    result = fit.details.get("lmfit")
-    if model is None or result is None:
+    if not isinstance(fit, OrbitFit):
         return None
-    vector = np.array([result.params[name].value for name in model.names])
-    predictions, ok = model.predict(vector[None, :])
-    return np.concatenate([p[0] for p in predictions]) if ok[0] else None
+    positions = fit.fitted_positions
+    return positions if np.all(np.isfinite(positions)) else None
 
 
 def figure_png(figure: Figure, *, dpi: int = 110) -> bytes:

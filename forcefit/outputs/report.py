@@ -25,7 +25,7 @@ from matplotlib.figure import Figure
 from .._atomic import write_atomic
 from .._version import __version__
 from ..analysis.apsides import Apsides
-from ..estimators.result import LawFit
+from ..estimators.result import LawFit, OrbitFit
 from ..inference.posterior import Posterior
 from ..track import Track
 from ..units import format_measurement, strength_per_h2_unit
@@ -89,11 +89,14 @@ def _quantities(fit: LawFit) -> list[dict[str, str]]:
         value, error = fit.strength_at_exponent(nominal)
         rows.insert(2, (f"k for n = {nominal} (same force at r_ref)", format_measurement(value, error),
                         _unit_for(fit, nominal)))
-    for name, unit in (("drag", f"1/{time}"), ("rotation_rate", f"rad/{time}"), ("noise", length)):
-        if name in fit.details:
-            spread = _number(fit.details.get(f"{name}_stderr"))
-            text = format_measurement(float(fit.details[name]), spread if math.isfinite(spread) else None)
-            rows.append((name.replace("_", " "), text, unit))
+    if isinstance(fit, OrbitFit):
+        for name, unit, value, spread in (
+                ("drag", f"1/{time}", fit.drag, fit.drag_stderr),
+                ("rotation_rate", f"rad/{time}", fit.rotation_rate, fit.rotation_rate_stderr),
+                ("noise", length, fit.noise, math.nan)):
+            if math.isfinite(value):
+                text = format_measurement(value, spread if math.isfinite(spread) else None)
+                rows.append((name.replace("_", " "), text, unit))
     return [{"label": a, "value": b, "unit": c} for a, b, c in rows]
 
 
@@ -139,8 +142,7 @@ def _apsides_rows(apsides: Apsides) -> list[dict[str, str]]:
 def _track_of(fit: LawFit, track: Track | None) -> Track | None:
     if track is not None:
         return track
-    model = fit.details.get("model")
-    return model.tracks[0] if model is not None else None
+    return fit.model.tracks[0] if isinstance(fit, OrbitFit) else None
 
 
 def write_report(
