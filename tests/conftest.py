@@ -51,3 +51,24 @@ def screened_track(n_points: int = 1500, *, with_sigma: bool = True, scale: floa
     return Track(t=t, x=solution.y[0] + 0.002 * rng.standard_normal(t.size),
                  y=solution.y[1] + 0.002 * rng.standard_normal(t.size),
                  sigma=0.002 if with_sigma else None, name="screened")
+
+
+def _noisy_orbit(exponent: float, rng: int, n_points: int = 1000):
+    """Three circular periods of F = r^n (k = 1), n_points samples, noise 0.2% of the orbit's
+    size, centre at (0.25, -0.15) m."""
+    import numpy as np
+
+    from forcefit.dynamics.laws import circular_period
+    from forcefit.dynamics.simulate import simulate_orbit
+
+    duration = 3.0 * float(circular_period(1.0, exponent, 1.0))
+    clean = simulate_orbit(exponent=exponent, duration=duration, rate=(n_points - 1) / duration)
+    size = max(float(np.ptp(clean.x)), float(np.ptp(clean.y)))
+    return simulate_orbit(exponent=exponent, duration=duration, rate=(n_points - 1) / duration,
+                          noise=0.002 * size, centre=(0.25, -0.15), rng=rng)
+
+
+@pytest.fixture(scope="session")
+def noisy_orbit():
+    """`_noisy_orbit`: a noisy simulated orbit with a known law and centre."""
+    return _noisy_orbit

@@ -10,7 +10,7 @@ import pytest
 
 from forcefit.cli import main
 from forcefit.errors import ForcefitError, GeometryError, InputError, NotIdentifiable
-from forcefit.estimators import fit_orbit, fit_shape
+from forcefit.estimators import fit
 from forcefit.reading.loaders import load_tracks
 
 from .conftest import sha256
@@ -92,7 +92,7 @@ def _api(path, extra):
     tracks = load_tracks(path, length_unit=options.get("--length-unit"))
     centre = tuple(map(float, options["--centre"].split(","))) if "--centre" in options else None
     for track in tracks:
-        (fit_orbit if track.has_times else fit_shape)(track, centre=centre)
+        fit(track, centre=centre)
 
 
 @pytest.mark.parametrize(("case", "name", "content", "extra", "error", "patterns"), CASES,

@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 
 from forcefit.cli import main
+from forcefit.estimators import ESTIMATORS
 from forcefit.reading.loaders import load_track
 
 from .conftest import DEMO, sha256
@@ -118,6 +119,12 @@ def test_fit_uses_the_orbit_method_with_drag_and_comparison(capsys):
     assert report["details"]["drag"] == pytest.approx(0.04, rel=1e-3)
     laws = {row["law"]: row for row in report["comparison"]}
     assert laws["n = 1"]["p_value"] > 0.01 and laws["n = -2"]["p_value"] < 1e-6
+
+
+def test_fit_offers_every_registered_estimator(capsys):
+    with pytest.raises(SystemExit):
+        main(["fit", "--help"])
+    assert "{" + ",".join(sorted(ESTIMATORS)) + "}" in capsys.readouterr().out
 
 
 def test_orbit_options_are_refused_for_time_free_methods(capsys):

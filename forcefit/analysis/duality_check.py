@@ -15,6 +15,7 @@ from typing import Any
 
 from .._json import json_safe
 from ..dynamics.duality import dual_exponent, dual_strength, dual_track, specific_energy_at
+from ..estimators.registry import ESTIMATORS
 from ..estimators.result import LawFit, OrbitFit
 from ..track import Track
 
@@ -61,7 +62,7 @@ class DualityCheck:
                           "passed": self.passed})
 
 
-def check_duality(track: Track, fit: LawFit, refit: Callable[..., LawFit]) -> DualityCheck:
+def check_duality(track: Track, fit: LawFit, refit: Callable[..., LawFit] | None = None) -> DualityCheck:
     """Map ``track`` by the dual map of ``fit``'s law about its centre and refit the image.
 
     Parameters
@@ -70,11 +71,11 @@ def check_duality(track: Track, fit: LawFit, refit: Callable[..., LawFit]) -> Du
         The track that was fitted.
     fit : LawFit
         Its fit (any estimator); its exponent and centre define the map.
-    refit : callable
-        The estimator to fit the dual track with, e.g. `fit_orbit`.
+    refit : callable, optional
+        The estimator to fit the dual track with; default the one that made ``fit``.
     """
     dual = dual_track(track, fit.exponent, fit.centre)
-    fitted = refit(dual, centre=(0.0, 0.0))
+    fitted = (refit or ESTIMATORS[fit.method].function)(dual, centre=(0.0, 0.0))
     slope = 4.0 / (fit.exponent + 3.0) ** 2            # |dA/da|
     return DualityCheck(predicted_exponent=dual_exponent(fit.exponent),
                         predicted_exponent_stderr=slope * fit.exponent_stderr, fitted=fitted,

@@ -1,7 +1,7 @@
 """Grading many runs against an expected law: in parallel, resumable, never stopped by one bad run.
 
-Each run is loaded and fitted on its own (the orbit method with timestamps, the shape
-method without) in a worker process — local processes, or a dask.distributed cluster —
+Each run is loaded and fitted on its own (by the estimator `forcefit.estimators.fit` picks
+for it) in a worker process — local processes, or a dask.distributed cluster —
 and graded: it passes when its exponent lies within the tolerance of the expected one, its
 strength (when one is expected) within its relative tolerance, it covers enough of the
 orbit, and the fit passed its own checks. Every failure says why. The results table is
@@ -89,8 +89,7 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
     dict
         One row of the results table.
     """
-    from ..estimators import fit_orbit, fit_shape
-    from ..estimators.result import OrbitFit
+    from ..estimators import OrbitFit, registry
     from ..outputs.report import Verdict, write_report
     from ..reading.loaders import load_tracks
 
@@ -102,7 +101,7 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
             return _row(path, name, reason=f"load error: the file holds {len(tracks)} tracks; grade "
                                            "one run per file.")
         track = tracks[0]
-        fit = fit_orbit(track) if track.has_times else fit_shape(track)
+        fit = registry.fit(track)
     except NotIdentifiable as exc:
         return _row(path, name, reason=f"not identifiable: {exc}")
     except InputError as exc:

@@ -9,7 +9,7 @@ from typing import Any
 
 from ..analysis.duality_check import predicted_dual_strength
 from ..dynamics.duality import dual_exponent, dual_track
-from ..estimators import LawFit, fit_orbit, fit_shape
+from ..estimators import registry
 from ..reading.loaders import save_track
 from ._common import EXIT_OK, FORMATTER, pair, read_tracks
 
@@ -25,11 +25,9 @@ def _cmd_dual(args: argparse.Namespace) -> int:
     for track in tracks:
         exponent, centre, strength = args.exponent, args.centre, math.nan
         if exponent is None or centre is None:
-            fit: LawFit
-            if track.has_times:
-                fit = fit_orbit(track, centre=centre, exponent=exponent)
-            else:
-                fit = fit_shape(track, centre=centre)
+            method = registry.choose_method(track)
+            held = {"exponent": exponent} if method == "orbit" else {}     # only the orbit fit holds n
+            fit = registry.fit(track, method, centre=centre, **held)
             exponent = fit.exponent if exponent is None else exponent
             centre = fit.centre if centre is None else centre
             strength = predicted_dual_strength(fit)

@@ -5,22 +5,14 @@ from __future__ import annotations
 import argparse
 import json
 import math
-from collections.abc import Callable
 from typing import Any, Literal
 
 from .._json import json_safe
 from ..analysis.duality_check import check_duality
 from ..dynamics.laws import EARTH_ROTATION_RATE
 from ..errors import InputError
-from ..estimators import (
-    fit_acceleration,
-    fit_curvature,
-    fit_orbit,
-    fit_shape,
-    force_profile,
-)
+from ..estimators import ESTIMATORS, fit_orbit, force_profile, registry
 from ..estimators.result import LawFit, OrbitFit
-from ..geometry.path import describe_path
 from ..inference.comparison import compare_laws
 from ..outputs.report import write_report
 from ..track import Track
@@ -37,10 +29,6 @@ examples:
   forcefit fit comet.csv --centre 0,0 --json    # the Sun at the origin
 """
 
-ESTIMATORS: dict[str, Callable[..., LawFit]] = {
-    "orbit": fit_orbit, "shape": fit_shape, "curvature": fit_curvature,
-    "acceleration": fit_acceleration,
-}
 ORBIT_ONLY = ("fix_exponent", "drag", "compare", "rotation_rate", "latitude")
 
 
@@ -56,15 +44,14 @@ def _rotation(args: argparse.Namespace, track: Track) -> float | Literal["fit"] 
 
 def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
     """Fit one track with the method and options of the command line."""
-    method = args.method or ("orbit" if track.has_times else "shape")
+    method = registry.choose_method(track, args.method or "auto")
     if method != "orbit":
         given = [f"--{name.replace('_', '-')}" for name in ORBIT_ONLY if getattr(args, name)]
         if given or args.fit_rotation or args.robust:
             raise InputError(f"{', '.join(given or ['--robust'])} applies to the orbit method only; "
                              "drop it or use --method orbit.")
-        path = describe_path(track, centre=args.centre, smoothing=args.smoothing)
-        return ESTIMATORS[method](track, centre=args.centre, path=path)
-    return fit_orbit(track, **orbit_options(args, track))
+        return registry.fit(track, method, centre=args.centre, smoothing=args.smoothing)
+    return registry.fit(track, method, **orbit_options(args, track))
 
 
 def orbit_options(args: argparse.Namespace, track: Track) -> dict[str, Any]:
@@ -93,8 +80,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
                                       rotation_rate=_rotation(args, track))
         duality = None
         if args.check_duality:
-            method = args.method or ("orbit" if track.has_times else "shape")
-            duality = check_duality(track, fit, ESTIMATORS[method])
+            duality = check_duality(track, fit)
         if not fit.passed or (duality is not None and not duality.passed):
             status = EXIT_FAILED_CHECKS
         page = write_report(fit, args.report, track=track) if args.report else None

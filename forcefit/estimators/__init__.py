@@ -5,6 +5,7 @@ from .acceleration import fit_acceleration
 from .curvature import fit_curvature
 from .orbit import fit_orbit
 from .profile import ForceProfile, force_profile
+from .registry import ESTIMATORS, Estimator, choose_method, fit
 from .result import (
     AccelerationFit,
     CurvatureFit,
@@ -17,14 +18,18 @@ from .result import (
 from .shape import fit_shape
 
 __all__ = [
+    "ESTIMATORS",
     "AccelerationFit",
     "CurvatureFit",
     "CurvaturePoints",
     "Diagnostic",
+    "Estimator",
     "ForceProfile",
     "LawFit",
     "OrbitFit",
     "ShapeFit",
+    "choose_method",
+    "fit",
     "fit_acceleration",
     "fit_curvature",
     "fit_orbit",

@@ -1,0 +1,174 @@
+"""The estimator registry: `fit` and its auto rule, and one contract that every registered
+estimator keeps, orbit included (in the spirit of scikit-learn's estimator checks, common
+practice): the result's type, every field filled with the right type and shape, units, the
+truth of a simulated orbit within a few stated standard errors, and nan with a reason for what
+cannot be computed."""
+
+import json
+import math
+from dataclasses import FrozenInstanceError, fields
+
+import numpy as np
+import pytest
+
+from forcefit._types import Row
+from forcefit.errors import InputError, NotIdentifiable
+from forcefit.estimators import ESTIMATORS, LawFit, choose_method, fit
+from forcefit.estimators.result import CurvaturePoints, Diagnostic
+
+# The contract track: n = -1.5, k = 1 about the centre (0.25, -0.15) m, three circular periods,
+# noise 0.2% of the orbit's size (tests/conftest.py).
+EXPONENT, STRENGTH, CENTRE = -1.5, 1.0, (0.25, -0.15)
+WITHIN = 4.0
+"""Truth within this many stated standard errors (common practice: a 4-sigma miss happens once
+in about 16 000 honest fits)."""
+
+
+@pytest.fixture(scope="module")
+def track(noisy_orbit):
+    return noisy_orbit(EXPONENT, rng=5)
+
+
+@pytest.fixture(scope="module", params=sorted(ESTIMATORS))
+def fitted(request, track):
+    name = request.param
+    return name, ESTIMATORS[name], ESTIMATORS[name].function(track)
+
+
+def test_the_result_is_the_registered_type(fitted, track):
+    name, entry, result = fitted
+    assert type(result) is entry.result_type and type(result) is not LawFit
+    assert result.method == name and result.track_name == track.name
+    assert isinstance(entry.description, str) and entry.description
+
+
+def test_every_number_is_a_finite_float_of_the_right_sign(fitted, track):
+    _, _, result = fitted
+    for item in fields(LawFit):
+        value = getattr(result, item.name)
+        if item.type in ("float", float):
+            assert isinstance(value, float) and math.isfinite(value), item.name
+    for name in ("exponent_stderr", "strength_stderr", "strength_per_h2_stderr", "reduced_chi2",
+                 "reference_radius", "force_at_reference", "force_at_reference_stderr", "strength"):
+        assert getattr(result, name) > 0, name
+    assert isinstance(result.n_points, int) and 500 < result.n_points <= track.n_points
+    assert all(isinstance(v, float) and math.isfinite(v) for v in (*result.centre, *result.centre_stderr))
+
+
+def test_covariance_matches_the_parameter_names(fitted):
+    _, _, result = fitted
+    names = result.parameter_names
+    assert isinstance(names, tuple) and names[0] == "exponent" and len(set(names)) == len(names)
+    covariance = result.covariance
+    assert covariance.shape == (len(names), len(names)) and covariance.dtype == np.float64
+    assert np.all(np.isfinite(covariance)) and np.all(np.diag(covariance) > 0)
+    np.testing.assert_allclose(covariance, covariance.T, rtol=1e-10, atol=0)
+    assert math.sqrt(covariance[0, 0]) == pytest.approx(result.exponent_stderr, rel=1e-9)
+    assert -1.0 <= result.correlation("exponent", names[1]) <= 1.0
+
+
+def test_residuals_are_one_per_value_used(fitted):
+    _, _, result = fitted
+    residuals = result.residuals
+    assert residuals.ndim == 1 and np.all(np.isfinite(residuals))
+    assert residuals.size in (result.n_points, 2 * result.n_points)
+
+
+def test_units_are_the_tracks(fitted):
+    _, _, result = fitted
+    assert result.length_unit == "m" and result.time_unit == "s"
+    assert result.strength_unit == "m^2.5 s^-2"             # length^(1 - n) time^-2 at n = -1.5
+
+
+def test_truth_within_the_stated_errors(fitted):
+    _, _, result = fitted
+    assert abs(result.exponent - EXPONENT) < WITHIN * result.exponent_stderr
+    assert abs(result.strength - STRENGTH) < WITHIN * result.strength_stderr
+    for value, error, truth in zip(result.centre, result.centre_stderr, CENTRE):
+        assert abs(value - truth) < WITHIN * error + 1e-9
+
+
+def test_the_derived_numbers_agree_with_each_other(fitted):
+    _, _, result = fitted
+    # F(r_ref) = k r_ref^n and k / h^2 from the same h (definitions, common practice)
+    assert result.force_at_reference == pytest.approx(
+        result.strength * result.reference_radius**result.exponent, rel=1e-9)
+    assert result.strength_per_h2 * result.angular_momentum**2 == pytest.approx(result.strength, rel=1e-9)
+    k, error = result.strength_at_exponent(result.exponent)
+    assert k == pytest.approx(result.strength, rel=1e-9) and error > 0
+
+
+def test_the_checks_say_something(fitted):
+    _, _, result = fitted
+    assert result.diagnostics and all(isinstance(check, Diagnostic) for check in result.diagnostics.values())
+    assert all(check.passed in (True, False, None) and check.message for check in result.diagnostics.values())
+    assert isinstance(result.passed, bool)
+    with pytest.raises(TypeError):
+        result.diagnostics["mine"] = Diagnostic(True, "")          # a read-only view
+
+
+def test_the_relation_points_follow_the_law(fitted):
+    _, _, result = fitted
+    points = result.relation
+    assert isinstance(points, CurvaturePoints) and not points.per_h2
+    assert points.log_radius.shape == points.log_force.shape and points.log_radius.size > 100
+    assert np.all(np.isfinite(points.log_radius)) and np.all(np.isfinite(points.log_force))
+    # ln F = ln F(r_ref) + n (ln r - ln r_ref) on a power law: the points scatter about that line
+    reference = np.log(result.reference_radius)
+    line = np.log(result.force_at_reference) + EXPONENT * (points.log_radius - reference)
+    assert abs(float(np.median(points.log_force - line))) < 0.05
+
+
+def test_results_are_immutable(fitted):
+    _, _, result = fitted
+    with pytest.raises(FrozenInstanceError):
+        result.exponent = 0.0
+    for array in (result.covariance, result.residuals, result.relation.log_radius):
+        assert not array.flags.writeable
+
+
+def test_rows_text_and_dict_show_the_same_fit(fitted):
+    name, _, result = fitted
+    rows = result.rows()
+    assert rows and all(isinstance(row, Row) for row in rows)
+    brief = [row for row in rows if row.brief]
+    width = max(len(row.label) for row in brief)
+    lines = result.to_text().splitlines()
+    assert lines[1:1 + len(brief)] == [f"  {row.label:<{width}}  {row.text}" for row in brief]
+    assert len(brief) < len(rows)                            # the report page shows more
+    report = json.loads(json.dumps(result.to_dict()))
+    assert report["method"] == name and report["exponent"] == result.exponent
+    assert report["parameter_names"] == list(result.parameter_names)
+    assert isinstance(report["details"], dict) and report["details"]
+
+
+@pytest.mark.parametrize("name", sorted(ESTIMATORS))
+def test_without_timestamps_strength_is_nan_with_the_reason(name, track):
+    entry = ESTIMATORS[name]
+    shape_only = track.shape_only()
+    if entry.needs_times:
+        with pytest.raises(NotIdentifiable, match="needs timestamps"):
+            entry.function(shape_only)
+        return
+    result = entry.function(shape_only)
+    assert result.time_unit is None and result.relation.per_h2
+    assert math.isnan(result.strength) and math.isnan(result.strength_stderr)
+    assert math.isnan(result.force_at_reference)
+    assert abs(result.exponent - EXPONENT) < WITHIN * result.exponent_stderr
+    assert "not determined (no timestamps)" in result.to_text()
+    assert result.diagnostics["angular momentum"].message == "not checked (no timestamps)."
+
+
+def test_auto_is_the_orbit_fit_with_timestamps_and_the_shape_fit_without(track):
+    assert choose_method(track) == "orbit" and choose_method(track.shape_only()) == "shape"
+    assert choose_method(track, "curvature") == "curvature"
+    with pytest.raises(InputError, match='unknown method "magic"'):
+        fit(track, method="magic")
+
+
+def test_fit_dispatches_with_the_options():
+    from forcefit.dynamics.simulate import simulate_orbit
+
+    track = simulate_orbit(exponent=1.0, noise=1e-3, rng=2).shape_only()
+    assert fit(track, centre=(0.0, 0.0)).method == "shape"
+    assert fit(track, method="curvature", centre=(0.0, 0.0)).centre == (0.0, 0.0)
