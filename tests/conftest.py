@@ -72,3 +72,9 @@ def _noisy_orbit(exponent: float, rng: int, n_points: int = 1000):
 def noisy_orbit():
     """`_noisy_orbit`: a noisy simulated orbit with a known law and centre."""
     return _noisy_orbit
+
+
+@pytest.fixture(scope="session")
+def screened():
+    """`screened_track`: a noisy orbit in a force no power law describes."""
+    return screened_track

@@ -9,7 +9,7 @@ so a measured precession is a measured exponent.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -17,7 +17,7 @@ from scipy.signal import find_peaks
 
 from .._json import json_safe
 from .._regression import fit_line
-from .._types import FloatArray
+from .._types import FloatArray, Row
 from ..dynamics.laws import exponent_from_apsidal_angle
 from ..errors import NotIdentifiable
 from ..geometry.path import PathGeometry, describe_path
@@ -72,7 +72,6 @@ class Apsides:
     exponent_near_circular: float
     length_unit: str
     time_unit: str | None
-    extras: dict[str, Any] = field(default_factory=dict)
 
     @property
     def pericentres(self) -> tuple[Apse, ...]:
@@ -81,6 +80,34 @@ class Apsides:
     @property
     def apocentres(self) -> tuple[Apse, ...]:
         return tuple(apse for apse in self.apses if apse.kind == "apocentre")
+
+    def apse_turns(self) -> tuple[FloatArray, FloatArray]:
+        """Each apse's number along the track and how far it has turned (rad, in the sense of
+        the motion) from where a closed orbit would put it."""
+        angles = np.array([apse.angle for apse in self.apses])
+        count = np.round((angles - angles[0]) / np.median(np.diff(angles)))
+        return count, angles - count * np.pi / self.closure - angles[0]
+
+    def rows(self) -> list[Row]:
+        """The summary as rows with units: apsidal angle, precession, radius ratio, exponent."""
+        rows = [
+            Row("apses found", str(len(self.apses)), brief=False),
+            Row("apsidal angle", f"{math.degrees(self.apsidal_angle):.5f} ± "
+                                 f"{math.degrees(self.apsidal_angle_stderr):.2g}",
+                f"deg (closed orbit: {180 / self.closure:g} deg)"),
+            Row("precession", f"{math.degrees(self.precession_per_revolution):+.5g} ± "
+                              f"{math.degrees(self.precession_per_revolution_stderr):.2g}",
+                "deg per revolution, in the sense of the motion"),
+        ]
+        if math.isfinite(self.precession_rate):
+            rows.append(Row("", f"{self.precession_rate:+.4g} ± {self.precession_rate_stderr:.2g}",
+                            f"rad/{self.time_unit or ''}"))
+        rows += [
+            Row("r_max / r_min", f"{self.radius_ratio:.6g}"),
+            Row("exponent", f"{self.exponent:.6g} ± {self.exponent_stderr:.2g}",
+                f"(exact apsidal integral); near-circular formula gives {self.exponent_near_circular:.6g}"),
+        ]
+        return rows
 
     def to_text(self) -> str:
         """The apses and the summary, with units."""
@@ -91,22 +118,7 @@ class Apsides:
             lines.append(f"  {apse.kind:<11} {math.degrees(apse.angle):>10.4f} ± "
                          f"{math.degrees(apse.angle_stderr):<6.2g} {apse.radius:>14.6g} ± "
                          f"{apse.radius_stderr:<7.2g} {apse.time:>12.6g} ± {apse.time_stderr:.2g}")
-        lines += [
-            f"  apsidal angle      {math.degrees(self.apsidal_angle):.5f} ± "
-            f"{math.degrees(self.apsidal_angle_stderr):.2g} deg (closed orbit: "
-            f"{180 / self.closure:g} deg)",
-            f"  precession         {math.degrees(self.precession_per_revolution):+.5g} ± "
-            f"{math.degrees(self.precession_per_revolution_stderr):.2g} deg per revolution, in the "
-            "sense of the motion",
-        ]
-        if math.isfinite(self.precession_rate):
-            lines.append(f"                     {self.precession_rate:+.4g} ± "
-                         f"{self.precession_rate_stderr:.2g} rad/{time}")
-        lines += [
-            f"  r_max / r_min      {self.radius_ratio:.6g}",
-            f"  exponent           {self.exponent:.6g} ± {self.exponent_stderr:.2g} (exact apsidal "
-            f"integral); near-circular formula gives {self.exponent_near_circular:.6g}",
-        ]
+        lines += [f"  {row.label:<18} {row.text}" for row in self.rows() if row.brief]
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:
@@ -121,7 +133,7 @@ class Apsides:
             "precession_rate_unit": f"rad/{self.time_unit}" if self.time_unit else None,
             "radius_ratio": self.radius_ratio, "exponent": self.exponent,
             "exponent_stderr": self.exponent_stderr, "exponent_near_circular": self.exponent_near_circular,
-            "length_unit": self.length_unit, **self.extras,
+            "length_unit": self.length_unit,
         })
 
 

@@ -10,10 +10,12 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from .._json import json_safe
 from .._regression import autocorrelation_time
 from ..errors import NotIdentifiable
 from ..geometry.curves import attractive_points, curvature_relation
@@ -57,6 +59,10 @@ class ForceProfile:
         columns = [f"r [{self.length_unit}]", "n_points", f"{label} [{self.force_unit}]",
                    "± (1 sd)", "local n", "± (n)", f"at r [{self.length_unit}]"]
         return frame[columns].to_string(index=False, float_format=lambda v: f"{v:.5g}")
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-safe form: one list per column of ``table`` (nan as None)."""
+        return json_safe(self.table.to_dict("list"))
 
 
 def force_profile(

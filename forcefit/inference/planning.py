@@ -17,6 +17,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from .._json import json_safe
+from .._types import Row
 from ..dynamics.orbit_model import OrbitModel
 from ..dynamics.propagate import propagate_reference
 from ..dynamics.simulate import simulate_orbit
@@ -53,16 +54,21 @@ class Forecast:
     length_unit: str
     time_unit: str
 
+    def rows(self) -> list[Row]:
+        """The forecast standard errors as text, with units."""
+        rows = [Row("exponent n", f"± {self.exponent_stderr:.3g}"),
+                Row("strength k", f"± {100 * self.strength_relative_stderr:.3g}%")]
+        for name in ("centre_x", "centre_y"):
+            if name in self.standard_errors:
+                rows.append(Row(name.replace("_", " "), f"± {self.standard_errors[name]:.3g}",
+                                self.length_unit))
+        return rows
+
     def to_text(self) -> str:
         """The forecast with units."""
         lines = [f"  plan: {self.n_points} samples over {self.duration:.6g} {self.time_unit} "
-                 f"({self.rate:.6g} per {self.time_unit}), noise {self.noise:.3g} {self.length_unit}",
-                 f"  exponent n        ± {self.exponent_stderr:.3g}",
-                 f"  strength k        ± {100 * self.strength_relative_stderr:.3g}%"]
-        for name in ("centre_x", "centre_y"):
-            if name in self.standard_errors:
-                lines.append(f"  {name.replace('_', ' '):<17} ± {self.standard_errors[name]:.3g} "
-                             f"{self.length_unit}")
+                 f"({self.rate:.6g} per {self.time_unit}), noise {self.noise:.3g} {self.length_unit}"]
+        lines += [f"  {row.label:<17} {row.text}" for row in self.rows()]
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:

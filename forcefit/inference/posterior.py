@@ -59,6 +59,17 @@ DEFAULT_BOUNDS: Mapping[str, tuple[float, float]] = {
 
 
 @dataclass(frozen=True)
+class IntervalRow:
+    """One parameter of a posterior as text: its median, 68% and 95% intervals, and unit."""
+
+    name: str
+    median: str
+    interval_68: str
+    interval_95: str
+    unit: str
+
+
+@dataclass(frozen=True)
 class Posterior:
     """Samples of the orbit parameters' posterior, with their convergence record.
 
@@ -115,18 +126,31 @@ class Posterior:
         names = list(self.autocorr_time)
         return arviz.from_emcee(self.sampler, var_names=names).sel(draw=slice(self.burn_in, None, self.thin))
 
+    def rows(self) -> list[IntervalRow]:
+        """Median, 68% and 95% intervals of each column, as text, with units."""
+        rows = []
+        for name in self.samples:
+            low68, high68 = self.interval(name, 0.68)
+            low95, high95 = self.interval(name, 0.95)
+            rows.append(IntervalRow(name=name, median=f"{float(np.median(self.samples[name])):.7g}",
+                                    interval_68=f"[{low68:.7g}, {high68:.7g}]",
+                                    interval_95=f"[{low95:.7g}, {high95:.7g}]",
+                                    unit=self.units.get(name, "")))
+        return rows
+
+    @property
+    def verdict(self) -> str:
+        """"converged" or "NOT CONVERGED"."""
+        return "converged" if self.converged else "NOT CONVERGED"
+
     def to_text(self) -> str:
         """Median, 68% and 95% intervals of each column, with units, and the convergence verdict."""
         lines = [f"posterior: {self.n_walkers} walkers x {self.n_steps} steps, burn-in {self.burn_in}, "
                  f"thinned by {self.thin}: {len(self.samples)} samples",
-                 f"{'converged' if self.converged else 'NOT CONVERGED'}: {self.reason}",
+                 f"{self.verdict}: {self.reason}",
                  f"  {'parameter':<16} {'median':>14} {'68% interval':>32} {'95% interval':>32}  unit"]
-        for name in self.samples:
-            median = float(np.median(self.samples[name]))
-            low68, high68 = self.interval(name, 0.68)
-            low95, high95 = self.interval(name, 0.95)
-            lines.append(f"  {name:<16} {median:>14.7g} {f'[{low68:.7g}, {high68:.7g}]':>32} "
-                         f"{f'[{low95:.7g}, {high95:.7g}]':>32}  {self.units.get(name, '')}")
+        lines += [f"  {row.name:<16} {row.median:>14} {row.interval_68:>32} {row.interval_95:>32}  {row.unit}"
+                  for row in self.rows()]
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:

@@ -1,34 +1,29 @@
 """Figures people would rather look at than read: path and orbit, residuals, the
 force-curvature relation, apsides, the posterior's corner and trace plots, a class histogram.
 
-Pure plotting: each function takes a result and returns a matplotlib Figure; `save_figure`
-writes one whole or not at all. The palette is colour-blind safe (Okabe & Ito 2008,
-"Color universal design").
+Pure plotting: each function draws what a result holds (it computes nothing of its own) and
+returns a matplotlib `Figure`, made directly rather than through pyplot, so that importing
+forcefit never chooses or changes anyone's matplotlib backend; `save_figure` writes one whole
+or not at all. The palette is colour-blind safe (Okabe & Ito 2008, "Color universal design").
 """
 
 from __future__ import annotations
 
 import io
 import os
+from collections.abc import Sequence
 from pathlib import Path
 
-import matplotlib
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
+from matplotlib.patches import Ellipse
 
-matplotlib.use("Agg")
-
-from collections.abc import Sequence  # noqa: E402
-
-import matplotlib.patches  # noqa: E402
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-
-from .._atomic import write_atomic  # noqa: E402
-from .._types import FloatArray  # noqa: E402
-from ..analysis.apsides import Apsides  # noqa: E402
-from ..estimators.result import LawFit, OrbitFit  # noqa: E402
-from ..inference.posterior import Posterior  # noqa: E402
-from ..track import Track  # noqa: E402
+from .._atomic import write_atomic
+from ..analysis.apsides import Apsides
+from ..estimators.result import LawFit, OrbitFit
+from ..inference.posterior import Posterior
+from ..track import Track
 
 PALETTE = {"ink": "#1b2631", "data": "#0072B2", "model": "#D55E00", "accent": "#009E73",
            "muted": "#999999", "band": "#E69F00"}
@@ -59,7 +54,9 @@ def corner_figure(posterior: Posterior, names: list[str] | None = None) -> Figur
     names = names or [name for name in ("exponent", "strength", "centre_x", "centre_y", "drag",
                                         "rotation_rate", "noise_scale") if name in posterior.samples]
     values = posterior.samples[names].to_numpy()
-    figure = corner.corner(values, labels=[_label(posterior, n) for n in names],
+    side = 1.0 + 2.0 * len(names) + 0.1 * (len(names) - 1) + 0.4      # corner's own panel layout
+    figure = corner.corner(values, fig=Figure(figsize=(side, side)),
+                           labels=[_label(posterior, n) for n in names],
                            quantiles=[0.16, 0.5, 0.84], show_titles=True, title_fmt=".4g",
                            color=PALETTE["data"], hist_kwargs={"color": PALETTE["data"]},
                            label_kwargs={"fontsize": 9}, title_kwargs={"fontsize": 8})
@@ -73,8 +70,8 @@ def trace_figure(posterior: Posterior, names: list[str] | None = None, walkers: 
                       if name in posterior.autocorr_time]
     chain = posterior.sampler.get_chain()
     columns = list(posterior.autocorr_time)
-    figure, axes = plt.subplots(len(names), 1, figsize=(7.5, 1.7 * len(names) + 0.6), sharex=True,
-                                squeeze=False)
+    figure = Figure(figsize=(7.5, 1.7 * len(names) + 0.6))
+    axes = figure.subplots(len(names), 1, sharex=True, squeeze=False)
     steps = np.arange(chain.shape[0])
     for axis, name in zip(axes[:, 0], names):
         index = columns.index(name)
@@ -90,11 +87,11 @@ def trace_figure(posterior: Posterior, names: list[str] | None = None, walkers: 
 
 
 def save_figure(figure: Figure, path: str | os.PathLike[str], *, dpi: int = 120) -> Path:
-    """Write a figure as PNG, whole or not at all, and close it."""
+    """Write a figure as PNG, whole or not at all."""
     return write_atomic(Path(path), figure_png(figure, dpi=dpi))
 
 
-def _style(axis: plt.Axes) -> None:
+def _style(axis: Axes) -> None:
     axis.tick_params(labelsize=8, colors=PALETTE["ink"])
     for side in ("top", "right"):
         axis.spines[side].set_visible(False)
@@ -104,20 +101,20 @@ def _style(axis: plt.Axes) -> None:
 
 def path_figure(track: Track, fit: LawFit) -> Figure:
     """The measured path, the fitted orbit over it (orbit fits) and the centre with its error."""
-    figure, axis = plt.subplots(figsize=(6.0, 5.2))
+    figure = Figure(figsize=(6.0, 5.2))
+    axis = figure.subplots()
     axis.plot(track.x, track.y, ".", color=PALETTE["data"], markersize=2.5, alpha=0.6,
               label="measured")
-    predicted = fitted_positions(fit)
-    if predicted is not None:
+    if isinstance(fit, OrbitFit) and np.all(np.isfinite(fit.fitted_positions)):
+        predicted = fit.fitted_positions
         axis.plot(predicted[:, 0], predicted[:, 1], "-", color=PALETTE["model"], linewidth=1.0,
                   label=f"fitted orbit, n = {fit.exponent:.4g}")
     cx, cy = fit.centre
     axis.plot([cx], [cy], "+", color=PALETTE["ink"], markersize=12, markeredgewidth=2, label="centre")
     sx, sy = fit.centre_stderr
     if np.isfinite(sx) and np.isfinite(sy) and sx > 0:
-        axis.add_patch(matplotlib.patches.Ellipse((cx, cy), 6 * sx, 6 * sy, fill=False,
-                                                  color=PALETTE["ink"], linestyle=":",
-                                                  label="centre ± 3 sd"))
+        axis.add_patch(Ellipse((cx, cy), 6 * sx, 6 * sy, fill=False, color=PALETTE["ink"], linestyle=":",
+                               label="centre ± 3 sd"))
     axis.set_aspect("equal", adjustable="datalim")
     axis.set_xlabel(f"x [{track.length_unit}]", fontsize=9)
     axis.set_ylabel(f"y [{track.length_unit}]", fontsize=9)
@@ -130,7 +127,8 @@ def path_figure(track: Track, fit: LawFit) -> Figure:
 def residual_figure(track: Track, fit: LawFit) -> Figure:
     """Normalised residuals against time (or sample number), with the ±3 band."""
     residuals = np.asarray(fit.residuals)
-    figure, axis = plt.subplots(figsize=(7.0, 2.8))
+    figure = Figure(figsize=(7.0, 2.8))
+    axis = figure.subplots()
     if fit.method == "orbit" and residuals.size == 2 * track.n_points and track.t is not None:
         pairs = residuals.reshape(-1, 2)
         axis.plot(track.t, pairs[:, 0], ".", markersize=2, color=PALETTE["data"], label="x")
@@ -149,32 +147,22 @@ def residual_figure(track: Track, fit: LawFit) -> Figure:
     return figure
 
 
-def relation_figure(track: Track, fit: LawFit) -> Figure:
-    """The force-curvature relation in log-log, with the fitted law's line."""
-    from ..geometry.curves import attractive_points, curvature_relation
-    from ..geometry.path import describe_path
-
-    path = describe_path(track, centre=fit.centre)
-    used = attractive_points(path.smoothing, path.curvature, path.curvature_stderr)
-    points = curvature_relation(path.smoothing, path.curvature, path.curvature_stderr,
-                                np.asarray(fit.centre), used)
-    y = points.log_force_per_h2
-    label = "ln(F / h^2)"
-    if track.has_times:
-        offset = path.position[used] - np.asarray(fit.centre)
-        velocity = path.velocity[used]
-        y = y + 2 * np.log(np.abs(offset[:, 0] * velocity[:, 1] - offset[:, 1] * velocity[:, 0]))
-        label = f"ln F [F in {track.length_unit} {track.time_unit}^-2]"
-    figure, axis = plt.subplots(figsize=(6.0, 4.0))
-    axis.plot(points.log_radius, y, ".", markersize=2.5, color=PALETTE["data"], alpha=0.6,
+def relation_figure(fit: LawFit) -> Figure:
+    """The force-curvature relation about the fitted centre in log-log, with the fitted law's line."""
+    points = fit.relation
+    length = fit.length_unit
+    label = "ln(F / h^2)" if points.per_h2 else f"ln F [F in {length} {fit.time_unit}^-2]"
+    figure = Figure(figsize=(6.0, 4.0))
+    axis = figure.subplots()
+    axis.plot(points.log_radius, points.log_force, ".", markersize=2.5, color=PALETTE["data"], alpha=0.6,
               label="from the curvature of the path")
     x = np.linspace(points.log_radius.min(), points.log_radius.max(), 50)
-    if track.has_times and np.isfinite(fit.force_at_reference):
+    if not points.per_h2 and np.isfinite(fit.force_at_reference):
         line = np.log(fit.force_at_reference) + fit.exponent * (x - np.log(fit.reference_radius))
     else:
         line = np.log(fit.strength_per_h2) + fit.exponent * x
     axis.plot(x, line, "-", color=PALETTE["model"], label=f"{fit.method} fit: slope n = {fit.exponent:.4g}")
-    axis.set_xlabel(f"ln r [r in {track.length_unit}]", fontsize=9)
+    axis.set_xlabel(f"ln r [r in {length}]", fontsize=9)
     axis.set_ylabel(label, fontsize=9)
     axis.legend(fontsize=8, frameon=False)
     _style(axis)
@@ -184,14 +172,14 @@ def relation_figure(track: Track, fit: LawFit) -> Figure:
 
 def apsides_figure(apsides: Apsides) -> Figure:
     """How far each apse has turned from a closed orbit's position, against time."""
-    angles = np.array([apse.angle for apse in apsides.apses])
-    count = np.round((angles - angles[0]) / np.median(np.diff(angles)))
-    drift = np.degrees(angles - count * np.pi / apsides.closure - angles[0])
+    count, turn = apsides.apse_turns()
+    drift = np.degrees(turn)
     errors = np.degrees([apse.angle_stderr for apse in apsides.apses])
     where = np.array([apse.time for apse in apsides.apses])
     use_time = bool(np.all(np.isfinite(where)))
     x = where if use_time else count
-    figure, axis = plt.subplots(figsize=(6.5, 3.0))
+    figure = Figure(figsize=(6.5, 3.0))
+    axis = figure.subplots()
     for kind, colour in (("pericentre", PALETTE["data"]), ("apocentre", PALETTE["band"])):
         chosen = np.array([apse.kind == kind for apse in apsides.apses])
         axis.errorbar(x[chosen], drift[chosen], yerr=errors[chosen], fmt="o", markersize=3,
@@ -207,7 +195,8 @@ def apsides_figure(apsides: Apsides) -> Figure:
 
 def grade_histogram(exponents: Sequence[float], expected: float, tolerance: float) -> Figure:
     """The class's fitted exponents against the tolerance band around the expected one."""
-    figure, axis = plt.subplots(figsize=(6.5, 3.0))
+    figure = Figure(figsize=(6.5, 3.0))
+    axis = figure.subplots()
     values = np.asarray([v for v in exponents if np.isfinite(v)])
     axis.axvspan(expected - tolerance, expected + tolerance, color=PALETTE["accent"], alpha=0.18,
                  label=f"pass: {expected:g} ± {tolerance:g}")
@@ -225,17 +214,8 @@ def grade_histogram(exponents: Sequence[float], expected: float, tolerance: floa
     return figure
 
 
-def fitted_positions(fit: LawFit) -> FloatArray | None:
-    """The orbit fit's predicted positions at the samples, all tracks stacked; None otherwise."""
-    if not isinstance(fit, OrbitFit):
-        return None
-    positions = fit.fitted_positions
-    return positions if np.all(np.isfinite(positions)) else None
-
-
 def figure_png(figure: Figure, *, dpi: int = 110) -> bytes:
-    """A figure as PNG bytes (and closed)."""
+    """A figure as PNG bytes."""
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight")
-    plt.close(figure)
     return buffer.getvalue()

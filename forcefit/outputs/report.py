@@ -18,7 +18,6 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 from jinja2 import Environment, PackageLoader, select_autoescape
 from matplotlib.figure import Figure
 
@@ -28,7 +27,7 @@ from ..analysis.apsides import Apsides
 from ..estimators.result import LawFit, OrbitFit
 from ..inference.posterior import Posterior
 from ..track import Track
-from ..units import format_measurement, strength_per_h2_unit
+from ..units import format_measurement
 from .figures import (
     apsides_figure,
     corner_figure,
@@ -68,75 +67,10 @@ class Verdict:
     reasons: tuple[str, ...] = ()
 
 
-def _quantities(fit: LawFit) -> list[dict[str, str]]:
-    length, time = fit.length_unit, fit.time_unit or ""
-    rows = [
-        ("exponent n", format_measurement(fit.exponent, fit.exponent_stderr), ""),
-        ("strength k", format_measurement(fit.strength, fit.strength_stderr), fit.strength_unit),
-        ("k / h²", format_measurement(fit.strength_per_h2, fit.strength_per_h2_stderr),
-         strength_per_h2_unit(length, fit.exponent)),
-        ("reference radius r_ref", format_measurement(fit.reference_radius), length),
-        ("force |F| at r_ref", format_measurement(fit.force_at_reference, fit.force_at_reference_stderr),
-         f"{length} {time}^-2"),
-        ("centre x", format_measurement(fit.centre[0], fit.centre_stderr[0]), length),
-        ("centre y", format_measurement(fit.centre[1], fit.centre_stderr[1]), length),
-        ("chi-square", f"{fit.chi2:.6g}", ""),
-        ("reduced chi-square", f"{fit.reduced_chi2:.4g}", ""),
-        ("points used", str(fit.n_points), ""),
-    ]
-    nominal = round(fit.exponent)
-    if math.isfinite(fit.force_at_reference) and abs(fit.exponent - nominal) > 1e-12:
-        value, error = fit.strength_at_exponent(nominal)
-        rows.insert(2, (f"k for n = {nominal} (same force at r_ref)", format_measurement(value, error),
-                        _unit_for(fit, nominal)))
-    if isinstance(fit, OrbitFit):
-        for name, unit, value, spread in (
-                ("drag", f"1/{time}", fit.drag, fit.drag_stderr),
-                ("rotation_rate", f"rad/{time}", fit.rotation_rate, fit.rotation_rate_stderr),
-                ("noise", length, fit.noise, math.nan)):
-            if math.isfinite(value):
-                text = format_measurement(value, spread if math.isfinite(spread) else None)
-                rows.append((name.replace("_", " "), text, unit))
-    return [{"label": a, "value": b, "unit": c} for a, b, c in rows]
-
-
-def _unit_for(fit: LawFit, exponent: float) -> str:
-    from ..units import strength_unit
-
-    return strength_unit(fit.length_unit, fit.time_unit or "T", exponent)
-
-
 def _diagnostics(fit: LawFit) -> list[dict[str, str]]:
     symbols = {True: ("✔", "pass"), False: ("✘", "fail"), None: ("·", "note")}
     return [{"symbol": symbols[check.passed][0], "mark": symbols[check.passed][1], "name": name,
              "message": check.message} for name, check in fit.diagnostics.items()]
-
-
-def _posterior_rows(posterior: Posterior) -> dict[str, Any]:
-    rows = []
-    for name in posterior.samples:
-        low68, high68 = posterior.interval(name, 0.68)
-        low95, high95 = posterior.interval(name, 0.95)
-        rows.append({"name": name, "median": f"{np.median(posterior.samples[name]):.7g}",
-                     "i68": f"[{low68:.7g}, {high68:.7g}]", "i95": f"[{low95:.7g}, {high95:.7g}]",
-                     "unit": posterior.units.get(name, "")})
-    return {"verdict": "converged" if posterior.converged else "NOT converged",
-            "reason": posterior.reason, "rows": rows}
-
-
-def _apsides_rows(apsides: Apsides) -> list[dict[str, str]]:
-    rows = [("apses found", str(len(apsides.apses))),
-            ("apsidal angle", f"{math.degrees(apsides.apsidal_angle):.5f} ± "
-                              f"{math.degrees(apsides.apsidal_angle_stderr):.2g} deg"),
-            ("precession per revolution",
-             f"{math.degrees(apsides.precession_per_revolution):+.4g} ± "
-             f"{math.degrees(apsides.precession_per_revolution_stderr):.2g} deg"),
-            ("r_max / r_min", f"{apsides.radius_ratio:.6g}"),
-            ("exponent from the apsidal angle", f"{apsides.exponent:.6g} ± {apsides.exponent_stderr:.2g}")]
-    if math.isfinite(apsides.precession_rate):
-        rows.insert(3, ("precession rate", f"{apsides.precession_rate:+.4g} ± "
-                                           f"{apsides.precession_rate_stderr:.2g} rad/{apsides.time_unit}"))
-    return [{"label": a, "value": b} for a, b in rows]
 
 
 def _track_of(fit: LawFit, track: Track | None) -> Track | None:
@@ -182,7 +116,7 @@ def write_report(
     if track is not None:
         makers += [("path", "path with the fitted orbit and the centre", lambda: path_figure(track, fit)),
                    ("residuals", "normalised residuals", lambda: residual_figure(track, fit)),
-                   ("relation", "force-curvature relation, log-log", lambda: relation_figure(track, fit))]
+                   ("relation", "force-curvature relation, log-log", lambda: relation_figure(fit))]
     if posterior is not None:
         makers += [("corner", "posterior: pairwise marginals", lambda: corner_figure(posterior)),
                    ("trace", "posterior: chains of a few walkers", lambda: trace_figure(posterior))]
@@ -206,9 +140,8 @@ def write_report(
         name=fit.track_name, method=fit.method, n_points=fit.n_points,
         source=track.metadata.get("source", "") if track is not None else "",
         verdict=verdict.label, verdict_class={True: "pass", False: "fail", None: "note"}[verdict.passed],
-        reasons=verdict.reasons, quantities=_quantities(fit), diagnostics=_diagnostics(fit),
-        posterior=_posterior_rows(posterior) if posterior is not None else None,
-        apsides=_apsides_rows(apsides) if apsides is not None else None, figures=figures,
+        reasons=verdict.reasons, quantities=fit.rows(), diagnostics=_diagnostics(fit),
+        posterior=posterior, apsides=apsides.rows() if apsides is not None else None, figures=figures,
         version=__version__, written=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
     )
     return write_atomic(folder / f"{slug}.html", html)

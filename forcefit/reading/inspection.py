@@ -9,7 +9,7 @@ from typing import Any
 import numpy as np
 
 from .._json import json_safe
-from .._types import FloatArray
+from .._types import FloatArray, Row
 from ..track import Track
 
 GAP_FACTOR = 1.5
@@ -50,10 +50,9 @@ class TrackSummary:
         """JSON-safe form (nan becomes None)."""
         return json_safe(asdict(self))
 
-    def to_text(self) -> str:
-        """A short, unit-labelled table for the terminal."""
+    def rows(self) -> list[Row]:
+        """The facts as labelled text with units."""
         length, time = self.length_unit, self.time_unit or ""
-        lines = [f"{self.name}  ({self.source})"]
         rows = [("points", f"{self.n_points}" + (f"  ({self.dropped_rows} rows dropped: "
                                                   "empty cells)" if self.dropped_rows else ""))]
         if self.time_unit is None:
@@ -83,8 +82,14 @@ class TrackSummary:
                                         f"{self.calibration['unit']} per raw unit"))
         rows.append(("columns", ", ".join(f"{role}: {header}" for role, header in
                                           self.columns.items()) or "given as arrays"))
-        width = max(len(label) for label, _ in rows)
-        lines += [f"  {label:<{width}}  {value}" for label, value in rows]
+        return [Row(label, value) for label, value in rows]
+
+    def to_text(self) -> str:
+        """A short, unit-labelled table for the terminal."""
+        rows = self.rows()
+        width = max(len(row.label) for row in rows)
+        lines = [f"{self.name}  ({self.source})"]
+        lines += [f"  {row.label:<{width}}  {row.text}" for row in rows]
         lines += [f"  warning: {text}" for text in self.warnings]
         return "\n".join(lines)
 

@@ -1,0 +1,80 @@
+"""Figures draw what the results hold, and importing them leaves matplotlib's backend alone."""
+
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+from matplotlib.figure import Figure
+
+from forcefit.analysis.apsides import measure_apsides
+from forcefit.dynamics.simulate import simulate_orbit
+from forcefit.estimators import fit_curvature, fit_orbit
+from forcefit.outputs.figures import (
+    apsides_figure,
+    figure_png,
+    grade_histogram,
+    path_figure,
+    relation_figure,
+    residual_figure,
+)
+
+
+@pytest.fixture(scope="module")
+def track():
+    return simulate_orbit(exponent=-1.5, noise=2e-3, rng=4, name="rosette")
+
+
+@pytest.fixture(scope="module")
+def orbit(track):
+    return fit_orbit(track)
+
+
+def test_importing_the_outputs_leaves_the_backend_alone():
+    code = ("import sys, matplotlib; before = matplotlib.rcParams._get_backend_or_none(); "
+            "import forcefit.outputs; "
+            "print('matplotlib.pyplot' in sys.modules, matplotlib.rcParams._get_backend_or_none() == before)")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert result.stdout.split() == ["False", "True"]
+
+
+def test_path_figure_draws_the_samples_and_the_fitted_orbit(track, orbit):
+    figure = path_figure(track, orbit)
+    assert isinstance(figure, Figure)
+    samples, fitted = figure.axes[0].lines[:2]
+    np.testing.assert_array_equal(samples.get_xdata(), track.x)
+    np.testing.assert_array_equal(fitted.get_ydata(), orbit.fitted_positions[:, 1])
+    assert "n = " in fitted.get_label()
+
+
+def test_relation_figure_draws_the_results_points(orbit, track):
+    for fit in (orbit, fit_curvature(track)):
+        figure = relation_figure(fit)
+        points = figure.axes[0].lines[0]
+        np.testing.assert_array_equal(points.get_xdata(), fit.relation.log_radius)
+        np.testing.assert_array_equal(points.get_ydata(), fit.relation.log_force)
+        line = figure.axes[0].lines[1]
+        slope = np.polyfit(line.get_xdata(), line.get_ydata(), 1)[0]
+        assert slope == pytest.approx(fit.exponent, rel=1e-9)        # the fitted law's line
+
+
+def test_residual_figure_plots_each_coordinate_against_time(track, orbit):
+    figure = residual_figure(track, orbit)
+    x, y = figure.axes[0].lines[:2]
+    np.testing.assert_array_equal(x.get_xdata(), track.t)
+    np.testing.assert_array_equal(y.get_ydata(), orbit.residuals.reshape(-1, 2)[:, 1])
+
+
+def test_apsides_figure_shows_every_apse():
+    apsides = measure_apsides(simulate_orbit(exponent=-1.5, duration=40.0, rate=50.0))
+    figure = apsides_figure(apsides)
+    drawn = sum(len(container.lines[0].get_xdata()) for container in figure.axes[0].containers)
+    assert drawn == len(apsides.apses)
+
+
+def test_histogram_counts_every_finite_exponent_and_png_bytes():
+    figure = grade_histogram([1.01, 0.99, 1.2, float("nan")], 1.0, 0.05)
+    bars = figure.axes[0].containers[0]
+    assert sum(bar.get_height() for bar in bars) == 3
+    # A PNG file starts with its eight-byte signature (W3C 2003, PNG specification, §5.2).
+    assert figure_png(figure).startswith(b"\x89PNG\r\n\x1a\n")
