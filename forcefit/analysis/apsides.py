@@ -18,10 +18,11 @@ from scipy.signal import find_peaks
 from .._json import json_safe
 from .._regression import fit_line
 from .._types import FloatArray, Row
-from ..dynamics.laws import exponent_from_apsidal_angle
-from ..errors import NotIdentifiable
+from ..dynamics.laws import exponent_from_apsidal_angle, lab_rotation_rate, pendulum_precession_rate
+from ..errors import InputError, NotIdentifiable
 from ..geometry.path import PathGeometry, describe_path
 from ..track import Track
+from ..units import length_factor, time_factor
 
 WINDOW = 0.3
 """Half-width of the local fit around an apse, as a fraction of the apsidal angle."""
@@ -274,3 +275,60 @@ def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
         exponent_stderr=abs(slope) * psi_se, exponent_near_circular=(math.pi / psi) ** 2 - 3.0,
         length_unit=track.length_unit, time_unit=track.time_unit if track.has_times else None,
     )
+
+
+def precession_budget(
+    apsides: Apsides,
+    *,
+    pendulum_length: float | None = None,
+    gravity: float = 9.81,
+    latitude: float | None = None,
+) -> dict[str, float]:
+    """The measured precession rate beside what a pendulum's finite amplitude and the Earth's
+    rotation explain, and the anomalous rest; all in rad/s, in the sense of the motion.
+
+    Parameters
+    ----------
+    apsides : Apsides
+        Of a timestamped track.
+    pendulum_length : float, optional
+        The pendulum's length (m): adds the finite-amplitude (Airy) rate (3/8) a b omega / L**2,
+        a and b from the mean apo- and pericentre distances (the track must be in lengths).
+    gravity : float
+        Local g (m/s**2).
+    latitude : float, optional
+        For a camera fixed in the laboratory (degrees): adds the Earth's share.
+
+    Returns
+    -------
+    dict
+        ``measured`` and ``measured_stderr``; ``finite_amplitude`` and ``earth_rotation`` when
+        asked for; ``expected`` (their sum), ``anomalous`` and ``anomalous_stderr``.
+    """
+    if apsides.time_unit is None:
+        raise InputError("the expected precession needs timestamps.")
+    per_second = 1.0 / time_factor(apsides.time_unit, "s")
+    measured = apsides.precession_rate * per_second
+    measured_se = apsides.precession_rate_stderr * per_second
+    result = {"measured": measured, "measured_stderr": measured_se}
+    expected = 0.0
+    if pendulum_length is not None:
+        try:
+            metre = length_factor(apsides.length_unit, "m")
+        except InputError as exc:
+            raise InputError(f"{exc} The pendulum's finite-amplitude precession needs lengths in "
+                             "metres: calibrate the pixels (--scale or --marks).") from None
+        semi_major = sum(a.radius for a in apsides.apocentres) / len(apsides.apocentres) * metre
+        semi_minor = sum(a.radius for a in apsides.pericentres) / len(apsides.pericentres) * metre
+        result["finite_amplitude"] = pendulum_precession_rate(semi_major, semi_minor, pendulum_length,
+                                                              gravity)
+        expected += result["finite_amplitude"]
+    if latitude is not None:
+        # The lab turns counter-clockwise (seen from above, north up) at Omega_E sin(latitude), so
+        # the pattern turns clockwise: against a counter-clockwise motion, with a clockwise one.
+        result["earth_rotation"] = -apsides.sense * lab_rotation_rate(latitude)
+        expected += result["earth_rotation"]
+    result["expected"] = expected
+    result["anomalous"] = measured - expected
+    result["anomalous_stderr"] = measured_se
+    return result

@@ -1,10 +1,15 @@
-"""What every forcefit command shares: value parsers, the reading options, exit codes."""
+"""What the forcefit commands share: value parsers, the reading options, the centre and orbit
+options, printing text or JSON, exit codes."""
 
 from __future__ import annotations
 
 import argparse
+import json
 import re
+from collections.abc import Mapping
+from typing import Any, Literal
 
+from ..dynamics.laws import lab_rotation_rate
 from ..dynamics.propagate import Drag
 from ..errors import InputError
 from ..reading.coordinates import Calibration
@@ -110,3 +115,65 @@ def loading_keywords(args: argparse.Namespace) -> dict[str, object]:
 def read_tracks(path: str, args: argparse.Namespace) -> list[Track]:
     """Load the tracks of one file with the reading and calibration options."""
     return load_tracks(path, **loading_keywords(args))  # type: ignore[arg-type]
+
+
+def emit(as_json: bool, report: Mapping[str, Any], text: str) -> None:
+    """Print one report as JSON, or its text."""
+    print(json.dumps(report, indent=2) if as_json else text)
+
+
+class Reports:
+    """What a command prints for each track: its text as soon as the track is done, or with
+    ``--json`` one JSON list of the reports at the end."""
+
+    def __init__(self, as_json: bool) -> None:
+        self.as_json = as_json
+        self.reports: list[Mapping[str, Any]] = []
+
+    def add(self, report: Mapping[str, Any], text: str) -> None:
+        """One track's report (JSON-safe) and its text."""
+        if self.as_json:
+            self.reports.append(report)
+        else:
+            print(text)
+
+    def close(self) -> None:
+        """Print the JSON list, when that is what was asked for."""
+        if self.as_json:
+            print(json.dumps(self.reports, indent=2))
+
+
+def add_centre_option(parser: argparse.ArgumentParser,
+                      help: str = "the force centre, if known (default: found from the data)") -> None:
+    """``--centre X,Y``."""
+    parser.add_argument("--centre", type=pair, metavar="X,Y", help=help)
+
+
+def add_orbit_options(parser: argparse.ArgumentParser) -> None:
+    """The options of the orbit method, shared by ``fit`` and ``sample``."""
+    orbit = parser.add_argument_group("the orbit method")
+    orbit.add_argument("--fix-exponent", type=float, metavar="N", help="hold n at N")
+    orbit.add_argument("--drag", choices=("linear", "quadratic"), help="fit a drag force too")
+    orbit.add_argument("--robust", action="store_true",
+                       help="robust loss: tracking glitches pull the fit less")
+    orbit.add_argument("--rotation-rate", type=float, metavar="RATE",
+                       help="the camera frame turns counter-clockwise at RATE rad per time unit")
+    orbit.add_argument("--latitude", type=float, metavar="DEG",
+                       help="camera fixed in a lab at this latitude: the Earth's rotation "
+                            "(x east, y north, seen from above)")
+    orbit.add_argument("--fit-rotation", action="store_true", help="fit the frame's rotation rate")
+
+
+def rotation_option(args: argparse.Namespace, track: Track) -> float | Literal["fit"] | None:
+    """The observer frame's rotation rate in rad per the track's time unit, or "fit"."""
+    if args.fit_rotation:
+        return "fit"
+    if args.latitude is not None:
+        return lab_rotation_rate(args.latitude, track.time_unit)
+    return args.rotation_rate
+
+
+def orbit_options(args: argparse.Namespace, track: Track) -> dict[str, Any]:
+    """The keyword arguments of `fit_orbit` the command line asked for."""
+    return {"exponent": args.fix_exponent, "drag": args.drag, "centre": args.centre,
+            "loss": "soft_l1" if args.robust else "linear", "rotation_rate": rotation_option(args, track)}

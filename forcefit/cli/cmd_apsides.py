@@ -3,16 +3,11 @@
 from __future__ import annotations
 
 import argparse
-import json
 import math
 from typing import Any
 
-from ..analysis.apsides import Apsides, measure_apsides
-from ..dynamics.laws import EARTH_ROTATION_RATE, pendulum_precession_rate
-from ..errors import InputError
-from ..track import Track
-from ..units import length_factor, time_factor
-from ._common import EXIT_OK, FORMATTER, pair, read_tracks
+from ..analysis.apsides import measure_apsides, precession_budget
+from ._common import EXIT_OK, FORMATTER, Reports, add_centre_option, read_tracks
 
 _EXAMPLES = """\
 examples:
@@ -22,64 +17,35 @@ examples:
 """
 
 
-def expected_precession(apsides: Apsides, track: Track, length: float | None, gravity: float,
-                        latitude: float | None) -> dict[str, float]:
-    """Precession rates (rad/s, in the sense of the motion) that finite amplitude and the
-    Earth's rotation explain, and the measured rate with the anomaly left over."""
-    if not track.has_times:
-        raise InputError("the expected precession needs timestamps.")
-    per_second = 1.0 / time_factor(track.time_unit, "s")
-    measured = apsides.precession_rate * per_second
-    measured_se = apsides.precession_rate_stderr * per_second
-    result = {"measured": measured, "measured_stderr": measured_se}
-    expected = 0.0
-    if length is not None:
-        try:
-            metre = length_factor(track.length_unit, "m")
-        except InputError as exc:
-            raise InputError(f"{exc} The pendulum's finite-amplitude precession needs lengths in "
-                             "metres: calibrate the pixels (--scale or --marks).") from None
-        semi_major = sum(a.radius for a in apsides.apocentres) / len(apsides.apocentres) * metre
-        semi_minor = sum(a.radius for a in apsides.pericentres) / len(apsides.pericentres) * metre
-        result["finite_amplitude"] = pendulum_precession_rate(semi_major, semi_minor, length, gravity)
-        expected += result["finite_amplitude"]
-    if latitude is not None:
-        # The lab turns counter-clockwise (seen from above, north up) at Omega_E sin(latitude), so
-        # the pattern turns clockwise: against a counter-clockwise motion, with a clockwise one.
-        result["earth_rotation"] = -apsides.sense * EARTH_ROTATION_RATE * math.sin(math.radians(latitude))
-        expected += result["earth_rotation"]
-    result["expected"] = expected
-    result["anomalous"] = measured - expected
-    result["anomalous_stderr"] = measured_se
-    return result
+_BUDGET = {"measured": "measured", "finite_amplitude": "finite amplitude (Airy)",
+           "earth_rotation": "Earth's rotation", "expected": "expected in all",
+           "anomalous": "anomalous (measured - expected)"}
+
+
+def _budget_lines(rates: dict[str, float]) -> list[str]:
+    lines = ["  precession rates in the sense of the motion, rad/s (deg/h):"]
+    for key, label in _BUDGET.items():
+        if key in rates:
+            error = rates.get(f"{key}_stderr")
+            spread = f" ± {error:.2g}" if error is not None else ""
+            lines.append(f"    {label:<32} {rates[key]:+.4e}{spread}   "
+                         f"({math.degrees(rates[key]) * 3600:+.3f} deg/h)")
+    return lines
 
 
 def _cmd_apsides(args: argparse.Namespace) -> int:
-    reports = []
+    reports = Reports(args.json)
     for track in read_tracks(args.file, args):
         apsides = measure_apsides(track, centre=args.centre)
         rates = None
         if args.pendulum_length is not None or args.latitude is not None:
-            rates = expected_precession(apsides, track, args.pendulum_length, args.gravity, args.latitude)
-        if args.json:
-            reports.append({"track": track.name, **apsides.to_dict(), "precession_rad_per_s": rates})
-            continue
-        print(f"{track.name} — apsides about ({apsides.centre[0]:.6g}, {apsides.centre[1]:.6g}) "
-              f"{track.length_unit}")
-        print(apsides.to_text())
-        if rates is not None:
-            print("  precession rates in the sense of the motion, rad/s (deg/h):")
-            labels = {"measured": "measured", "finite_amplitude": "finite amplitude (Airy)",
-                      "earth_rotation": "Earth's rotation", "expected": "expected in all",
-                      "anomalous": "anomalous (measured - expected)"}
-            for key, label in labels.items():
-                if key in rates:
-                    error = rates.get(f"{key}_stderr")
-                    spread = f" ± {error:.2g}" if error is not None else ""
-                    print(f"    {label:<32} {rates[key]:+.4e}{spread}   "
-                          f"({math.degrees(rates[key]) * 3600:+.3f} deg/h)")
-    if args.json:
-        print(json.dumps(reports, indent=2))
+            rates = precession_budget(apsides, pendulum_length=args.pendulum_length, gravity=args.gravity,
+                                      latitude=args.latitude)
+        lines = [f"{track.name} — apsides about ({apsides.centre[0]:.6g}, {apsides.centre[1]:.6g}) "
+                 f"{track.length_unit}", apsides.to_text()]
+        reports.add({"track": track.name, **apsides.to_dict(), "precession_rad_per_s": rates},
+                    "\n".join(lines + (_budget_lines(rates) if rates is not None else [])))
+    reports.close()
     return EXIT_OK
 
 
@@ -90,7 +56,7 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
         help="apsidal angle, precession and the exponent it implies",
         description="Locate the peri- and apocentres; measure the apsidal angle and precession.")
     parser.add_argument("file", metavar="FILE")
-    parser.add_argument("--centre", type=pair, metavar="X,Y", help="the force centre, if known")
+    add_centre_option(parser)
     pendulum = parser.add_argument_group("for a pendulum")
     pendulum.add_argument("--pendulum-length", type=float, metavar="L",
                           help="pendulum length in m: report the finite-amplitude (Airy) precession")

@@ -11,7 +11,7 @@ from ..analysis.duality_check import predicted_dual_strength
 from ..dynamics.duality import dual_exponent, dual_track
 from ..estimators import registry
 from ..reading.loaders import save_track
-from ._common import EXIT_OK, FORMATTER, pair, read_tracks
+from ._common import EXIT_OK, FORMATTER, add_centre_option, read_tracks
 
 _EXAMPLES = """\
 examples:
@@ -53,6 +53,6 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
         description="Map a track by the Kasner-Arnold duality, re-timed, and write the image.")
     parser.add_argument("file", metavar="FILE")
     parser.add_argument("--exponent", type=float, metavar="N", help="the track's exponent (default: fit)")
-    parser.add_argument("--centre", type=pair, metavar="X,Y", help="the force centre (default: fit)")
+    add_centre_option(parser, help="the force centre (default: fit)")
     parser.add_argument("--out", metavar="FILE", help="CSV to write the dual track to")
     parser.set_defaults(handler=_cmd_dual)

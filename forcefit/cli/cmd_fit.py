@@ -3,21 +3,26 @@
 from __future__ import annotations
 
 import argparse
-import json
 import math
-from typing import Any, Literal
+from typing import Any
 
-from .._json import json_safe
 from ..analysis.duality_check import check_duality
-from ..dynamics.laws import EARTH_ROTATION_RATE
 from ..errors import InputError
-from ..estimators import ESTIMATORS, fit_orbit, force_profile, registry
-from ..estimators.result import LawFit, OrbitFit
+from ..estimators import ESTIMATORS, LawFit, OrbitFit, fit_orbit, force_profile, registry
 from ..inference.comparison import compare_laws
 from ..outputs.report import write_report
 from ..track import Track
-from ..units import time_factor
-from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, pair, read_tracks
+from ._common import (
+    EXIT_FAILED_CHECKS,
+    EXIT_OK,
+    FORMATTER,
+    Reports,
+    add_centre_option,
+    add_orbit_options,
+    orbit_options,
+    read_tracks,
+    rotation_option,
+)
 
 _FIT_EXAMPLES = """\
 examples:
@@ -32,16 +37,6 @@ examples:
 ORBIT_ONLY = ("fix_exponent", "drag", "compare", "rotation_rate", "latitude")
 
 
-def _rotation(args: argparse.Namespace, track: Track) -> float | Literal["fit"] | None:
-    """The observer frame's rotation rate in rad per the track's time unit, or "fit"."""
-    if args.fit_rotation:
-        return "fit"
-    if args.latitude is not None:
-        per_second = EARTH_ROTATION_RATE * math.sin(math.radians(args.latitude))
-        return per_second * time_factor(track.time_unit, "s")
-    return args.rotation_rate
-
-
 def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
     """Fit one track with the method and options of the command line."""
     method = registry.choose_method(track, args.method or "auto")
@@ -54,69 +49,69 @@ def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
     return registry.fit(track, method, **orbit_options(args, track))
 
 
-def orbit_options(args: argparse.Namespace, track: Track) -> dict[str, Any]:
-    """The keyword arguments of `fit_orbit` the command line asked for."""
-    return {"exponent": args.fix_exponent, "drag": args.drag, "centre": args.centre,
-            "loss": "soft_l1" if args.robust else "linear", "rotation_rate": _rotation(args, track)}
+def _fitted_extras(fit: LawFit) -> list[str]:
+    """The orbit fit's drag and frame rotation, when fitted, a line each."""
+    if not isinstance(fit, OrbitFit):
+        return []
+    lines = []
+    for name, value, error in (("drag", fit.drag, fit.drag_stderr),
+                               ("rotation_rate", fit.rotation_rate, fit.rotation_rate_stderr)):
+        if math.isfinite(value):
+            per = fit.time_unit if name != "drag" or fit.model.drag == "linear" else fit.length_unit
+            unit = f"rad/{per}" if name == "rotation_rate" else f"1/{per}"
+            lines.append(f"  {name.replace('_', ' ')}: {value:.6g} ± {error:.2g} {unit}")
+    return lines
+
+
+def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, Any], str]:
+    """Fit one track with everything the command line asked for: whether it passed, its JSON
+    report and its text."""
+    fit = fit_track(track, args)
+    profile = force_profile(track, bins=args.profile, centre=fit.centre) if args.profile else None
+    comparison = None
+    if args.compare:
+        comparison = compare_laws(track, args.compare, drag=args.drag, centre=args.centre,
+                                  rotation_rate=rotation_option(args, track))
+    duality = check_duality(track, fit) if args.check_duality else None
+    passed = fit.passed and (duality is None or duality.passed)
+    page = write_report(fit, args.report, track=track) if args.report else None
+    report = fit.to_dict()
+    lines = [fit.to_text()]
+    if duality is not None:
+        report["duality"] = duality.to_dict()
+        lines.append("  " + duality.to_text())
+    lines += _fitted_extras(fit)
+    if page is not None:
+        report["report"] = str(page)
+    if profile is not None:
+        report["profile"] = profile.to_dict()
+        lines += [f"\nforce profile ({'F/h^2, no timestamps' if profile.force_is_per_h2 else 'F'}):",
+                  profile.to_text()]
+    if page is not None:
+        lines.append(f"  report: {page}")
+    if comparison is not None:
+        report["comparison"] = comparison.to_dict()
+        lines += ["\nlaws compared (a small p-value rejects the fixed law):", comparison.to_text()]
+    return passed, report, "\n".join(lines)
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
-    status, reports = EXIT_OK, []
+    status, reports = EXIT_OK, Reports(args.json)
     tracks = read_tracks(args.file, args)
     if args.joint:
         if len(tracks) < 2 or (args.method or "orbit") != "orbit":
             raise InputError("--joint fits several runs of one file (an id column) with the orbit "
                              f"method together; {args.file} holds {len(tracks)} track(s).")
-        options = orbit_options(args, tracks[0])
-        joint = fit_orbit(tracks, shared_centre=not args.separate_centres, **options)
-        print(json.dumps([joint.to_dict()], indent=2) if args.json else joint.to_text())
+        joint = fit_orbit(tracks, shared_centre=not args.separate_centres, **orbit_options(args, tracks[0]))
+        reports.add(joint.to_dict(), joint.to_text())
+        reports.close()
         return EXIT_OK if joint.passed else EXIT_FAILED_CHECKS
     for track in tracks:
-        fit = fit_track(track, args)
-        profile = force_profile(track, bins=args.profile, centre=fit.centre) if args.profile else None
-        comparison = None
-        if args.compare:
-            comparison = compare_laws(track, args.compare, drag=args.drag, centre=args.centre,
-                                      rotation_rate=_rotation(args, track))
-        duality = None
-        if args.check_duality:
-            duality = check_duality(track, fit)
-        if not fit.passed or (duality is not None and not duality.passed):
+        passed, report, text = _fit_one(track, args)
+        if not passed:
             status = EXIT_FAILED_CHECKS
-        page = write_report(fit, args.report, track=track) if args.report else None
-        if args.json:
-            report = fit.to_dict()
-            if duality is not None:
-                report["duality"] = duality.to_dict()
-            if page is not None:
-                report["report"] = str(page)
-            if profile is not None:
-                report["profile"] = json_safe(profile.table.to_dict("list"))
-            if comparison is not None:
-                report["comparison"] = json_safe(comparison.reset_index().to_dict("records"))
-            reports.append(report)
-            continue
-        print(fit.to_text())
-        if duality is not None:
-            print("  " + duality.to_text())
-        if isinstance(fit, OrbitFit):
-            for name, value, error in (("drag", fit.drag, fit.drag_stderr),
-                                       ("rotation_rate", fit.rotation_rate, fit.rotation_rate_stderr)):
-                if math.isfinite(value):
-                    per = fit.time_unit if name != "drag" or args.drag == "linear" else fit.length_unit
-                    unit = f"rad/{per}" if name == "rotation_rate" else f"1/{per}"
-                    print(f"  {name.replace('_', ' ')}: {value:.6g} ± {error:.2g} {unit}")
-        if profile is not None:
-            print(f"\nforce profile ({'F/h^2, no timestamps' if profile.force_is_per_h2 else 'F'}):")
-            print(profile.to_text())
-        if page is not None:
-            print(f"  report: {page}")
-        if comparison is not None:
-            print("\nlaws compared (a small p-value rejects the fixed law):")
-            columns = ["exponent", "chi2", "reduced_chi2", "aic", "bic", "delta_bic", "p_value"]
-            print(comparison[columns].to_string(float_format=lambda v: f"{v:.5g}"))
-    if args.json:
-        print(json.dumps(reports, indent=2))
+        reports.add(report, text)
+    reports.close()
     return status
 
 
@@ -125,21 +120,6 @@ def _exponents(text: str) -> tuple[float, ...]:
         return tuple(float(value) for value in text.split(","))
     except ValueError:
         raise argparse.ArgumentTypeError(f'expected exponents such as "1,-2", got "{text}"') from None
-
-
-def add_orbit_options(parser: argparse.ArgumentParser) -> None:
-    """The options of the orbit method, shared by ``fit`` and ``sample``."""
-    orbit = parser.add_argument_group("the orbit method")
-    orbit.add_argument("--fix-exponent", type=float, metavar="N", help="hold n at N")
-    orbit.add_argument("--drag", choices=("linear", "quadratic"), help="fit a drag force too")
-    orbit.add_argument("--robust", action="store_true",
-                       help="robust loss: tracking glitches pull the fit less")
-    orbit.add_argument("--rotation-rate", type=float, metavar="RATE",
-                       help="the camera frame turns counter-clockwise at RATE rad per time unit")
-    orbit.add_argument("--latitude", type=float, metavar="DEG",
-                       help="camera fixed in a lab at this latitude: the Earth's rotation "
-                            "(x east, y north, seen from above)")
-    orbit.add_argument("--fit-rotation", action="store_true", help="fit the frame's rotation rate")
 
 
 def register(commands: Any, loading: argparse.ArgumentParser) -> None:
@@ -151,8 +131,7 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     fit.add_argument("file", metavar="FILE")
     fit.add_argument("--method", choices=sorted(ESTIMATORS),
                      help="estimator (default: orbit with timestamps, shape without)")
-    fit.add_argument("--centre", type=pair, metavar="X,Y",
-                     help="the force centre, if known (default: found from the data)")
+    add_centre_option(fit)
     fit.add_argument("--json", action="store_true", help="print JSON instead of a table")
     fit.add_argument("--report", metavar="DIR", help="write an HTML report with figures into DIR")
     add_orbit_options(fit)

@@ -3,14 +3,13 @@
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 import warnings
 from typing import Any
 
 from ..errors import ForcefitError, ForcefitWarning
 from ..reading.inspection import inspect_track
-from ._common import EXIT_BAD_INPUT, EXIT_OK, FORMATTER, read_tracks
+from ._common import EXIT_BAD_INPUT, EXIT_OK, FORMATTER, Reports, read_tracks
 
 _INSPECT_EXAMPLES = """\
 examples:
@@ -20,8 +19,9 @@ examples:
   forcefit inspect frames.csv --frame-rate 240
 """
 
+
 def _cmd_inspect(args: argparse.Namespace) -> int:
-    status, reports = EXIT_OK, []
+    status, reports = EXIT_OK, Reports(args.json)
     for path in args.files:
         try:
             with warnings.catch_warnings():
@@ -31,12 +31,9 @@ def _cmd_inspect(args: argparse.Namespace) -> int:
             print(f"forcefit: {exc}", file=sys.stderr)
             status = EXIT_BAD_INPUT
             continue
-        reports += summaries
-        if not args.json:
-            for summary in summaries:
-                print(summary.to_text())
-    if args.json:
-        print(json.dumps([summary.to_dict() for summary in reports], indent=2))
+        for summary in summaries:
+            reports.add(summary.to_dict(), summary.to_text())
+    reports.close()
     return status
 
 

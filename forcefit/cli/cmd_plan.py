@@ -3,13 +3,11 @@
 from __future__ import annotations
 
 import argparse
-import json
-import math
 from typing import Any
 
 from ..errors import InputError
-from ..inference.planning import forecast_precision, required_duration, required_rate
-from ._common import EXIT_OK, FORMATTER, pair
+from ..inference.planning import forecast_precision, pendulum_law, required_duration, required_rate
+from ._common import EXIT_OK, FORMATTER, emit, pair
 
 _EXAMPLES = """\
 examples:
@@ -23,9 +21,7 @@ def _plan(args: argparse.Namespace) -> dict[str, Any]:
     if args.pendulum is not None:
         if args.semi_axes is None:
             raise InputError("--pendulum needs --semi-axes A,B (m): the ellipse the bob will trace.")
-        omega = math.sqrt(args.gravity / args.pendulum)
-        a, b = args.semi_axes
-        return {"exponent": 1.0, "strength": omega**2, "start": (a, 0.0), "velocity": (0.0, b * omega)}
+        return pendulum_law(args.pendulum, args.semi_axes, args.gravity)
     missing = [name for name in ("exponent", "strength", "start", "velocity")
                if getattr(args, name) is None]
     if missing:
@@ -42,15 +38,12 @@ def _cmd_plan(args: argparse.Namespace) -> int:
     if args.target is not None:
         needs["duration"] = required_duration(args.target, **plan)
         needs["rate"] = required_rate(args.target, duration=args.duration, **plan)
-    if args.json:
-        print(json.dumps({**forecast.to_dict(), "needs": needs}, indent=2))
-        return EXIT_OK
-    print("forecast of the full-orbit fit (Cramer-Rao bound):")
-    print(forecast.to_text())
+    lines = ["forecast of the full-orbit fit (Cramer-Rao bound):", forecast.to_text()]
     if needs:
-        print(f"  for ± {args.target:g} in n: a run of {needs['duration']:.4g} {args.time_unit} at "
-              f"{args.rate:g} per {args.time_unit}, or {needs['rate']:.4g} per {args.time_unit} over "
-              f"{args.duration:g} {args.time_unit}")
+        lines.append(f"  for ± {args.target:g} in n: a run of {needs['duration']:.4g} {args.time_unit} at "
+                     f"{args.rate:g} per {args.time_unit}, or {needs['rate']:.4g} per {args.time_unit} "
+                     f"over {args.duration:g} {args.time_unit}")
+    emit(args.json, {**forecast.to_dict(), "needs": needs}, "\n".join(lines))
     return EXIT_OK
 
 

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import json
 from pathlib import Path
 from typing import Any
 
@@ -12,8 +11,16 @@ from ..estimators import fit_orbit
 from ..inference.posterior import sample_posterior
 from ..outputs.figures import corner_figure, save_figure, trace_figure
 from ..outputs.report import write_report
-from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, pair, read_tracks
-from .cmd_fit import add_orbit_options, orbit_options
+from ._common import (
+    EXIT_FAILED_CHECKS,
+    EXIT_OK,
+    FORMATTER,
+    Reports,
+    add_centre_option,
+    add_orbit_options,
+    orbit_options,
+    read_tracks,
+)
 
 _SAMPLE_EXAMPLES = """\
 examples:
@@ -39,7 +46,7 @@ def _prior(text: str) -> tuple[str, tuple[str, float, float]]:
 def _cmd_sample(args: argparse.Namespace) -> int:
     if args.save and args.resume:
         raise InputError("give --save FILE for a new chain or --resume FILE to continue one, not both.")
-    status, reports = EXIT_OK, []
+    status, reports = EXIT_OK, Reports(args.json)
     tracks = read_tracks(args.file, args)
     for track in tracks:
         fit = fit_orbit(track, **orbit_options(args, track))
@@ -58,19 +65,16 @@ def _cmd_sample(args: argparse.Namespace) -> int:
             save_figure(corner_figure(posterior), folder / f"{track.name}_corner.png")
             save_figure(trace_figure(posterior), folder / f"{track.name}_trace.png")
         page = write_report(fit, args.report, track=track, posterior=posterior) if args.report else None
-        if args.json:
-            reports.append({"track": track.name, "fit": fit.to_dict(), "posterior": posterior.to_dict(),
-                            "report": str(page) if page else None})
-            continue
-        print(f"{track.name} — orbit fit: n = {fit.exponent:.6g} ± {fit.exponent_stderr:.2g}")
-        print(posterior.to_text())
+        lines = [f"{track.name} — orbit fit: n = {fit.exponent:.6g} ± {fit.exponent_stderr:.2g}",
+                 posterior.to_text()]
         if page is not None:
-            print(f"report: {page}")
+            lines.append(f"report: {page}")
         if args.figures:
-            print(f"figures: {Path(args.figures) / (track.name + '_corner.png')}, "
-                  f"{Path(args.figures) / (track.name + '_trace.png')}")
-    if args.json:
-        print(json.dumps(reports, indent=2))
+            lines.append(f"figures: {Path(args.figures) / (track.name + '_corner.png')}, "
+                         f"{Path(args.figures) / (track.name + '_trace.png')}")
+        reports.add({"track": track.name, "fit": fit.to_dict(), "posterior": posterior.to_dict(),
+                     "report": str(page) if page else None}, "\n".join(lines))
+    reports.close()
     return status
 
 
@@ -81,7 +85,7 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
         help="sample the posterior of the orbit fit (emcee): intervals you can trust",
         description="Fit the orbit, then sample the posterior of its parameters until converged.")
     parser.add_argument("file", metavar="FILE")
-    parser.add_argument("--centre", type=pair, metavar="X,Y", help="the force centre, if known")
+    add_centre_option(parser)
     add_orbit_options(parser)
     sampling = parser.add_argument_group("sampling")
     sampling.add_argument("--walkers", type=int, help="ensemble size (default 32 or 2 x parameters + 2)")

@@ -13,6 +13,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from .._types import FloatArray
+from ..units import time_factor
 
 _LOG_CASE = 1e-12
 """|n + 1| below which the potential is taken as logarithmic."""
@@ -143,6 +144,21 @@ def circular_period(r: ArrayLike, exponent: float, strength: float) -> FloatArra
 
 EARTH_ROTATION_RATE = 7.292115e-5
 """Earth's sidereal rotation rate, rad/s (IERS Conventions 2010, Table 1.1)."""
+
+def lab_rotation_rate(latitude: float, time_unit: str = "s") -> float:
+    """Rotation rate of a laboratory frame seen from above, Omega_E sin(latitude), counter-clockwise
+    in the northern hemisphere, in rad per ``time_unit``.
+
+    A camera fixed to the building turns with the Earth about the local vertical at this rate
+    (Foucault's pendulum; common practice).
+
+    Examples
+    --------
+    >>> round(lab_rotation_rate(90.0) / EARTH_ROTATION_RATE, 12), round(lab_rotation_rate(30.0, "h"), 6)
+    (1.0, 0.131258)
+    """
+    return EARTH_ROTATION_RATE * math.sin(math.radians(latitude)) * time_factor(time_unit, "s")
+
 
 STANDARD_GRAVITY = 9.80665
 """Standard acceleration of gravity g_n, m/s**2 (3rd CGPM, 1901); local g differs."""

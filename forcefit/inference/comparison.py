@@ -8,19 +8,48 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
 
 import pandas as pd
 from scipy import stats
 
+from .._json import json_safe
 from ..estimators.orbit import fit_orbit
 from ..track import Track
+
+COLUMNS = ("exponent", "chi2", "reduced_chi2", "aic", "bic", "delta_bic", "p_value")
+"""The columns the text shows."""
+
+
+@dataclass(frozen=True)
+class LawComparison:
+    """Fixed laws against the free orbit fit.
+
+    Attributes
+    ----------
+    table : DataFrame
+        One row per law, indexed by ``law`` (``free`` first): ``exponent``,
+        ``exponent_stderr``, ``chi2``, ``reduced_chi2``, ``n_parameters``, ``aic``, ``bic``,
+        ``p_value`` and ``delta_bic``.
+    """
+
+    table: pd.DataFrame
+
+    def to_text(self) -> str:
+        """The table, five significant digits."""
+        return self.table[list(COLUMNS)].to_string(float_format=lambda v: f"{v:.5g}")
+
+    def to_dict(self) -> list[dict[str, Any]]:
+        """JSON-safe form: one record per law."""
+        return json_safe(self.table.reset_index().to_dict("records"))
 
 
 def compare_laws(
     track_or_tracks: Track | Sequence[Track],
     exponents: Sequence[float] = (1.0, -2.0),
     **options: object,
-) -> pd.DataFrame:
+) -> LawComparison:
     """Each fixed law against the free fit: chi-square, reduced chi-square, AIC, BIC, p-value.
 
     Parameters
@@ -34,8 +63,8 @@ def compare_laws(
 
     Returns
     -------
-    DataFrame
-        One row per law (``free`` first), with ``exponent``, ``chi2``, ``reduced_chi2``,
+    LawComparison
+        Its ``table`` has one row per law (``free`` first), with ``exponent``, ``chi2``, ``reduced_chi2``,
         ``n_parameters``, ``aic``, ``bic``, ``delta_bic`` and ``p_value`` of the nested test
         (the fixed law against the free one: a chi-square test with one degree of freedom
         when the noise is known, an F test when it is fitted). A small p-value rejects the
@@ -71,4 +100,4 @@ def compare_laws(
         })
     frame = pd.DataFrame(table).set_index("law")
     frame["delta_bic"] = frame["bic"] - frame["bic"].min()
-    return frame
+    return LawComparison(table=frame)

@@ -169,14 +169,46 @@ def forecast_precision(
                     length_unit=length_unit, time_unit=time_unit)
 
 
-def required_duration(target: float, *, longest: float = 1e4, **plan: Any) -> float:
-    """Shortest duration (T) whose forecast exponent error is ``target``; ``plan`` as in
-    `forecast_precision` without ``duration``."""
-    def gap(log_duration: float) -> float:
-        return math.log(forecast_precision(duration=math.exp(log_duration), **plan).exponent_stderr
-                        / target)
+def pendulum_law(
+    length: float, semi_axes: Sequence[float], gravity: float = 9.81
+) -> dict[str, float | tuple[float, float]]:
+    """The law and launch of a long pendulum tracing an ellipse with ``semi_axes`` (a, b) (m):
+    n = 1, k = g / L, from (a, 0) with velocity (0, b omega), omega = sqrt(g / L) (the small-angle
+    pendulum, common practice). The keywords `forecast_precision` takes for them.
 
-    period = 2 * math.pi / math.sqrt(plan["strength"])
+    Examples
+    --------
+    >>> pendulum_law(2.4525, (0.2, 0.1))["velocity"]
+    (0.0, 0.2)
+    """
+    omega = math.sqrt(gravity / length)
+    a, b = semi_axes
+    return {"exponent": 1.0, "strength": omega**2, "start": (a, 0.0), "velocity": (0.0, b * omega)}
+
+
+def required_duration(
+    target: float,
+    *,
+    exponent: float,
+    strength: float,
+    start: Sequence[float],
+    velocity: Sequence[float],
+    rate: float,
+    noise: float,
+    free: Sequence[str] = FREE,
+    length_unit: str = "m",
+    time_unit: str = "s",
+    longest: float = 1e4,
+) -> float:
+    """Shortest duration (T) whose forecast exponent error is ``target``; the plan as in
+    `forecast_precision` (without ``duration``), searched up to ``longest``."""
+    def gap(log_duration: float) -> float:
+        forecast = forecast_precision(exponent=exponent, strength=strength, start=start, velocity=velocity,
+                                      duration=math.exp(log_duration), rate=rate, noise=noise, free=free,
+                                      length_unit=length_unit, time_unit=time_unit)
+        return math.log(forecast.exponent_stderr / target)
+
+    period = 2 * math.pi / math.sqrt(strength)
     low = math.log(0.5 * period)
     if gap(low) < 0:
         return math.exp(low)
@@ -188,12 +220,27 @@ def required_duration(target: float, *, longest: float = 1e4, **plan: Any) -> fl
     return math.exp(brentq(gap, low, high, xtol=1e-3))
 
 
-def required_rate(target: float, **plan: Any) -> float:
-    """Sampling rate (1/T) whose forecast exponent error is ``target`` at the planned duration.
+def required_rate(
+    target: float,
+    *,
+    exponent: float,
+    strength: float,
+    start: Sequence[float],
+    velocity: Sequence[float],
+    duration: float,
+    rate: float,
+    noise: float,
+    free: Sequence[str] = FREE,
+    length_unit: str = "m",
+    time_unit: str = "s",
+) -> float:
+    """Sampling rate (1/T) whose forecast exponent error is ``target`` at the planned duration;
+    ``rate`` is the planned one, the plan otherwise as in `forecast_precision`.
 
     The Fisher information grows in proportion to the number of samples, so the error
     falls as rate**-1/2 once the orbit is resolved; one forecast fixes the constant.
     """
-    base_rate = plan.pop("rate")
-    forecast = forecast_precision(rate=base_rate, **plan)
-    return base_rate * (forecast.exponent_stderr / target) ** 2
+    forecast = forecast_precision(exponent=exponent, strength=strength, start=start, velocity=velocity,
+                                  duration=duration, rate=rate, noise=noise, free=free,
+                                  length_unit=length_unit, time_unit=time_unit)
+    return rate * (forecast.exponent_stderr / target) ** 2
