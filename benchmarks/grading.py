@@ -10,8 +10,9 @@ from pathlib import Path
 
 import numpy as np
 
-from forcefit import save_track, simulate_pendulum
+from forcefit import save_track
 from forcefit.apps.grading import GradingRule, grade_runs
+from forcefit.dynamics import simulate_pendulum
 
 
 def make_runs(folder: Path, count: int = 40) -> None:

@@ -3,22 +3,23 @@
 Each orbit of the batch is integrated on its own with step-size control, from the
 epoch forwards and backwards, stepping exactly onto every requested time (so no
 interpolation error is added). The Butcher tableau and the error estimate are those
-of scipy's DOP853 (Hairer, Norsett & Wanner 1993, section II.10), whose coefficient
-tables forcefit takes from scipy rather than retyping them.
+of DOP853 (Hairer, Norsett & Wanner 1993, section II.10); forcefit reads the coefficient
+tables from the public `scipy.integrate.DOP853` solver class (its ``A``, ``B``, ``C``, ``E3``
+and ``E5``, already cut to its ``n_stages``) rather than retyping them.
 """
 
 from __future__ import annotations
 
 import numpy as np
 from numba import njit
-from scipy.integrate._ivp import dop853_coefficients as tableau
+from scipy.integrate import DOP853
 
-STAGES = tableau.N_STAGES
-A = np.ascontiguousarray(tableau.A[:STAGES, :STAGES])
-B = np.ascontiguousarray(tableau.B)
-C = np.ascontiguousarray(tableau.C[:STAGES])
-E3 = np.ascontiguousarray(tableau.E3)
-E5 = np.ascontiguousarray(tableau.E5)
+STAGES = int(DOP853.n_stages)
+A = np.ascontiguousarray(DOP853.A, dtype=np.float64)
+B = np.ascontiguousarray(DOP853.B, dtype=np.float64)
+C = np.ascontiguousarray(DOP853.C, dtype=np.float64)
+E3 = np.ascontiguousarray(DOP853.E3, dtype=np.float64)
+E5 = np.ascontiguousarray(DOP853.E5, dtype=np.float64)
 
 SAFETY, MIN_FACTOR, MAX_FACTOR = 0.9, 0.2, 10.0
 BASE_STEPS, STEPS_PER_SAMPLE = 50_000, 500
