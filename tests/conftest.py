@@ -1,4 +1,4 @@
-"""Shared helpers for forcefit's tests."""
+"""Shared fixtures of forcefit's tests, and the paths of the project and its demo data."""
 
 from __future__ import annotations
 
@@ -11,9 +11,14 @@ ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "datasets_demo"
 
 
-def sha256(path: Path) -> str:
-    """Digest of a file, to prove it was not modified."""
+def _sha256(path: Path) -> str:
     return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+@pytest.fixture(scope="session")
+def digest():
+    """A file's SHA-256 digest, to prove it was not modified."""
+    return _sha256
 
 
 @pytest.fixture
@@ -31,7 +36,7 @@ def write(tmp_path: Path):
     return _write
 
 
-def screened_track(n_points: int = 1500, *, with_sigma: bool = True, scale: float = 1.0):
+def _screened_track(n_points: int = 1500, *, with_sigma: bool = True, scale: float = 1.0):
     """A noisy orbit in the screened force F = exp(-r/scale)/r^2, which no power law describes
     (its local exponent is -2 - r/scale; a Yukawa-like force, common practice)."""
     import numpy as np
@@ -76,5 +81,5 @@ def noisy_orbit():
 
 @pytest.fixture(scope="session")
 def screened():
-    """`screened_track`: a noisy orbit in a force no power law describes."""
-    return screened_track
+    """`_screened_track`: a noisy orbit in a force no power law describes."""
+    return _screened_track

@@ -5,8 +5,9 @@ import math
 import numpy as np
 import pytest
 
-from forcefit.analysis.apsides import measure_apsides
+from forcefit.analysis.apsides import measure_apsides, precession_budget
 from forcefit.dynamics.laws import (
+    EARTH_ROTATION_RATE,
     apsidal_angle,
     apsidal_angle_circular,
     circular_speed,
@@ -15,7 +16,7 @@ from forcefit.dynamics.laws import (
     precession_per_orbit,
 )
 from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum
-from forcefit.errors import NotIdentifiable
+from forcefit.errors import InputError, NotIdentifiable
 
 
 @pytest.mark.parametrize(
@@ -94,3 +95,20 @@ def test_apsides_of_a_clockwise_orbit_are_measured_in_its_sense():
     apsides = measure_apsides(track, centre=(0.0, 0.0))
     assert apsides.sense == -1 and apsides.apsidal_angle == pytest.approx(math.pi, abs=1e-4)
     assert np.all(np.diff([a.angle for a in apsides.apses]) > 0)
+
+
+def test_precession_budget_of_a_pendulum_in_a_turning_lab():
+    # Airy's rate (as above) plus the Earth's: a lab at latitude phi turns at Omega_E sin(phi)
+    # counter-clockwise seen from above, so a counter-clockwise ellipse falls behind by it
+    # (Foucault's pendulum; common practice). Nothing anomalous may remain.
+    length, gravity, latitude = 7.5, 9.81, 48.0
+    omega = math.sqrt(gravity / length)
+    track = simulate_pendulum(length=length, gravity=gravity, start=(0.5, 0.0), velocity=(0.0, 0.25 * omega),
+                              duration=250.0, rate=20.0, latitude=latitude, noise=1e-4, rng=2)
+    budget = precession_budget(measure_apsides(track), pendulum_length=length, gravity=gravity,
+                               latitude=latitude)
+    assert budget["earth_rotation"] == pytest.approx(-EARTH_ROTATION_RATE * math.sin(math.radians(48.0)))
+    assert budget["expected"] == pytest.approx(budget["finite_amplitude"] + budget["earth_rotation"])
+    assert abs(budget["anomalous"]) < max(3 * budget["anomalous_stderr"], 0.05 * budget["finite_amplitude"])
+    with pytest.raises(InputError, match="needs timestamps"):
+        precession_budget(measure_apsides(track.shape_only()), latitude=latitude)

@@ -13,8 +13,6 @@ from forcefit.errors import ForcefitError, GeometryError, InputError, NotIdentif
 from forcefit.estimators import fit
 from forcefit.reading.loaders import load_tracks
 
-from .conftest import sha256
-
 
 def _rows(t, x, y, header="t [s],x [m],y [m]"):
     return header + "\n" + "\n".join(f"{a:.6f},{b:.6f},{c:.6f}" for a, b, c in zip(t, x, y)) + "\n"
@@ -97,13 +95,14 @@ def _api(path, extra):
 
 @pytest.mark.parametrize(("case", "name", "content", "extra", "error", "patterns"), CASES,
                          ids=[case[0] for case in CASES])
-def test_refused_through_api_and_cli(tmp_path, capsys, case, name, content, extra, error, patterns):
+def test_refused_through_api_and_cli(tmp_path, capsys, digest, case, name, content, extra, error,
+                                    patterns):
     path = tmp_path / name
     if isinstance(content, bytes):
         path.write_bytes(content)
     else:
         path.write_text(content, encoding="utf-8")
-    before = sha256(path)
+    before = digest(path)
     with pytest.raises(error) as caught:
         _api(path, extra)
     assert isinstance(caught.value, ForcefitError)
@@ -114,7 +113,7 @@ def test_refused_through_api_and_cli(tmp_path, capsys, case, name, content, extr
     assert captured.err.startswith("forcefit: ") and "Traceback" not in captured.err
     for pattern in patterns:
         assert pattern in captured.err
-    assert sha256(path) == before                       # the input is never modified
+    assert digest(path) == before                       # the input is never modified
 
 
 def test_missing_file_through_api_and_cli(tmp_path, capsys):

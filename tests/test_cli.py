@@ -11,7 +11,7 @@ from forcefit.cli import main
 from forcefit.estimators import ESTIMATORS
 from forcefit.reading.loaders import load_track
 
-from .conftest import DEMO, sha256
+from .conftest import DEMO
 
 
 @pytest.mark.parametrize("command", [[], ["simulate"], ["inspect"]])
@@ -22,13 +22,13 @@ def test_help_shows_an_example(command, capsys):
     assert "examples:" in capsys.readouterr().out
 
 
-def test_inspect_prints_units_and_columns(capsys):
+def test_inspect_prints_units_and_columns(capsys, digest):
     path = DEMO / "class_pendulum" / "run_03.csv"
-    before = sha256(path)
+    before = digest(path)
     assert main(["inspect", str(path)]) == 0
     out = capsys.readouterr().out
     assert "1051" in out and "35 s" in out and "px" in out and "t: t [s]" in out
-    assert sha256(path) == before
+    assert digest(path) == before
 
 
 def test_inspect_with_calibration_and_json(capsys):

@@ -3,7 +3,6 @@
 import numpy as np
 import pytest
 
-from forcefit.analysis.duality_check import check_duality
 from forcefit.dynamics.duality import (
     dual_energy,
     dual_exponent,
@@ -65,15 +64,6 @@ def test_self_dual_inverse_fifth_power_maps_lines_to_circles_through_the_centre(
     # |w - c|^2 = R^2 with the circle through 0: x^2 + y^2 = 2 (cx x + cy y); here x = 1/x0 circle
     residual = image.x**2 + image.y**2 - image.x / 0.5
     assert np.abs(residual).max() < 1e-12
-
-
-def test_duality_check_passes_for_the_true_law_and_fails_for_a_wrong_one():
-    track = simulate_orbit(exponent=-1.0, duration=25.0, rate=40.0, noise=1e-3, rng=3)
-    fit = fit_orbit(track)
-    check = check_duality(track, fit, fit_orbit)
-    assert check.passed, check.to_text()
-    wrong = type(fit)(**{**fit.__dict__, "exponent": 0.0})
-    assert not check_duality(track, wrong, fit_orbit).passed
 
 
 def test_shape_only_dual_track_has_no_times():

@@ -9,6 +9,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+import forcefit.apps.grading as grading
 from forcefit.apps.grading import GradingRule, grade_runs, read_results
 from forcefit.outputs.report import safe_name
 
@@ -146,3 +147,21 @@ def test_report_renders_in_headless_chromium(graded, tmp_path):
                     & (abs(image[..., 2] - blue / 255) < 0.08)).sum())
 
     assert count(0x00, 0x72, 0xB2) > 500 and count(0xD5, 0x5E, 0x00) > 2000
+
+
+def test_an_interrupted_batch_keeps_every_finished_row(tmp_path, monkeypatch):
+    runs = sorted((DEMO / "class_pendulum").glob("run_0[1-4].csv"))
+    real = grading.grade_run
+    calls = []
+
+    def interrupted(path, rule, out_dir=None):
+        calls.append(path)
+        if len(calls) == 3:
+            raise KeyboardInterrupt                                        # Ctrl-C during run 3
+        return real(path, rule, out_dir)
+
+    monkeypatch.setattr(grading, "grade_run", interrupted)
+    rule = GradingRule(expect=1.0, tolerance=0.05, load_options={"length_unit": "px"})
+    with pytest.raises(KeyboardInterrupt):
+        grade_runs(runs, rule, tmp_path, workers=1, progress=False)
+    assert sorted(read_results(tmp_path / "results.csv")["run"]) == ["run_01", "run_02"]

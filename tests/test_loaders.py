@@ -8,10 +8,7 @@ import pandas as pd
 import pytest
 
 from forcefit.errors import ForcefitWarning, InputError
-from forcefit.reading.coordinates import Calibration, project_to_plane
 from forcefit.reading.loaders import load_track, load_tracks, save_track
-
-from .conftest import sha256
 
 T = np.round(np.linspace(0.0, 2.0, 21), 3)
 X = np.round(np.cos(T) * 100.0, 3)
@@ -136,40 +133,6 @@ def test_several_tracks_by_id_column(write):
         load_track(path)
 
 
-def test_scale_origin_rotation_flip_calibration():
-    frame = pd.DataFrame({"x [px]": [100.0, 200.0, 100.0], "y [px]": [50.0, 50.0, 150.0]})
-    calibration = Calibration(scale=2.0, unit="mm", origin=(100.0, 50.0), rotation=90.0, flip_y=True)
-    track = load_track(frame, calibration=calibration)
-    # (100, 0) px → (200, 0) mm → turned 90° → (0, 200); (0, 100) px → flipped (0, -100) → (200, 0) mm
-    np.testing.assert_allclose(track.x, [0.0, 0.0, 200.0], atol=1e-12)
-    np.testing.assert_allclose(track.y, [0.0, 200.0, 0.0], atol=1e-12)
-    assert track.length_unit == "mm"
-
-
-def test_two_mark_calibration():
-    # A metre stick whose ends are imaged 625 px apart: 1.6 mm per pixel.
-    calibration = Calibration.from_marks((100.0, 100.0), (475.0, 600.0), distance=1.0, unit="m")
-    assert calibration.scale == pytest.approx(1.0 / 625.0)
-    track = load_track(pd.DataFrame({"x": [0.0, 625.0, 0.0], "y": [0.0, 0.0, 625.0]}),
-                       length_unit="px", calibration=calibration)
-    assert track.x.max() == pytest.approx(1.0)
-
-
-def test_plane_projection_recovers_a_known_normal():
-    # Exact data on a tilted plane through the origin: normal recovered to 1e-9.
-    normal = np.array([0.3, -0.5, 0.8]) / np.linalg.norm([0.3, -0.5, 0.8])
-    e1 = np.cross(normal, [0.0, 0.0, 1.0])
-    e1 /= np.linalg.norm(e1)
-    e2 = np.cross(normal, e1)
-    s = np.linspace(0.0, 5.0, 300)
-    points = np.outer(2.0 * np.cos(s), e1) + np.outer(1.2 * np.sin(s), e2)
-    plane = project_to_plane(*points.T)
-    assert np.allclose(plane.normal, normal, atol=1e-9)
-    assert plane.out_of_plane_rms < 1e-12
-    # In-plane coordinates keep distances from the 3-D origin (where the Sun would be).
-    np.testing.assert_allclose(np.hypot(plane.u, plane.v), np.linalg.norm(points, axis=1), rtol=1e-12)
-
-
 def test_three_d_file_projected_and_reported(write):
     # A planar ellipse with a systematic 0.01 au wobble out of its plane, sigma 1e-4 au.
     s = np.linspace(0.0, 4.0, 200)
@@ -223,13 +186,13 @@ def _lines(**replace):
          "decreasing-time", "inf", "huge", "identical", "short-row", "long-row", "no-x",
          "comments-only", "binary"],
 )
-def test_refusals_name_file_row_column_and_fix(write, content, pattern):
+def test_refusals_name_file_row_column_and_fix(write, digest, content, pattern):
     path = write("bad.csv", content)
-    before = sha256(path)
+    before = digest(path)
     with pytest.raises(InputError, match=pattern) as caught:
         load_track(path)
     assert "bad.csv" in str(caught.value)
-    assert sha256(path) == before          # the input is never modified
+    assert digest(path) == before          # the input is never modified
 
 
 def test_missing_file_and_folder(tmp_path):
@@ -268,3 +231,32 @@ def test_save_then_load_round_trip(tmp_path):
     _check(again, length_unit="mm")
     np.testing.assert_allclose(again.sigma, 0.1)
     assert not list(tmp_path.glob(".*tmp"))              # no temporary file left behind
+
+
+def test_sigma_in_its_own_unit_is_converted_even_when_the_length_unit_is_given(write):
+    text = "t [s],x [m],y [m],sigma [mm]\n" + "\n".join(
+        f"{t},{np.cos(t)},{np.sin(t)},1" for t in np.arange(0, 2, 0.1))
+    track = load_track(write("sig.csv", text), length_unit="m")
+    np.testing.assert_allclose(track.sigma, 0.001)
+    with pytest.raises(InputError, match=r'column "sigma \[mm\]".*calibration'):
+        load_track(write("sig2.csv", text), length_unit="px")
+
+
+
+def test_one_short_track_does_not_stop_reading_another(write):
+    rows = ["run,t [s],x [m],y [m]"] + [f"a,{t},{np.cos(t)},{np.sin(t)}" for t in range(5)]
+    rows += ["b,0,1,0", "b,1,2,1"]
+    assert load_track(write("mixed.csv", "\n".join(rows)), track_id="a").n_points == 5
+
+
+
+def test_unused_frame_column_with_empty_cells_drops_nothing(write):
+    text = "frame,t [s],x [m],y [m]\n" + "\n".join(f",{t},{np.cos(t)},{np.sin(t)}" for t in range(6))
+    assert load_track(write("frames.csv", text)).n_points == 6
+
+
+
+def test_too_few_rows_names_the_emptiest_column(write):
+    text = "t [s],x [m],y [m],sigma [m]\n" + "\n".join(f"{t},{np.cos(t)},{np.sin(t)}," for t in range(6))
+    with pytest.raises(InputError, match='column "sigma \\[m\\]" has 6 empty cells'):
+        load_track(write("empty_sigma.csv", text))

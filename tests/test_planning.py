@@ -6,7 +6,7 @@ import pytest
 from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import InputError, NotIdentifiable
 from forcefit.estimators import fit_orbit
-from forcefit.inference.planning import forecast_precision, required_duration, required_rate
+from forcefit.inference.planning import forecast_precision, pendulum_law, required_duration, required_rate
 
 PLAN = {"exponent": -1.5, "strength": 1.0, "start": (1.0, 0.0), "velocity": (0.0, 0.8), "rate": 15.0,
         "noise": 0.005}
@@ -41,3 +41,12 @@ def test_bad_plans_are_refused():
         forecast_precision(duration=-1.0, **PLAN)
     with pytest.raises(InputError, match="unknown free"):
         forecast_precision(duration=5.0, free=("mass",), **PLAN)
+
+
+def test_a_pendulum_plan_and_explicit_plan_keywords():
+    # A pendulum of length L is Hooke's law with k = g / L (small angles, common practice).
+    plan = pendulum_law(2.4, (0.2, 0.1), gravity=9.81)
+    assert plan["strength"] == pytest.approx(9.81 / 2.4) and plan["start"] == (0.2, 0.0)
+    assert plan["velocity"] == pytest.approx((0.0, 0.1 * np.sqrt(9.81 / 2.4)))
+    with pytest.raises(TypeError):
+        required_rate(1e-4, duration=30.0, rate=30.0, noise=1e-3, durations=3, **plan)

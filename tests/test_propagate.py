@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from forcefit.dynamics.laws import angular_momentum, circular_period, specific_energy
-from forcefit.dynamics.propagate import Drag, propagate_reference
+from forcefit.dynamics.propagate import Drag, propagate_batch, propagate_reference
 from forcefit.errors import InputError
 
 
@@ -85,3 +85,55 @@ def test_fall_into_the_centre_is_refused():
 def test_bad_drag_is_refused():
     with pytest.raises(InputError, match="linear"):
         Drag("cubic", 1.0)  # type: ignore[arg-type]
+
+
+@pytest.mark.parametrize("exponent", [-2.9, -2.5, -2.0, -1.0, 0.0, 1.0, 2.0, 3.0])
+def test_batch_matches_the_reference_over_five_revolutions(exponent):
+    period = float(circular_period(1.0, exponent, 1.0))
+    t = np.linspace(0.0, 5 * period, 600)
+    reference = propagate_reference([1.0, 0.0], [0.0, 0.95], t, exponent=exponent, strength=1.0,
+                                    epoch=t[300])
+    batch = propagate_batch(t, [1.0, 0.0], [0.0, 0.95], exponent=exponent, strength=1.0, epoch=t[300])
+    size = np.abs(reference.position).max()
+    assert np.abs(batch.position[0] - reference.position).max() < 1e-9 * size
+
+
+
+@pytest.mark.parametrize("eccentricity", [0.5, 0.9, 0.95])
+def test_batch_matches_keplers_equation(eccentricity):
+    # Kepler's equation solved by Newton iteration, velocity from the eccentric anomaly E:
+    # v = n a (-sin E, sqrt(1 - e^2) cos E) / (1 - e cos E) (Murray & Dermott 1999, §2.4).
+    # Five revolutions with the epoch in the middle, as the orbit fit uses it.
+    a, mu = 1.0, 1.0
+    t = np.linspace(0.0, 5 * 2 * np.pi, 700)
+    epoch = t[350]
+    anomaly = np.sqrt(mu / a**3) * epoch
+    for _ in range(60):
+        anomaly -= (anomaly - eccentricity * np.sin(anomaly) - np.sqrt(mu / a**3) * epoch) / (
+            1 - eccentricity * np.cos(anomaly))
+    factor = np.sqrt(mu / a) / (1 - eccentricity * np.cos(anomaly))
+    velocity = factor * np.array([-np.sin(anomaly), np.sqrt(1 - eccentricity**2) * np.cos(anomaly)])
+    position = _kepler_positions(np.array([epoch]), a, eccentricity, mu)[0]
+    batch = propagate_batch(t, position, velocity, exponent=-2.0, strength=mu, epoch=epoch)
+    error = np.abs(batch.position[0] - _kepler_positions(t, a, eccentricity, mu)).max()
+    assert error < 1e-9 * 2 * a
+
+
+
+def test_batch_orbits_are_independent_and_drag_matches_the_reference():
+    t = np.linspace(-3.0, 6.0, 300)
+    drag = Drag("quadratic", 0.2)
+    reference = propagate_reference([1.0, 0.2], [0.1, 1.1], t, exponent=-1.5, strength=1.3, epoch=0.0,
+                                    drag=drag)
+    batch = propagate_batch(t, [[1.0, 0.2], [2.0, 0.0]], [[0.1, 1.1], [0.0, 0.5]], exponent=[-1.5, 1.0],
+                            strength=[1.3, 0.5], epoch=0.0, quadratic_drag=[0.2, 0.0])
+    np.testing.assert_allclose(batch.position[0], reference.position, atol=1e-9)
+    alone = propagate_batch(t, [2.0, 0.0], [0.0, 0.5], exponent=1.0, strength=0.5, epoch=0.0)
+    np.testing.assert_array_equal(batch.position[1], alone.position[0])
+
+
+
+def test_orbit_into_the_centre_is_marked_failed():
+    batch = propagate_batch(np.linspace(0, 5, 50), [1.0, 0.0], [0.0, 0.0], exponent=-2.0, strength=1.0,
+                            epoch=0.0)
+    assert not batch.ok[0] and np.isnan(batch.position[0]).all()

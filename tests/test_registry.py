@@ -172,3 +172,28 @@ def test_fit_dispatches_with_the_options():
     track = simulate_orbit(exponent=1.0, noise=1e-3, rng=2).shape_only()
     assert fit(track, centre=(0.0, 0.0)).method == "shape"
     assert fit(track, method="curvature", centre=(0.0, 0.0)).centre == (0.0, 0.0)
+
+
+# The time-free estimators and the acceleration estimator over a range of laws, each with its
+# tolerance on n (the orbit estimator's own sweep is in test_orbit.py).
+SWEEP = {"curvature": 0.05, "acceleration": 0.05, "shape": 0.01}
+
+
+@pytest.mark.parametrize("exponent", [-2.5, -2.0, -1.5, -1.0, -0.5, 0.0, 0.5, 1.0, 2.0])
+@pytest.mark.parametrize("method", sorted(SWEEP))
+def test_exponent_recovered_with_unknown_centre(method, exponent, noisy_orbit):
+    result = ESTIMATORS[method].function(noisy_orbit(exponent, rng=int(10 * exponent) + 100))
+    assert abs(result.exponent - exponent) < SWEEP[method]
+    assert abs(result.exponent - exponent) < 4 * result.exponent_stderr + 1e-3
+    assert result.strength == pytest.approx(1.0, rel=0.05)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("method", sorted(SWEEP))
+def test_coverage_of_the_standard_errors(method, noisy_orbit):
+    # |n_hat - n| / stderr < 3 in at least 95% of 100 noisy replicates (n = -1.5).
+    fits = [ESTIMATORS[method].function(noisy_orbit(-1.5, rng=seed)) for seed in range(100)]
+    z = np.array([(result.exponent + 1.5) / result.exponent_stderr for result in fits])
+    print(f"{method}: |z| < 3 in {np.mean(np.abs(z) < 3):.0%}, |z| < 1 in {np.mean(np.abs(z) < 1):.0%}, "
+          f"std(z) = {np.std(z):.2f}")
+    assert np.mean(np.abs(z) < 3) >= 0.95

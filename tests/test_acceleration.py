@@ -1,0 +1,24 @@
+"""The acceleration estimator: the radial acceleration against r, and its torque check."""
+
+import pytest
+
+from forcefit.dynamics.propagate import Drag
+from forcefit.dynamics.simulate import simulate_orbit
+from forcefit.errors import NotIdentifiable
+from forcefit.estimators import fit_acceleration
+
+
+def test_acceleration_needs_timestamps(noisy_orbit):
+    with pytest.raises(NotIdentifiable, match="needs timestamps"):
+        fit_acceleration(noisy_orbit(1.0, rng=1).shape_only())
+
+
+def test_a_drag_shows_as_a_torque_against_the_motion():
+    # A drag a = -c v has a component across the radius whenever the body moves round the centre:
+    # a torque, which no central force has (common practice).
+    track = simulate_orbit(exponent=1.0, strength=4.0, drag=Drag("linear", 0.05), noise=2e-4,
+                           duration=20.0, rate=50.0, rng=3)
+    check = fit_acceleration(track, centre=(0.0, 0.0)).diagnostics["transverse acceleration"]
+    assert check.passed is False and "against the motion" in check.message
+    clean = simulate_orbit(exponent=1.0, strength=4.0, noise=2e-4, duration=20.0, rate=50.0, rng=3)
+    assert fit_acceleration(clean, centre=(0.0, 0.0)).diagnostics["transverse acceleration"].passed

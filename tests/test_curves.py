@@ -1,0 +1,88 @@
+"""Curve geometry from exact derivatives: curvature, polar quantities, the force-curvature
+relation, the interior and the straight-path test."""
+
+import numpy as np
+import pytest
+
+from forcefit.geometry.curves import (
+    attractive_points,
+    curvature_of,
+    curvature_relation,
+    interior,
+    is_straight,
+    polar_about,
+    turning_sense,
+)
+from forcefit.geometry.pspline import SmoothedCurve
+
+A, B = 3.0, 1.2
+
+
+def _ellipse(sense=1.0, n_points=2001):
+    """x = a cos t, y = sense b sin t with exact derivatives and no errors."""
+    t = np.linspace(0.0, 4 * np.pi, n_points)
+    value = np.column_stack((A * np.cos(t), sense * B * np.sin(t)))
+    first = np.column_stack((-A * np.sin(t), sense * B * np.cos(t)))
+    zeros = np.zeros_like(value)
+    return t, SmoothedCurve(parameter=t, value=value, first=first, second=-value, value_var=zeros,
+                            first_var=zeros, second_var=zeros, first_second_cov=zeros,
+                            noise=np.zeros(t.size), level=1.0, knot_spacing=t[1] - t[0], dof=10.0,
+                            span=0.1, method="exact")
+
+
+def test_curvature_of_an_ellipse():
+    # do Carmo (1976), Differential Geometry of Curves and Surfaces, §1-5 (from memory):
+    # kappa = a b / (a^2 sin^2 t + b^2 cos^2 t)^(3/2), positive when turning counter-clockwise.
+    t, curve = _ellipse()
+    kappa, error = curvature_of(curve)
+    np.testing.assert_allclose(kappa, A * B / (A**2 * np.sin(t) ** 2 + B**2 * np.cos(t) ** 2) ** 1.5,
+                               rtol=1e-12)
+    assert np.all(error == 0.0)
+    assert turning_sense(curve) == 1.0
+    clockwise_kappa, _ = curvature_of(_ellipse(sense=-1.0)[1])
+    np.testing.assert_allclose(clockwise_kappa, -kappa, rtol=1e-12)
+    assert turning_sense(_ellipse(sense=-1.0)[1]) == -1.0
+
+
+def test_polar_quantities_about_the_centre():
+    # On x = a cos t, y = b sin t about the centre: r x v = a b, so cos(gamma) = a b / (r v)
+    # (common practice); at t = 0 the velocity is perpendicular to the radius (gamma = 0).
+    t, curve = _ellipse()
+    polar = polar_about(curve, np.zeros(2))
+    radius = np.hypot(A * np.cos(t), B * np.sin(t))
+    speed = np.hypot(A * np.sin(t), B * np.cos(t))
+    np.testing.assert_allclose(polar.radius, radius, rtol=1e-12)
+    np.testing.assert_allclose(polar.cos_gamma, A * B / (radius * speed), rtol=1e-12)
+    np.testing.assert_allclose(polar.polar_angle[-1] - polar.polar_angle[0], 4 * np.pi, rtol=1e-12)
+    assert abs(polar.gamma[0]) < 1e-12
+
+
+def test_force_curvature_relation_of_a_hooke_ellipse():
+    # Newton (1687), Principia, Book I, Prop. X: the ellipse about its centre is an orbit of
+    # F = w^2 r with h = a b w, so F / h^2 = r / (a b)^2: ln(F/h^2) = ln r - 2 ln(a b).
+    _, curve = _ellipse()
+    kappa, error = curvature_of(curve)
+    used = np.ones(kappa.size, dtype=bool)
+    points = curvature_relation(curve, kappa, error, np.zeros(2), used)
+    np.testing.assert_allclose(points.log_force_per_h2, points.log_radius - 2 * np.log(A * B), atol=1e-10)
+    assert np.all(points.sigma == 0.0) and points.used is used
+
+
+def test_interior_leaves_out_the_ends_and_keeps_the_middle_half():
+    t, curve = _ellipse()
+    keep = interior(curve)
+    margin = 2.0 * curve.span                      # EDGE_SPANS smoothing spans at each end
+    assert not keep[0] and not keep[-1]
+    np.testing.assert_array_equal(keep, (t >= t[0] + margin) & (t <= t[-1] - margin))
+    wide = SmoothedCurve(**{**curve.__dict__, "span": 100.0})
+    assert interior(wide).mean() == pytest.approx(0.5, abs=0.01)
+    assert attractive_points(curve, *curvature_of(curve)).sum() == keep.sum()   # all bend inwards
+
+
+def test_straight_and_bent_paths():
+    rng = np.random.default_rng(1)
+    s = np.linspace(0.0, 1.0, 200)
+    noise = np.full(s.size, 1e-3)
+    line = (s + 1e-3 * rng.standard_normal(s.size), 2 * s + 1e-3 * rng.standard_normal(s.size))
+    assert is_straight(*line, noise)
+    assert not is_straight(np.cos(3 * s), np.sin(3 * s), noise)

@@ -1,0 +1,46 @@
+"""What a track holds: timing, gaps, turns, the noise estimate, the text and JSON forms."""
+
+import json
+
+import numpy as np
+import pytest
+
+from forcefit.reading.inspection import inspect_track, second_difference_noise, turns_about_middle
+from forcefit.track import Track
+
+
+def _two_turns(drop=()):
+    t = np.arange(0.0, 10.0, 0.01)                            # 100 samples per second
+    keep = np.setdiff1d(np.arange(t.size), drop)
+    t = t[keep]
+    return Track(t=t, x=np.cos(0.4 * np.pi * t), y=0.5 * np.sin(0.4 * np.pi * t), name="ellipse")
+
+
+def test_noise_from_second_differences():
+    # White noise of sd s gives second differences of variance 6 s^2, which a smooth curve
+    # sampled densely hardly changes (common practice).
+    rng = np.random.default_rng(3)
+    s = np.linspace(0.0, 1.0, 20_000)
+    x = np.cos(s) + 0.01 * rng.standard_normal(s.size)
+    y = np.sin(s) + 0.01 * rng.standard_normal(s.size)
+    assert second_difference_noise(x, y) == pytest.approx(0.01, rel=0.05)
+
+
+def test_timing_gaps_and_turns():
+    summary = inspect_track(_two_turns(drop=[200, 201, 500]))
+    assert summary.n_points == 997 and summary.duration == pytest.approx(9.99)
+    assert summary.sample_rate == pytest.approx(100.0) and summary.sampling_interval == pytest.approx(0.01)
+    assert summary.n_gaps == 2 and summary.largest_gap == pytest.approx(0.03)   # two frames lost at 2 s
+    assert summary.turns_about_middle == pytest.approx(2.0, abs=0.01)          # 0.2 turns per second
+    assert turns_about_middle(_two_turns()) == pytest.approx(2.0, abs=0.01)
+    assert summary.x_range == pytest.approx((-1.0, 1.0), abs=1e-3)
+
+
+def test_text_and_json_say_the_same():
+    summary = inspect_track(_two_turns())
+    text = summary.to_text()
+    assert "ellipse" in text and "100 per s" in text and "2.00 about the middle" in text
+    report = json.loads(json.dumps(summary.to_dict()))
+    assert report["n_points"] == 1000 and report["time_unit"] == "s" and report["n_gaps"] == 0
+    shape_only = inspect_track(_two_turns().shape_only())
+    assert "none (shape-only path)" in shape_only.to_text() and shape_only.to_dict()["duration"] is None

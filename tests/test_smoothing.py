@@ -1,0 +1,58 @@
+"""Smoothing a track: chord length, spline derivatives in time and in arc length, the
+Savitzky-Golay option and its refusals."""
+
+import numpy as np
+import pytest
+
+from forcefit.errors import GeometryError
+from forcefit.geometry.smoothing import chord_length, smooth_track
+from forcefit.track import Track
+
+
+def test_chord_length_is_the_distance_walked_and_keeps_increasing():
+    x, y = np.array([0.0, 3.0, 3.0, 3.0]), np.array([0.0, 4.0, 4.0, 10.0])
+    chord = chord_length(x, y)
+    assert chord[1] == 5.0 and chord[-1] == pytest.approx(11.0, rel=1e-5)    # 3-4-5 triangle
+    assert np.all(np.diff(chord) > 0)                                         # a repeated point too
+
+
+def test_spline_derivatives_of_a_circle_in_time():
+    # x = R cos(wt), y = R sin(wt): velocity R w (-sin, cos), acceleration -w^2 (x, y)
+    # (uniform circular motion, common practice).
+    t = np.linspace(0.0, 12.0, 1201)
+    radius, omega = 2.0, 1.3
+    track = Track(t=t, x=radius * np.cos(omega * t), y=radius * np.sin(omega * t))
+    curve = smooth_track(track)
+    middle = slice(100, -100)
+    np.testing.assert_allclose(curve.first[middle, 0], -radius * omega * np.sin(omega * t[middle]),
+                               atol=1e-5)
+    np.testing.assert_allclose(curve.second[middle], -omega**2 * curve.value[middle], atol=1e-4)
+    assert curve.method and curve.dof > 0 and curve.span > 0
+
+
+def test_shape_only_derivatives_are_with_respect_to_arc_length():
+    # With respect to arc length the tangent has unit length (common practice).
+    s = np.linspace(0.0, 4 * np.pi, 1600)
+    curve = smooth_track(Track(x=np.cos(s), y=0.5 * np.sin(s)))
+    speed = np.hypot(curve.first[:, 0], curve.first[:, 1])
+    np.testing.assert_allclose(speed[100:-100], 1.0, atol=1e-3)
+
+
+def test_savitzky_golay_is_exact_on_a_quartic():
+    # A least-squares polynomial of order 4 reproduces any quartic exactly, derivatives included
+    # (Savitzky & Golay 1964, Anal. Chem. 36, 1627).
+    t = np.linspace(0.0, 2.0, 201)
+    track = Track(t=t, x=t**4 - t, y=2 * t**3)
+    curve = smooth_track(track, smoothing="savgol", window=21)
+    np.testing.assert_allclose(curve.first[:, 0], 4 * t**3 - 1, atol=1e-8)
+    np.testing.assert_allclose(curve.second[:, 1], 12 * t, atol=1e-7)
+    assert curve.method.startswith("Savitzky-Golay, 21 samples")
+
+
+def test_savitzky_golay_needs_even_spacing_and_known_smoothings_only():
+    t = np.concatenate((np.linspace(0.0, 1.0, 50), np.linspace(1.1, 3.0, 50)))
+    track = Track(t=t, x=np.cos(t), y=np.sin(t))
+    with pytest.raises(GeometryError, match="evenly spaced"):
+        smooth_track(track, smoothing="savgol")
+    with pytest.raises(GeometryError, match="unknown"):
+        smooth_track(track, smoothing="lowess")  # type: ignore[arg-type]
