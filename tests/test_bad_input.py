@@ -37,7 +37,7 @@ CASES = [
     ("one row", "run.csv", "t [s],x [m],y [m]\n0,1,0\n", [], InputError,
      ["run.csv", "1 usable row", "at least 3"]),
     ("too few rows for the method", "run.csv", _rows(T[:8], np.cos(T[:8]), np.sin(T[:8])), [],
-     GeometryError, ["run.csv", "too few to smooth", "at least 12", "longer stretch"]),
+     GeometryError, ["run.csv", "too few", "at least 12", "longer stretch"]),
     ("NaN cells", "run.csv", _rows(T, [math.nan] * T.size, np.sin(T)).replace("nan", "NaN"), [],
      InputError, ["run.csv", "0 usable rows", 'column "x [m]" has 400 empty cells']),
     ("inf cell", "run.csv", _replace(40, "1.95,inf,0.0"), [], InputError,

@@ -108,8 +108,11 @@ def test_the_checks_say_something(fitted):
 
 
 def test_the_relation_points_follow_the_law(fitted):
-    _, _, result = fitted
+    name, _, result = fitted
     points = result.relation
+    if name == "orbit":          # the orbit fit needs no derivatives of the data and keeps none
+        assert isinstance(points, CurvaturePoints) and points.log_radius.size == 0
+        return
     assert isinstance(points, CurvaturePoints) and not points.per_h2
     assert points.log_radius.shape == points.log_force.shape and points.log_radius.size > 100
     assert np.all(np.isfinite(points.log_radius)) and np.all(np.isfinite(points.log_force))

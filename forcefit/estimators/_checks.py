@@ -156,3 +156,18 @@ def runs_diagnostic(residuals: FloatArray) -> Diagnostic:
         return Diagnostic(False, text + ": the residuals wander systematically; the model does "
                                         "not describe the path.")
     return Diagnostic(True, text + ".")
+
+
+def chi_square_diagnostic(reduced: float, dof: int) -> Diagnostic:
+    """Do the residuals scatter as the given sigma says? Fails beyond 5 standard deviations
+    of the reduced chi-square (sqrt(2/dof)) either way: too large means the model misses
+    the points, too small means sigma is overstated and so are the errors."""
+    spread = math.sqrt(2.0 / max(dof, 1))
+    text = f"reduced chi-square {reduced:.3g} (expected 1 ± {spread:.2g})"
+    if reduced > 1.0 + 5.0 * spread:
+        return Diagnostic(False, text + ": the model misses the points by more than their sigma.")
+    if reduced < 1.0 - 5.0 * spread:
+        return Diagnostic(False, text + f": the points scatter {math.sqrt(max(reduced, 0.0)):.2g} "
+                                        "times their given sigma, so sigma and the stated errors are "
+                                        "too large. Correct the sigma column or leave it out.")
+    return Diagnostic(True, text + ".")

@@ -373,6 +373,11 @@ class OrbitFit(LawFit):
     fitted_positions : ndarray, shape (n_points, 2)
         The fitted orbit at the samples, all tracks stacked (L); nan where it could not be
         integrated; read-only.
+    correlation_time : float
+        Integrated autocorrelation time of the residuals (samples; 1 when independent): the
+        stated errors are the white-noise ones times its square root.
+    white_stderrs : mapping of str to float
+        Every parameter's standard error as if the residuals were independent.
     """
 
     model: OrbitModel
@@ -391,9 +396,13 @@ class OrbitFit(LawFit):
     drag_stderr: float = NAN
     rotation_rate: float = NAN
     rotation_rate_stderr: float = NAN
+    correlation_time: float = 1.0
+    white_stderrs: Mapping[str, float] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         super().__post_init__()
+        object.__setattr__(self, "white_stderrs",
+                           MappingProxyType({k: float(v) for k, v in self.white_stderrs.items()}))
         object.__setattr__(self, "values", MappingProxyType({k: float(v) for k, v in self.values.items()}))
         object.__setattr__(self, "stderrs", MappingProxyType({k: float(v) for k, v in self.stderrs.items()}))
         object.__setattr__(self, "sigma", frozen_array(self.sigma))
@@ -449,6 +458,11 @@ class OrbitFit(LawFit):
             rows.append(Row("rotation rate", _measurement(self.rotation_rate, self.rotation_rate_stderr),
                             f"rad/{time}", brief=False))
         rows.append(Row("noise", format_measurement(self.noise), length, brief=False))
+        if self.correlation_time > 1.0:
+            white = self.white_stderrs.get("exponent", NAN)
+            rows.append(Row("errors widened", f"x{math.sqrt(self.correlation_time):.3g}: the residuals stay "
+                                              f"alike over {self.correlation_time:.3g} samples (n's error "
+                                              f"for independent residuals: {white:.2g})"))
         return rows
 
     def _details(self) -> dict[str, Any]:
@@ -458,6 +472,8 @@ class OrbitFit(LawFit):
         if self.model.fit_rotation:
             fitted.update(rotation_rate=self.rotation_rate, rotation_rate_stderr=self.rotation_rate_stderr)
         return {"evaluations": self.evaluations, "noise": self.noise, "loss": self.loss, "turns": self.turns,
+                "correlation_time": self.correlation_time,
+                "exponent_stderr_white": self.white_stderrs.get("exponent", NAN),
                 "sigma_known": self.sigma_known, "epochs": list(self.epochs), "n_tracks": self.n_tracks,
                 "angular_momentum": self.angular_momentum, "states": dict(self.states), **fitted}
 

@@ -50,7 +50,12 @@ def compare_laws(
     exponents: Sequence[float] = (1.0, -2.0),
     **options: object,
 ) -> LawComparison:
-    """Each fixed law against the free fit: chi-square, reduced chi-square, AIC, BIC, p-value.
+    """Each fixed law against the free fit: chi-square, AIC, BIC, p-value.
+
+    Every figure uses one noise model, the free fit's: its sigma (given, or the fitted
+    noise level) and the correlation time tau of its residuals. Correlated residuals carry
+    about 1/tau as much information as independent ones, so chi-square differences count
+    1/tau as much and the sample size is 2N/tau.
 
     Parameters
     ----------
@@ -64,11 +69,11 @@ def compare_laws(
     Returns
     -------
     LawComparison
-        Its ``table`` has one row per law (``free`` first), with ``exponent``, ``chi2``, ``reduced_chi2``,
-        ``n_parameters``, ``aic``, ``bic``, ``delta_bic`` and ``p_value`` of the nested test
-        (the fixed law against the free one: a chi-square test with one degree of freedom
-        when the noise is known, an F test when it is fitted). A small p-value rejects the
-        fixed law.
+        Its ``table`` has one row per law (``free`` first), with ``exponent``, ``chi2`` (in the free fit's
+        noise units), ``reduced_chi2``, ``n_parameters``, ``aic``, ``bic``, ``delta_bic``
+        and ``p_value`` of the nested test (the fixed law against the free one: a chi-square
+        test with one degree of freedom when sigma is known, an F test when the noise is
+        fitted). A small p-value rejects the fixed law.
 
     References
     ----------
@@ -78,24 +83,25 @@ def compare_laws(
     rows = [("free", free)]
     for value in exponents:
         rows.append((f"n = {value:g}", fit_orbit(track_or_tracks, exponent=float(value), **options)))  # type: ignore[arg-type]
-    n_values = 2 * free.n_points
+    tau = free.correlation_time
+    effective = 2 * free.n_points / tau
+    dof = max(2 * free.n_points - len(free.parameter_names), 1)
     sigma_known = free.sigma_known
     table = []
     for label, fit in rows:
         parameters = len(fit.parameter_names)
-        chi2 = fit.chi2
-        delta = chi2 - free.chi2
+        chi2 = fit.chi2 * (fit.noise / free.noise) ** 2   # in the free fit's noise units
+        delta = max(chi2 - free.chi2, 0.0) / tau
         if label == "free":
             p_value = 1.0
         elif sigma_known:
-            p_value = float(stats.chi2.sf(max(delta, 0.0), df=1))
+            p_value = float(stats.chi2.sf(delta, df=1))
         else:
-            f_value = max(delta, 0.0) / (free.chi2 / max(n_values - len(free.parameter_names), 1))
-            p_value = float(stats.f.sf(f_value, 1, max(n_values - len(free.parameter_names), 1)))
+            p_value = float(stats.f.sf(delta / (free.chi2 / dof), 1, max(dof / tau, 1.0)))
         table.append({
             "law": label, "exponent": fit.exponent, "exponent_stderr": fit.exponent_stderr,
-            "chi2": chi2, "reduced_chi2": fit.reduced_chi2, "n_parameters": parameters,
-            "aic": chi2 + 2 * parameters, "bic": chi2 + parameters * math.log(n_values),
+            "chi2": chi2, "reduced_chi2": chi2 / dof, "n_parameters": parameters,
+            "aic": chi2 / tau + 2 * parameters, "bic": chi2 / tau + parameters * math.log(effective),
             "p_value": p_value,
         })
     frame = pd.DataFrame(table).set_index("law")

@@ -115,8 +115,9 @@ def write_report(
     makers: list[tuple[str, str, Callable[[], Figure]]] = []
     if track is not None:
         makers += [("path", "path with the fitted orbit and the centre", lambda: path_figure(track, fit)),
-                   ("residuals", "normalised residuals", lambda: residual_figure(track, fit)),
-                   ("relation", "force-curvature relation, log-log", lambda: relation_figure(fit))]
+                   ("residuals", "normalised residuals", lambda: residual_figure(track, fit))]
+        if fit.relation.log_radius.size:
+            makers.append(("relation", "force-curvature relation, log-log", lambda: relation_figure(fit)))
     if posterior is not None:
         makers += [("corner", "posterior: pairwise marginals", lambda: corner_figure(posterior)),
                    ("trace", "posterior: chains of a few walkers", lambda: trace_figure(posterior))]
