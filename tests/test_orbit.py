@@ -212,7 +212,8 @@ def test_a_century_of_sparse_samples_lands_in_the_right_minimum():
     speed = math.sqrt(GAUSS_K2 * (1 + e) / pericentre)
     track = simulate_orbit(exponent=-2.0, strength=GAUSS_K2, start=(pericentre, 0.0), velocity=(0.0, speed),
                            duration=40 * 365.25, rate=0.2, noise=1e-6, length_unit="au", time_unit="d", rng=5)
-    fit = fit_orbit(Track(t=track.t, x=track.x, y=track.y, length_unit="au", time_unit="d"), centre=(0.0, 0.0))
+    fit = fit_orbit(Track(t=track.t, x=track.x, y=track.y, length_unit="au", time_unit="d"),
+                    centre=(0.0, 0.0))
     assert fit.passed and abs(fit.exponent + 2.0) < 3 * fit.exponent_stderr
     assert fit.noise == pytest.approx(1e-6, rel=0.1)
 
@@ -228,5 +229,6 @@ def test_correlated_residuals_widen_the_errors():
         noise[i] = 0.9 * noise[i - 1] + math.sqrt(1 - 0.81) * 3e-4 * generator.standard_normal(2)
     fit = fit_orbit(Track(t=track.t, x=track.x + noise[:, 0], y=track.y + noise[:, 1]))
     assert 8 < fit.correlation_time < 40
-    assert fit.exponent_stderr == pytest.approx(fit.white_stderrs["exponent"] * math.sqrt(fit.correlation_time))
+    widened = fit.white_stderrs["exponent"] * math.sqrt(fit.correlation_time)
+    assert fit.exponent_stderr == pytest.approx(widened)
     assert fit.diagnostics["correlation"].passed is False
