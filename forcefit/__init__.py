@@ -42,6 +42,9 @@ from .loaders import load_track, load_tracks, save_track
 from .planning import Forecast, forecast_precision, required_duration, required_rate
 from .posterior import Posterior, sample_posterior
 from .propagate import BatchStates, Drag, States, propagate_batch, propagate_reference
+from .reading.lens import LensModel, calibrate_lens, load_lens
+from .reading.perspective import PlaneMapping, fit_homography
+from .reading.video import VideoTrack, track_video
 from .result import Diagnostic, LawFit
 from .simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
 from .track import Track
@@ -65,17 +68,21 @@ __all__ = [
     "GeometryError",
     "InputError",
     "LawFit",
+    "LensModel",
     "NotIdentifiable",
     "PathGeometry",
+    "PlaneMapping",
     "PlaneProjection",
     "Posterior",
     "States",
     "Track",
     "TrackSummary",
+    "VideoTrack",
     "__version__",
     "angular_momentum",
     "apsidal_angle",
     "apsidal_angle_circular",
+    "calibrate_lens",
     "check_duality",
     "circular_period",
     "circular_speed",
@@ -86,6 +93,7 @@ __all__ = [
     "exponent_from_apsidal_angle",
     "exponent_from_precession",
     "find_centre",
+    "fit_homography",
     "fit_acceleration",
     "fit_curvature",
     "fit_orbit",
@@ -94,6 +102,7 @@ __all__ = [
     "forecast_precision",
     "inspect_track",
     "length_factor",
+    "load_lens",
     "load_track",
     "load_tracks",
     "map_power",
@@ -117,4 +126,5 @@ __all__ = [
     "spherical_pendulum_states",
     "strength_unit",
     "time_factor",
+    "track_video",
 ]

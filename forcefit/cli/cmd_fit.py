@@ -25,6 +25,7 @@ from ..report import write_report
 from ..result import LawFit
 from ..track import Track
 from ..units import time_factor
+from ._camera import camera_lines, camera_record
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, pair, read_tracks
 
 _FIT_EXAMPLES = """\
@@ -35,6 +36,7 @@ examples:
   forcefit fit bob.csv --length-unit px --scale "1.6 mm" --flip-y --latitude 52
   forcefit fit path.csv --method shape --profile 8   # time-free, with F(r) in 8 radius bins
   forcefit fit comet.csv --centre 0,0 --json    # the Sun at the origin
+  forcefit fit swing.mp4 --plane-marks 102,388,530,392,488,95,140,97 --plane-rectangle "0.8x0.6 m"
 """
 
 ESTIMATORS: dict[str, Callable[..., LawFit]] = {
@@ -99,7 +101,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
             status = EXIT_FAILED_CHECKS
         page = write_report(fit, args.report, track=track) if args.report else None
         if args.json:
-            report = fit.to_dict()
+            report = {**fit.to_dict(), **camera_record(track)}
             if duality is not None:
                 report["duality"] = duality.to_dict()
             if page is not None:
@@ -111,6 +113,8 @@ def _cmd_fit(args: argparse.Namespace) -> int:
             reports.append(report)
             continue
         print(fit.summary())
+        for line in camera_lines(track):
+            print(line)
         if duality is not None:
             print("  " + duality.to_text())
         for name in ("drag", "rotation_rate"):

@@ -1,0 +1,1 @@
+"""Reading the world into tracks: videos, camera geometry."""
