@@ -87,8 +87,12 @@ class LensModel:
         if points.size == 0:
             return np.asarray(x, dtype=np.float64), np.asarray(y, dtype=np.float64)
         criteria = (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 50, 1e-10)
-        ideal = cv2.undistortPointsIter(points, self.camera_matrix, np.array(self.distortion),
-                                        None, self.camera_matrix, criteria).reshape(-1, 2)
+        matrix, coefficients = self.camera_matrix, np.array(self.distortion)
+        if hasattr(cv2, "undistortPointsIter"):      # OpenCV 4 names the iterated version apart
+            ideal = cv2.undistortPointsIter(points, matrix, coefficients, None, matrix, criteria)
+        else:
+            ideal = cv2.undistortPoints(points, matrix, coefficients, None, None, matrix, criteria)
+        ideal = ideal.reshape(-1, 2)
         return np.asarray(ideal[:, 0], dtype=np.float64), np.asarray(ideal[:, 1], dtype=np.float64)
 
     def describe(self) -> dict[str, Any]:
