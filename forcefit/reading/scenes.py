@@ -18,6 +18,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .._types import FloatArray
+from ..errors import InputError
 
 SUPERSAMPLE = 4
 """Samples per pixel side when integrating the marker over a pixel's area."""
@@ -109,23 +110,24 @@ def write_video(
     with container:
         stream: Any = None
         for frame_array, tick in zip(frames, ticks):
-            colour = frame_array.ndim == 3
             if stream is None:
                 step = max(float(np.median(np.diff(ticks))), 1.0) if len(ticks) > 1 else clock / 30.0
+                if codec != "ffv1" and (frame_array.shape[0] % 2 or frame_array.shape[1] % 2):
+                    raise InputError(f"{target}: H.264 needs an even width and height, got "
+                                     f"{frame_array.shape[1]} x {frame_array.shape[0]} px.")
                 rate = fractions.Fraction(clock / step).limit_denominator(1001)
                 stream = container.add_stream(codec, rate=rate)
                 stream.width, stream.height = frame_array.shape[1], frame_array.shape[0]
                 stream.time_base = base
                 stream.codec_context.time_base = base
-                if codec == "ffv1":
-                    stream.pix_fmt = "bgr0" if colour else "gray"
-                    stream.options = {"flags": "+bitexact"}
-                else:
-                    stream.pix_fmt = "yuv420p"
-                    stream.options = {"crf": str(quality), "threads": "1", "flags": "+bitexact",
-                                      "preset": "medium"}
-            frame = av.VideoFrame.from_ndarray(np.ascontiguousarray(frame_array),
-                                               format="bgr24" if colour else "gray")
+                stream.codec_context.thread_count = 1       # one thread: the same bytes on every run
+                stream.codec_context.thread_type = "NONE"
+                stream.pix_fmt = _pixel_format(codec, frame_array)
+                options = {"flags": "+bitexact"}
+                if codec == "libx264":
+                    options.update(crf=str(quality), preset="medium")
+                stream.options = options
+            frame = av.VideoFrame.from_ndarray(_planes(stream.pix_fmt, frame_array), format=stream.pix_fmt)
             frame.pts = int(tick)
             frame.time_base = base
             for packet in stream.encode(frame):
@@ -134,3 +136,26 @@ def write_video(
             for packet in stream.encode():
                 container.mux(packet)
     return target
+
+
+def _pixel_format(codec: str, picture: NDArray[np.uint8]) -> str:
+    if codec == "ffv1":
+        return "bgra" if picture.ndim == 3 else "gray"
+    return "yuv420p"
+
+
+def _planes(pixel_format: str, picture: NDArray[np.uint8]) -> NDArray[np.uint8]:
+    """The picture already in the stream's pixel format (FFmpeg's own conversion is threaded and
+    does not give the same bytes on every run)."""
+    import cv2
+
+    picture = np.ascontiguousarray(picture)
+    if pixel_format == "gray":
+        return picture
+    if pixel_format == "bgra":
+        return np.ascontiguousarray(np.dstack((picture, np.full(picture.shape[:2], 255, np.uint8))))
+    if picture.ndim == 3:
+        return np.asarray(cv2.cvtColor(picture, cv2.COLOR_BGR2YUV_I420), dtype=np.uint8)
+    height, width = picture.shape
+    chroma = np.full((height // 2, width), 128, np.uint8)     # two quarter-size planes, grey
+    return np.ascontiguousarray(np.vstack((picture, chroma)))
