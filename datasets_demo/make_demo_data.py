@@ -296,8 +296,8 @@ def tilted_airtable() -> dict:
     marks = [(float(u), float(v)) for u, v, _ in (project(np.array(x), np.array(y)) for x, y in corners)]
     for u, v in marks:
         for du, dv in ((6, 0), (0, 6)):
-            cv2.line(scene, (int(16 * (u - du)), int(16 * (v - dv))), (int(16 * (u + du)), int(16 * (v + dv))),
-                     (235.0, 235.0, 235.0), 2, cv2.LINE_AA, 4)
+            start, end = (int(16 * (u - du)), int(16 * (v - dv))), (int(16 * (u + du)), int(16 * (v + dv)))
+            cv2.line(scene, start, end, (235.0, 235.0, 235.0), 2, cv2.LINE_AA, 4)
     scene *= light[:, :, None]
     frames = []
     for index, t in enumerate(times):
