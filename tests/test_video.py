@@ -3,6 +3,7 @@ written in the test with OpenCV's video writer (lossless FFV1) or PyAV (H.264, a
 
 import json
 import math
+import sys
 
 import cv2
 import numpy as np
@@ -188,9 +189,22 @@ def test_opencv_reader_gives_the_same_track_of_a_constant_rate_video(hooke_video
     assert np.allclose(fallback.x, container.x, equal_nan=True)
 
 
+def test_without_pyav_opencv_reads_and_says_so(tmp_path, short_scene, monkeypatch):
+    _, positions = short_scene
+    rng = np.random.default_rng(5)
+    pictures = [to_pixels(add_marker(_backdrop(), x, y, radius=5.0, contrast=150.0), noise=2.0, rng=rng)
+                for x, y in positions[:20]]
+    path = _write(tmp_path / "short.avi", pictures)
+    monkeypatch.setitem(sys.modules, "av", None)                 # as if PyAV were not installed
+    tracked = track_video(path)
+    assert "PyAV is not installed" in tracked.timestamps
+    assert np.allclose(tracked.t, np.arange(20) / RATE, atol=1e-6)
+
+
 def test_a_phone_video_keeps_its_variable_frame_rate(tmp_path):
-    # A phone writes H.264 in .mp4 with a 90 kHz clock and uneven frame intervals (invented jitter
-    # of +-4 ms and one skipped frame); the tracker must return the container's times exactly.
+    # A phone writes H.264 in .mp4 with a 90 kHz clock and uneven frame intervals (from memory);
+    # here invented jitter of +-4 ms and one skipped frame. The tracker must return the container's
+    # times exactly.
     rng = np.random.default_rng(4)
     times = np.arange(90) / RATE + rng.uniform(-0.004, 0.004, 90)
     times = np.delete(times, 40) - times[0]
@@ -208,7 +222,7 @@ def test_a_phone_video_keeps_its_variable_frame_rate(tmp_path):
 
 def test_a_video_marked_as_turned_is_tracked_upright(tmp_path):
     # Phones store portrait videos sideways with a rotation in the container; players (and OpenCV)
-    # turn them upright, and positions must refer to that upright picture.
+    # turn them upright (common practice), and positions must refer to that upright picture.
     import av
 
     picture = np.full((48, 64), 40, np.uint8)

@@ -95,7 +95,8 @@ def _opencv_frames(path: Path, colour: bool, info: StreamInfo) -> Iterator[tuple
     capture = cv2.VideoCapture(str(path))
     if not capture.isOpened():
         raise _unreadable(path)
-    info.timestamps = "OpenCV (frame positions; may be uneven for a variable frame rate)"
+    if info.timestamps.startswith("container"):      # unless the caller already said why OpenCV reads
+        info.timestamps = "OpenCV (frame positions; may be uneven for a variable frame rate)"
     info.rate = float(capture.get(cv2.CAP_PROP_FPS)) or math.nan
     info.count = int(capture.get(cv2.CAP_PROP_FRAME_COUNT) or 0)
     try:

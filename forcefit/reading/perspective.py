@@ -183,7 +183,7 @@ class PlaneMapping:
     --------
     >>> marks = [(100.0, 300.0), (500.0, 300.0), (500.0, 100.0), (100.0, 100.0)]
     >>> mapping = PlaneMapping.from_rectangle(marks, width=0.8, height=0.4, unit="m")
-    >>> [round(float(v), 6) for v in mapping.apply(np.array([300.0]), np.array([200.0]))]
+    >>> [round(float(v[0]), 6) for v in mapping.apply(np.array([300.0]), np.array([200.0]))]
     [0.4, 0.2]
     """
 

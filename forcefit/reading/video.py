@@ -320,6 +320,21 @@ def track_video(
     ------
     InputError
         A missing or unreadable file, bad options, or too few frames with the marker.
+
+    Examples
+    --------
+    A bright dot moving 2 px per frame to the right, written losslessly at 25 frames per s:
+
+    >>> import pathlib, tempfile
+    >>> from forcefit.reading.scenes import add_marker, to_pixels, write_video
+    >>> floor, rng = np.full((48, 64), 40.0), np.random.default_rng(0)
+    >>> frames = [to_pixels(add_marker(floor, np.array([10.0 + 2 * i]), np.array([24.0]), radius=3.0,
+    ...                                contrast=150.0), noise=0.0, rng=rng) for i in range(20)]
+    >>> path = write_video(pathlib.Path(tempfile.mkdtemp()) / "dot.mkv", frames, np.arange(20) / 25.0,
+    ...                    codec="ffv1")
+    >>> tracked = track_video(path)
+    >>> tracked.n_frames, float(tracked.t[3]), round(float(tracked.x[3]), 3), round(float(tracked.y[3]), 3)
+    (20, 0.12, 16.0, 24.0)
     """
     file = Path(path)
     if not file.is_file():
