@@ -20,6 +20,7 @@ from scipy.integrate import solve_ivp
 
 from forcefit.dynamics.propagate import Drag, propagate_reference
 from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum
+from forcefit.reading.scenes import add_marker, to_pixels, write_video
 
 HERE = Path(sys.argv[1]) if len(sys.argv) > 1 else Path(__file__).resolve().parent
 CLASS = HERE / "class_pendulum"
@@ -246,10 +247,83 @@ def class_set() -> dict:
             "runs": runs}
 
 
+def _tripod_camera(tilt_deg: float, *, target: tuple[float, float], distance: float, focal: float,
+                   centre: tuple[float, float]):
+    """A pinhole camera above the table's front edge, its axis tilted from the vertical by tilt_deg.
+
+    Returns project(x, y) -> (u, v, depth): image px (rows downwards) and depth along the axis (m)
+    of table points (m)."""
+    tilt = math.radians(tilt_deg)
+    eye = np.array([target[0], target[1] - distance * math.sin(tilt), distance * math.cos(tilt)])
+    forward = (np.array([target[0], target[1], 0.0]) - eye) / distance
+    right = np.array([1.0, 0.0, 0.0])
+    down = np.cross(forward, right)
+
+    def project(x, y):
+        ray = np.stack([x, y, np.zeros_like(x)], axis=-1) - eye
+        depth = ray @ forward
+        return centre[0] + focal * (ray @ right) / depth, centre[1] + focal * (ray @ down) / depth, depth
+
+    return project
+
+
+def tilted_airtable() -> dict:
+    """A puck on an air table filmed by a phone on a tripod at 25 degrees from the vertical."""
+    import cv2
+
+    rng = np.random.default_rng(1825)
+    width, height, focal, puck = 480, 270, 380.0, 0.03            # px, px, px, m (radius)
+    project = _tripod_camera(25.0, target=(0.40, 0.30), distance=1.5, focal=focal, centre=(240.0, 135.0))
+    omega, turn = 2.0 * math.pi / 2.2, math.radians(20.0)         # rad/s; the ellipse's tilt
+    semi_major, semi_minor, post = 0.25, 0.12, (0.40, 0.30)       # m
+
+    def position(t):
+        a, b = semi_major * np.cos(omega * t), semi_minor * np.sin(omega * t)
+        return (post[0] + a * math.cos(turn) - b * math.sin(turn),
+                post[1] + a * math.sin(turn) + b * math.cos(turn))
+
+    times = np.arange(301) / 30.0 + rng.uniform(-0.003, 0.003, 301)
+    times = np.delete(times - times[0], 150)                     # the phone skipped a frame
+    rows, cols = np.mgrid[0:height, 0:width]
+    light = 1.0 - 0.25 * ((cols - 240.0) ** 2 + (rows - 120.0) ** 2) / 240.0**2     # vignetting
+    table = np.array([p for p in zip(*project(np.array([-0.1, 0.9, 0.9, -0.1]),
+                                              np.array([-0.1, -0.1, 0.7, 0.7]))[:2])])
+    scene = np.full((height, width, 3), (150.0, 150.0, 150.0))              # BGR, the floor
+    mask = np.zeros((height, width), np.uint8)
+    cv2.fillPoly(mask, [np.rint(table * 16).astype(np.int32)], 1, cv2.LINE_AA, 4)
+    scene[mask > 0] = (110.0, 60.0, 25.0)                                    # the table, dark blue
+    corners = [(0.0, 0.0), (0.8, 0.0), (0.8, 0.6), (0.0, 0.6)]               # tape marks, m
+    marks = [(float(u), float(v)) for u, v, _ in (project(np.array(x), np.array(y)) for x, y in corners)]
+    for u, v in marks:
+        for du, dv in ((6, 0), (0, 6)):
+            start, end = (int(16 * (u - du)), int(16 * (v - dv))), (int(16 * (u + du)), int(16 * (v + dv)))
+            cv2.line(scene, start, end, (235.0, 235.0, 235.0), 2, cv2.LINE_AA, 4)
+    scene *= light[:, :, None]
+    frames = []
+    for index, t in enumerate(times):
+        x, y = position(t + (np.arange(5) / 4 - 0.5) / 120.0)              # 1/120 s exposure
+        u, v, depth = project(np.asarray(x), np.asarray(y))
+        radius = focal * puck / float(np.mean(depth))
+        picture = add_marker(scene, u, v, radius=radius, contrast=np.array([125.0, 175.0, 210.0]) * 0.9)
+        if 200 <= index < 204:                        # a dark sleeve reaches in from above the puck
+            bottom, left = int(np.mean(v)) + 16, int(np.mean(u)) - 30 + 4 * (index - 200)
+            picture[:bottom, max(left, 0):left + 60] = (35.0, 30.0, 30.0)
+        frames.append(to_pixels(picture, noise=2.0, rng=rng))
+    write_video(HERE / "airtable_tilted.mp4", frames, times, codec="libx264", quality=20)
+    marks_px = [[round(u, 2), round(v, 2)] for u, v in marks]
+    return {"file": "airtable_tilted.mp4",
+            "title": "air-table puck filmed at 25 degrees (phone video, variable frame rate)",
+            "load": {"plane_mapping": {"marks": marks_px, "rectangle": [0.8, 0.6], "unit": "m"}},
+            "fit": {},
+            "expected": {"exponent": 1.0, "strength": omega**2, "strength_unit": "s^-2",
+                         "centre_m": list(post), "camera_tilt_deg": 25.0, "frames": int(times.size),
+                         "hidden_frames": [200, 201, 202, 203]}}
+
+
 def main() -> None:
     HERE.mkdir(parents=True, exist_ok=True)
     manifest = {"about": "Invented demo scenarios for forcefit; see README.md in this folder.",
-                "datasets": [stairwell_pendulum(), airtable_puck(), comet(), class_set()]}
+                "datasets": [stairwell_pendulum(), airtable_puck(), comet(), class_set(), tilted_airtable()]}
     (HERE / "manifest.json").write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
 
 

@@ -1,7 +1,7 @@
 """forcefit: infer the central force law F(r) = -k r**n r_hat behind a planar trajectory.
 
 The entry points a user needs; everything else is importable from its subpackage:
-`forcefit.reading` (files to tracks), `forcefit.geometry` (smoothing, curvature, the centre),
+`forcefit.reading` (files and videos to tracks), `forcefit.geometry` (smoothing, curvature, the centre),
 `forcefit.dynamics` (laws, propagation, simulation, duality), `forcefit.estimators` (the fits
 and their results), `forcefit.inference` (posterior, planning, law comparison),
 `forcefit.analysis` (apsides, the duality check), `forcefit.outputs` (figures, reports) and
@@ -23,12 +23,12 @@ from .estimators import (
     fit_curvature,
     fit_orbit,
     fit_shape,
-    force_profile,
 )
 from .inference.comparison import compare_laws
 from .inference.planning import forecast_precision
 from .inference.posterior import Posterior, sample_posterior
 from .reading import inspect_track, load_track, load_tracks, save_track
+from .reading.video import track_video
 from .track import Track
 
 __all__ = [
@@ -47,7 +47,6 @@ __all__ = [
     "fit_curvature",
     "fit_orbit",
     "fit_shape",
-    "force_profile",
     "forecast_precision",
     "grade_runs",
     "inspect_track",
@@ -57,4 +56,5 @@ __all__ = [
     "sample_posterior",
     "save_track",
     "simulate_orbit",
+    "track_video",
 ]

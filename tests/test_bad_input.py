@@ -79,6 +79,8 @@ CASES = [
      "run,t [s],x [m],y [m]\n" + "\n".join(f"{'' if i == 5 else 'a'},{t},{np.cos(t)},{np.sin(t)}"
                                             for i, t in enumerate(T[:20])),
      [], InputError, ["run.csv", "row 7", 'column "run"', "id is empty"]),
+    ("unreadable video", "run.mp4", b"\x00\x00\x00\x18ftypmp42 and then nothing", [], InputError,
+     ["run.mp4", "cannot be read as a video", "copy the file again"]),
     ("ragged JSON", "run.json", json.dumps({"t": [0, 1, 2], "x": [1, 0], "y": [0, 1, 0]}), [],
      InputError, ["run.json", "different lengths"]),
 ]

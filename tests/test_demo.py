@@ -4,20 +4,44 @@ import json
 import subprocess
 import sys
 
+import numpy as np
 import pytest
 
 from forcefit.apps.demo import demo_datasets
 from forcefit.errors import InputError
+from forcefit.estimators import fit_orbit
+from forcefit.reading.video import is_video, track_video
 
 from .conftest import DEMO
 
 
-def test_demo_data_regenerates_byte_for_byte(tmp_path):
-    subprocess.run([sys.executable, str(DEMO / "make_demo_data.py"), str(tmp_path)], check=True)
-    generated = sorted(p.relative_to(tmp_path) for p in tmp_path.rglob("*") if p.is_file())
+@pytest.fixture(scope="module")
+def regenerated(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("demo")
+    subprocess.run([sys.executable, str(DEMO / "make_demo_data.py"), str(folder)], check=True)
+    return folder
+
+
+def test_demo_data_regenerates_byte_for_byte(regenerated):
+    generated = sorted(p.relative_to(regenerated) for p in regenerated.rglob("*") if p.is_file())
     assert generated, "the generator wrote nothing"
     for relative in generated:
-        assert (tmp_path / relative).read_bytes() == (DEMO / relative).read_bytes(), relative
+        if not is_video(relative):
+            assert (regenerated / relative).read_bytes() == (DEMO / relative).read_bytes(), relative
+
+
+def test_demo_video_regenerates_byte_for_byte_or_tracks_the_same(regenerated):
+    # The H.264 encoder writes the same bytes on every run of one PyAV build (bit-exact flags, one
+    # thread), but another build may encode differently; then the two videos must at least show the
+    # puck in the same places (issue 18; see datasets_demo/README.md).
+    for video in (p for p in DEMO.iterdir() if is_video(p)):
+        again = regenerated / video.name
+        if again.read_bytes() == video.read_bytes():
+            continue
+        bundled, fresh = track_video(video), track_video(again)
+        assert np.array_equal(bundled.t, fresh.t) and np.array_equal(bundled.found, fresh.found)
+        found = bundled.found
+        assert np.sqrt(np.mean((bundled.x - fresh.x)[found] ** 2 + (bundled.y - fresh.y)[found] ** 2)) < 0.05
 
 
 def test_every_dataset_has_a_card_and_states_its_truth():
@@ -36,7 +60,7 @@ def test_demo_runs_load_except_the_corrupt_one():
                 loaded += dataset.load(path)
             except InputError as exc:
                 refused.append((path.name, str(exc)))
-    assert len(loaded) == 14
+    assert len(loaded) == 15
     assert [name for name, _ in refused] == ["run_12.csv"]
 
 
@@ -46,3 +70,18 @@ def test_stairwell_calibration_gives_metres_scale_amplitude():
     # 0.55 m launch amplitude, filmed at 1.6 mm per pixel, calibrated back to mm.
     assert track.length_unit == "mm"
     assert track.x.max() == pytest.approx(550.0, abs=4.0)
+
+
+def test_tilted_airtable_video_tracks_and_fits_on_the_plane():
+    dataset = next(d for d in demo_datasets(DEMO) if d.paths[0].suffix == ".mp4")
+    (track,) = dataset.load(dataset.paths[0])
+    assert track.length_unit == "m" and track.metadata["video"]["n_lost"] == 4
+    assert track.metadata["video"]["variable_rate"]
+    assert track.metadata["plane_mapping"]["unit"] == "m"
+    fit = fit_orbit(track)
+    expected = dataset.expected
+    # Source: Newton 1687, Principia, Book I, Prop. X (an ellipse about its centre: n = 1, k = w**2).
+    assert fit.passed
+    assert abs(fit.exponent - expected["exponent"]) < 3 * fit.exponent_stderr
+    assert abs(fit.strength - expected["strength"]) < 3 * fit.strength_stderr
+    assert np.allclose(fit.centre, expected["centre_m"], atol=3 * max(fit.centre_stderr))

@@ -10,6 +10,7 @@ from typing import Any
 from ..errors import InputError
 from ..reading.coordinates import Calibration
 from ..reading.loaders import load_tracks
+from ..reading.perspective import PlaneMapping
 from ..track import Track
 
 TEXT_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".json", ".xlsx", ".parquet")
@@ -56,6 +57,11 @@ class DemoDataset:
             calibration = dict(options["calibration"])
             calibration["origin"] = tuple(calibration.get("origin", (0.0, 0.0)))
             options["calibration"] = Calibration(**calibration)
+        if "plane_mapping" in options:       # {"marks": [[x, y], ...], "rectangle": [w, h], "unit": ...}
+            plane = options["plane_mapping"]
+            width, height = plane["rectangle"]
+            options["plane_mapping"] = PlaneMapping.from_rectangle(plane["marks"], width=width, height=height,
+                                                                   unit=plane["unit"])
         return load_tracks(path, **options)
 
 

@@ -13,6 +13,7 @@ from .._version import __version__
 from ..errors import ForcefitError
 from . import (
     cmd_apsides,
+    cmd_calibrate_lens,
     cmd_demo,
     cmd_dual,
     cmd_fit,
@@ -21,6 +22,7 @@ from . import (
     cmd_plan,
     cmd_sample,
     cmd_simulate,
+    cmd_track,
 )
 from ._common import EXIT_BAD_INPUT, EXIT_OK, FORMATTER, loading_options
 
@@ -30,6 +32,7 @@ examples:
   forcefit fit runs/puck_03.csv --length-unit mm --drag linear
   forcefit sample runs/puck_03.csv --length-unit mm --drag linear --save chain.h5
   forcefit simulate --exponent -1.5 --duration 20 --rate 30 --noise 0.005 --out rosette.csv
+  forcefit track swing.mp4 --out swing.csv --overlay swing.png
   forcefit demo
 """
 
@@ -44,7 +47,7 @@ def build_parser() -> argparse.ArgumentParser:
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     loading = loading_options()
     for module in (cmd_inspect, cmd_fit, cmd_sample, cmd_apsides, cmd_dual, cmd_plan, cmd_grade,
-                   cmd_simulate, cmd_demo):
+                   cmd_simulate, cmd_demo, cmd_track, cmd_calibrate_lens):
         module.register(commands, loading)
     return parser
 

@@ -15,6 +15,7 @@ from ..errors import InputError
 from ..reading.coordinates import Calibration
 from ..reading.loaders import load_tracks
 from ..track import Track
+from ._camera import add_plane_options, add_tracking_options, plane_mapping, tracking_keywords
 
 EXIT_OK, EXIT_FAILED_CHECKS, EXIT_BAD_INPUT = 0, 1, 2
 FORMATTER = argparse.RawDescriptionHelpFormatter
@@ -81,6 +82,8 @@ def loading_options() -> argparse.ArgumentParser:
                              help="turn the calibrated axes counter-clockwise by DEG degrees")
     calibration.add_argument("--flip-y", action="store_true",
                              help="image rows grow downwards: reverse the y axis")
+    add_plane_options(parent)
+    add_tracking_options(parent)
     return parent
 
 
@@ -109,7 +112,8 @@ def loading_keywords(args: argparse.Namespace) -> dict[str, object]:
     sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
     return {**dict(args.column), "length_unit": args.length_unit, "time_unit": args.time_unit,
             "frame_rate": args.frame_rate, "calibration": _calibration(args), "sheet": sheet,
-            "track_id": args.track_id}
+            "track_id": args.track_id, "plane_mapping": plane_mapping(args),
+            "video": tracking_keywords(args)}
 
 
 def read_tracks(path: str, args: argparse.Namespace) -> list[Track]:

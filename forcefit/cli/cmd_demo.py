@@ -16,8 +16,10 @@ from ..estimators.result import LawFit
 from ..geometry.path import describe_path
 from ..inference.posterior import sample_posterior
 from ..reading.inspection import inspect_track
+from ..reading.video import is_video
 from ..track import Track
 from ..units import format_measurement
+from ._camera import camera_lines
 from ._common import EXIT_OK
 
 
@@ -32,6 +34,8 @@ def _cmd_demo(args: argparse.Namespace) -> int:
             _grade_class(dataset, args.out)
             continue
         for path in dataset.paths:
+            if is_video(path):
+                print(f"   tracking the marker in {path.name}, then fitting on the plane the marks define")
             try:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore", ForcefitWarning)
@@ -71,7 +75,7 @@ def _grade_class(dataset: DemoDataset, out: str) -> None:
 def _demo_track(track: Track, options: dict[str, Any]) -> None:
     """The inspection table, the orbit fit in full, and the time-free estimators in a line each."""
     centre = tuple(options["centre"]) if "centre" in options else None
-    print(inspect_track(track).to_text())
+    print("\n".join([inspect_track(track).to_text(), *camera_lines(track)]))
     fit = fit_orbit(track, centre=centre, drag=options.get("drag"),
                     rotation_rate=options.get("rotation_rate"))
     print(fit.to_text())

@@ -12,6 +12,7 @@ from ..estimators import ESTIMATORS, LawFit, OrbitFit, fit_orbit, force_profile,
 from ..inference.comparison import compare_laws
 from ..outputs.report import write_report
 from ..track import Track
+from ._camera import camera_lines, camera_record
 from ._common import (
     EXIT_FAILED_CHECKS,
     EXIT_OK,
@@ -32,6 +33,7 @@ examples:
   forcefit fit bob.csv --length-unit px --scale "1.6 mm" --flip-y --latitude 52
   forcefit fit path.csv --method shape --profile 8   # time-free, with F(r) in 8 radius bins
   forcefit fit comet.csv --centre 0,0 --json    # the Sun at the origin
+  forcefit fit swing.mp4 --plane-marks 102,388,530,392,488,95,140,97 --plane-rectangle "0.8x0.6 m"
 """
 
 ORBIT_ONLY = ("fix_exponent", "drag", "compare", "rotation_rate", "latitude")
@@ -75,8 +77,8 @@ def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, An
     duality = check_duality(track, fit) if args.check_duality else None
     passed = fit.passed and (duality is None or duality.passed)
     page = write_report(fit, args.report, track=track) if args.report else None
-    report = fit.to_dict()
-    lines = [fit.to_text()]
+    report = {**fit.to_dict(), **camera_record(track)}
+    lines = [fit.to_text(), *camera_lines(track)]
     if duality is not None:
         report["duality"] = duality.to_dict()
         lines.append("  " + duality.to_text())

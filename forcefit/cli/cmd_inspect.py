@@ -9,6 +9,7 @@ from typing import Any
 
 from ..errors import ForcefitError, ForcefitWarning
 from ..reading.inspection import inspect_track
+from ._camera import camera_lines, camera_record
 from ._common import EXIT_BAD_INPUT, EXIT_OK, FORMATTER, Reports, read_tracks
 
 _INSPECT_EXAMPLES = """\
@@ -17,6 +18,7 @@ examples:
   forcefit inspect bob.csv --length-unit px --scale "1.6 mm" --origin 958.3,541.7 --flip-y
   forcefit inspect tracker.tsv --column t=Zeit --column x=X-Pos --column y=Y-Pos --json
   forcefit inspect frames.csv --frame-rate 240
+  forcefit inspect swing.csv --plane-marks 102,388,530,392,488,95,140,97 --plane-rectangle "0.8x0.6 m"
 """
 
 
@@ -26,13 +28,15 @@ def _cmd_inspect(args: argparse.Namespace) -> int:
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", ForcefitWarning)  # shown in the summary
-                summaries = [inspect_track(track) for track in read_tracks(path, args)]
+                tracks = read_tracks(path, args)
+                summaries = [inspect_track(track) for track in tracks]
         except ForcefitError as exc:
             print(f"forcefit: {exc}", file=sys.stderr)
             status = EXIT_BAD_INPUT
             continue
-        for summary in summaries:
-            reports.add(summary.to_dict(), summary.to_text())
+        for summary, track in zip(summaries, tracks):
+            reports.add({**summary.to_dict(), **camera_record(track)},
+                        "\n".join([summary.to_text(), *camera_lines(track)]))
     reports.close()
     return status
 

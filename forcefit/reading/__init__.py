@@ -1,16 +1,27 @@
-"""Reading: files and DataFrames to `Track`s — tables, column roles, calibration, inspection."""
+"""Reading: files, DataFrames and videos to `Track`s — tables, column roles, calibration,
+camera geometry (plane marks, lens), video tracking, inspection."""
 
 from .coordinates import Calibration, PlaneProjection, project_to_plane
 from .inspection import TrackSummary, inspect_track
+from .lens import LensModel, calibrate_lens, load_lens
 from .loaders import load_track, load_tracks, save_track
+from .perspective import PlaneMapping, fit_homography
+from .video import VideoTrack, track_video
 
 __all__ = [
     "Calibration",
+    "LensModel",
+    "PlaneMapping",
     "PlaneProjection",
     "TrackSummary",
+    "VideoTrack",
+    "calibrate_lens",
+    "fit_homography",
     "inspect_track",
+    "load_lens",
     "load_track",
     "load_tracks",
     "project_to_plane",
     "save_track",
+    "track_video",
 ]

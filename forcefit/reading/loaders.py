@@ -1,4 +1,4 @@
-"""Files and DataFrames → `Track`s: column detection, units, calibration, 3-D projection.
+"""Files, DataFrames and videos → `Track`s: column detection, units, calibration, 3-D projection.
 
 Every refusal is an `InputError` that names the file, the row (1-based, as a
 spreadsheet shows it), the column, what was found and what to do.
@@ -9,7 +9,7 @@ from __future__ import annotations
 import os
 import warnings
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, TypeAlias
 
@@ -24,7 +24,9 @@ from ..units import PIXEL, length_factor, parse_length_unit, parse_time_unit
 from .columns import DAY_COLUMNS, NUMERIC_ROLES, Column, map_columns, normalise, numbers, track_ids
 from .coordinates import Calibration, project_to_plane
 from .inspection import second_difference_noise
+from .perspective import PlaneMapping
 from .tables import RawTable, read_table
+from .video import is_video, track_video
 
 Source: TypeAlias = str | os.PathLike[str] | pd.DataFrame
 
@@ -48,6 +50,7 @@ class _Options:
     frame_rate: float | None
     calibration: Calibration | None
     name: str | None
+    plane_mapping: PlaneMapping | None = None
 
 
 def _unit_of(table: RawTable, column: Column, parse: Callable[[str], str]) -> str:
@@ -204,20 +207,22 @@ def _make_track(
     metadata: dict[str, Any] = {}
     length_unit = units["length"]
     if "z" in values:
-        if options.calibration is not None:
+        if options.calibration is not None or options.plane_mapping is not None:
             raise InputError(
                 "a calibration applies to 2-D image positions, but the data have a z column. "
                 "Calibrate before exporting 3-D positions, or drop the calibration."
             )
         x, y, metadata["plane"] = _to_plane(x, y, values["z"], sigma, source, length_unit, notes)
-    if options.calibration is not None:
+    if options.plane_mapping is not None:
+        x, y, sigma, length_unit = _to_plane_of_motion(options.plane_mapping, x, y, sigma, source, metadata)
+    elif options.calibration is not None:
         x, y = options.calibration.apply(x, y)
         sigma = None if sigma is None else sigma * options.calibration.scale
         metadata["calibration"] = options.calibration.describe()
         length_unit = options.calibration.unit
     elif length_unit == PIXEL and units["length_from"] != "default":
         metadata["calibration"] = None
-    if units["length_from"] == "default" and options.calibration is None:
+    if units["length_from"] == "default" and options.calibration is None and options.plane_mapping is None:
         notes.append("no length unit in the header or the options; assuming m.")
     if t is not None and units["time_from"] == "default":
         notes.append("no time unit in the header or the options; assuming s.")
@@ -260,6 +265,8 @@ def load_tracks(
     name: str | None = None,
     sheet: str | int = 0,
     track_id: str | None = None,
+    plane_mapping: PlaneMapping | None = None,
+    video: Mapping[str, Any] | None = None,
 ) -> list[Track]:
     """Read every track in a file or DataFrame (one per value of the id column).
 
@@ -267,7 +274,8 @@ def load_tracks(
     ----------
     source : path-like or DataFrame
         CSV, TSV, semicolon-separated (decimal commas allowed), whitespace-separated
-        text, Excel (.xlsx), Parquet, JSON records, or a DataFrame.
+        text, Excel (.xlsx), Parquet, JSON records, a DataFrame, or a video (.mp4,
+        .avi, .mov, .mkv: the marker is tracked first, see `forcefit.track_video`).
     t, x, y, z, sigma, frame, id : str, optional
         Column names to use, overriding detection (case-insensitive).
     length_unit, time_unit : str, optional
@@ -282,6 +290,11 @@ def load_tracks(
         Excel sheet.
     track_id : str, optional
         Read only the track with this id.
+    plane_mapping : PlaneMapping, optional
+        Maps image positions onto the plane of motion (a camera looking at it from an
+        angle); instead of ``calibration``.
+    video : mapping, optional
+        Keyword options of `forcefit.track_video` for a video source.
 
     Returns
     -------
@@ -296,12 +309,12 @@ def load_tracks(
     >>> [(track.name, track.length_unit) for track in load_tracks(frame)]
     [('track[a]', 'mm'), ('track[b]', 'mm')]
     """
-    table = read_table(source, sheet=sheet)
+    table, tracked = _read_source(source, sheet, video, plane_mapping, calibration)
     explicit = {"t": t, "x": x, "y": y, "z": z, "sigma": sigma, "frame": frame, "id": id}
     chosen = map_columns(table, explicit)
     options = _Options(
         length_unit=length_unit, time_unit=time_unit, frame_rate=frame_rate,
-        calibration=calibration, name=name,
+        calibration=calibration, name=name, plane_mapping=plane_mapping,
     )
     notes: list[str] = []
     units = _units(table, chosen, options, notes)
@@ -334,6 +347,7 @@ def load_tracks(
             n_rows_read=int(member.sum() + dropped.size),
             dropped_rows=int(dropped.size),
             dropped_row_numbers=dropped[:50].tolist(),
+            **({"video": tracked} if tracked is not None else {}),
         ))
     return tracks
 
@@ -387,3 +401,39 @@ def save_track(track: Track, path: str | os.PathLike[str]) -> Path:
             lines.append(f"# {key}: {value}")
     body = track.to_frame().to_csv(index=False, float_format="%.10g", lineterminator="\n")
     return write_atomic(path, "\n".join(lines) + "\n" + body)
+
+
+# Videos and perspective: a video is tracked into a table first; plane marks map image
+# positions onto the plane of motion instead of a calibration.
+
+
+def _read_source(
+    source: Source, sheet: str | int, video: Mapping[str, Any] | None,
+    plane_mapping: PlaneMapping | None, calibration: Calibration | None,
+) -> tuple[RawTable, dict[str, Any] | None]:
+    """The raw table of a file or DataFrame, tracking a video first; and the tracking report."""
+    if plane_mapping is not None and calibration is not None:
+        raise InputError("plane marks and a calibration were both given; the plane marks already fix "
+                         "the scale, origin and axes. Give one of them (--plane-marks or --scale/--marks).")
+    if isinstance(source, pd.DataFrame) or not is_video(source):
+        if set(video or ()) - {"progress"}:
+            raise InputError(f"{source if not isinstance(source, pd.DataFrame) else '<DataFrame>'}: "
+                             "tracking options apply to videos (.mp4, .avi, .mov, .mkv) only; drop them.")
+        return read_table(source, sheet=sheet), None
+    tracked = track_video(source, **dict(video or {}))
+    if plane_mapping is not None:
+        plane_mapping.check_image_size((tracked.width, tracked.height), str(source))
+    table = read_table(tracked.to_frame(), sheet=sheet)
+    return replace(table, source=str(source), layout="video"), tracked.describe()
+
+
+def _to_plane_of_motion(
+    mapping: PlaneMapping, x: FloatArray, y: FloatArray, sigma: FloatArray | None, source: str,
+    metadata: dict[str, Any],
+) -> tuple[FloatArray, FloatArray, FloatArray | None, str]:
+    """Plane positions, their sigma (scaled by the local pixel size) and unit; records the mapping."""
+    if sigma is not None:
+        sigma = sigma * mapping.local_scale(x, y)
+    x, y = mapping.apply(x, y, source=source)
+    metadata["plane_mapping"] = mapping.describe()
+    return x, y, sigma, mapping.unit
