@@ -6,15 +6,17 @@ from __future__ import annotations
 import argparse
 import json
 import re
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any, Literal
 
+from ..dynamics.forces import ExtraForces, Perturber, Relativity, Yukawa
 from ..dynamics.laws import lab_rotation_rate
 from ..dynamics.propagate import Drag
 from ..errors import InputError
 from ..reading.coordinates import Calibration
 from ..reading.loaders import load_tracks
 from ..track import Track
+from ..units import length_factor, time_factor
 from ._camera import add_plane_options, add_tracking_options, plane_mapping, tracking_keywords
 
 EXIT_OK, EXIT_FAILED_CHECKS, EXIT_BAD_INPUT = 0, 1, 2
@@ -166,6 +168,13 @@ def add_orbit_options(parser: argparse.ArgumentParser) -> None:
                        help="camera fixed in a lab at this latitude: the Earth's rotation "
                             "(x east, y north, seen from above)")
     orbit.add_argument("--fit-rotation", action="store_true", help="fit the frame's rotation rate")
+    orbit.add_argument(
+        "--extra", action="append", default=[], metavar="FORCE",
+        help='a known force to add to the power law (repeatable): "relativity" (the central mass\'s '
+             'first post-Newtonian term; "relativity:gm=GM" in the track\'s units, GM of the Sun by '
+             'default for au and days), "yukawa:range=L" (a Yukawa term of range L; its strength is '
+             'fitted), "body:file=PATH,gm=GM" (a perturbing body\'s timed positions in the same '
+             'coordinates and units)')
 
 
 def rotation_option(args: argparse.Namespace, track: Track) -> float | Literal["fit"] | None:
@@ -180,4 +189,62 @@ def rotation_option(args: argparse.Namespace, track: Track) -> float | Literal["
 def orbit_options(args: argparse.Namespace, track: Track) -> dict[str, Any]:
     """The keyword arguments of `fit_orbit` the command line asked for."""
     return {"exponent": args.fix_exponent, "drag": args.drag, "centre": args.centre,
-            "loss": "soft_l1" if args.robust else "linear", "rotation_rate": rotation_option(args, track)}
+            "loss": "soft_l1" if args.robust else "linear", "rotation_rate": rotation_option(args, track),
+            "extra": extra_forces(getattr(args, "extra", []), track)}
+
+
+SPEED_OF_LIGHT = 299_792_458.0
+"""m/s, exact by the definition of the metre (17th CGPM, 1983)."""
+
+SUN_GM_AU_DAY = 2.959122082855911e-4
+"""au**3/d**2: k_G**2, Gauss's constant squared (IAU 1976 system)."""
+
+
+def _spec(text: str) -> tuple[str, dict[str, str]]:
+    kind, _, rest = text.partition(":")
+    fields: dict[str, str] = {}
+    for part in filter(None, (piece.strip() for piece in rest.split(","))):
+        key, equals, value = part.partition("=")
+        if not equals:
+            raise InputError(f'--extra "{text}": "{part}" is not key=value; write e.g. '
+                             '"yukawa:range=1.5" or "body:file=jupiter.csv,gm=2.8e-7".')
+        fields[key.strip().lower()] = value.strip()
+    return kind.strip().lower(), fields
+
+
+def _number(text: str, fields: dict[str, str], key: str) -> float:
+    if key not in fields:
+        raise InputError(f'--extra "{text}" needs {key}=...; e.g. "yukawa:range=1.5" or '
+                         '"body:file=jupiter.csv,gm=2.8e-7".')
+    try:
+        return float(fields[key])
+    except ValueError:
+        raise InputError(f'--extra "{text}": {key}={fields[key]} is not a number.') from None
+
+
+def extra_forces(specs: Sequence[str], track: Track) -> ExtraForces | None:
+    """The known forces ``--extra`` names, in the track's units; None when there are none."""
+    relativity = yukawa = perturber = None
+    for text in specs:
+        kind, fields = _spec(text)
+        if kind == "relativity":
+            if "gm" in fields:
+                gm = _number(text, fields, "gm")
+            elif (track.length_unit, track.time_unit) == ("au", "d"):
+                gm = SUN_GM_AU_DAY
+            else:
+                raise InputError(f'--extra "{text}": give the central body\'s GM in '
+                                 f"{track.length_unit}^3/{track.time_unit}^2, e.g. relativity:gm=...")
+            speed = SPEED_OF_LIGHT * length_factor("m", track.length_unit) / time_factor("s", track.time_unit)
+            relativity = Relativity(gm=gm, speed_of_light=speed)
+        elif kind == "yukawa":
+            yukawa = Yukawa(length=_number(text, fields, "range"))
+        elif kind == "body":
+            if "file" not in fields:
+                raise InputError(f'--extra "{text}" needs file=PATH, the perturbing body\'s positions.')
+            (body, *_) = load_tracks(fields["file"], length_unit=track.length_unit, time_unit=track.time_unit)
+            perturber = Perturber.from_track(body, gm=_number(text, fields, "gm"))
+        else:
+            raise InputError(f'--extra "{text}": unknown force "{kind}"; use relativity, yukawa or body.')
+    extra = ExtraForces(relativity=relativity, yukawa=yukawa, perturber=perturber)
+    return None if extra.empty else extra

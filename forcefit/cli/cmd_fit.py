@@ -22,7 +22,6 @@ from ._common import (
     add_orbit_options,
     orbit_options,
     read_tracks,
-    rotation_option,
 )
 
 _FIT_EXAMPLES = """\
@@ -36,7 +35,7 @@ examples:
   forcefit fit swing.mp4 --plane-marks 102,388,530,392,488,95,140,97 --plane-rectangle "0.8x0.6 m"
 """
 
-ORBIT_ONLY = ("fix_exponent", "drag", "compare", "rotation_rate", "latitude")
+ORBIT_ONLY = ("fix_exponent", "drag", "compare", "rotation_rate", "latitude", "extra")
 
 
 def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
@@ -72,8 +71,9 @@ def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, An
     profile = force_profile(track, bins=args.profile, centre=fit.centre) if args.profile else None
     comparison = None
     if args.compare:
-        comparison = compare_laws(track, args.compare, drag=args.drag, centre=args.centre,
-                                  rotation_rate=rotation_option(args, track))
+        options = orbit_options(args, track)
+        del options["exponent"]                       # each law of the comparison holds its own
+        comparison = compare_laws(track, args.compare, **options)
     duality = check_duality(track, fit) if args.check_duality else None
     passed = fit.passed and (duality is None or duality.passed)
     page = write_report(fit, args.report, track=track) if args.report else None

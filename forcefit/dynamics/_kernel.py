@@ -31,23 +31,70 @@ CLOSEST = 1e-6
 
 OK, FAILED = 0, 1
 
+(LINEAR, QUADRATIC, GR_MU, GR_INV_C2, YUKAWA_ALPHA, YUKAWA_INV_LENGTH, PERTURBER_MU,
+ CENTRE_X, CENTRE_Y) = range(9)
+N_FORCES = 9
+"""Columns of the per-orbit ``forces`` array: drag coefficients, the first post-Newtonian
+term's GM and 1/c², the Yukawa term's strength and 1/range, a perturbing body's GM, and the
+centre (where the perturber's table is measured from)."""
+
 
 @njit(cache=True, inline="always")
-def _derivative(state, out, exponent, strength, linear, quadratic):  # type: ignore[no-untyped-def]
+def _perturber_at(t, table_t, table_xy):  # type: ignore[no-untyped-def]
+    """The perturber's position at t: 4-point Lagrange interpolation in its table."""
+    m = table_t.size
+    i = np.searchsorted(table_t, t) - 2
+    i = min(max(i, 0), m - 4)
+    px = 0.0
+    py = 0.0
+    for a in range(i, i + 4):
+        weight = 1.0
+        for b in range(i, i + 4):
+            if b != a:
+                weight *= (t - table_t[b]) / (table_t[a] - table_t[b])
+        px += weight * table_xy[a, 0]
+        py += weight * table_xy[a, 1]
+    return px, py
+
+
+@njit(cache=True, inline="always")
+def _derivative(state, t, out, exponent, strength, forces, table_t, table_xy):  # type: ignore[no-untyped-def]
     x, y, vx, vy = state[0], state[1], state[2], state[3]
     r2 = x * x + y * y
     factor = -strength * r2 ** (0.5 * (exponent - 1.0))
-    drag = linear
-    if quadratic != 0.0:
-        drag += quadratic * np.sqrt(vx * vx + vy * vy)
+    if forces[YUKAWA_ALPHA] != 0.0:
+        scaled = np.sqrt(r2) * forces[YUKAWA_INV_LENGTH]
+        factor *= 1.0 + forces[YUKAWA_ALPHA] * (1.0 + scaled) * np.exp(-scaled)
+    drag = forces[LINEAR]
+    if forces[QUADRATIC] != 0.0:
+        drag += forces[QUADRATIC] * np.sqrt(vx * vx + vy * vy)
+    ax = factor * x - drag * vx
+    ay = factor * y - drag * vy
+    if forces[GR_MU] != 0.0:
+        mu = forces[GR_MU]
+        r = np.sqrt(r2)
+        scale = mu * forces[GR_INV_C2] / (r2 * r)
+        radial = 4.0 * mu / r - (vx * vx + vy * vy)
+        along = 4.0 * (x * vx + y * vy)
+        ax += scale * (radial * x + along * vx)
+        ay += scale * (radial * y + along * vy)
+    if forces[PERTURBER_MU] != 0.0:
+        px, py = _perturber_at(t, table_t, table_xy)
+        px -= forces[CENTRE_X]
+        py -= forces[CENTRE_Y]
+        dx, dy = x - px, y - py
+        d3 = (dx * dx + dy * dy) ** 1.5
+        p3 = (px * px + py * py) ** 1.5
+        ax -= forces[PERTURBER_MU] * (dx / d3 + px / p3)
+        ay -= forces[PERTURBER_MU] * (dy / d3 + py / p3)
     out[0] = vx
     out[1] = vy
-    out[2] = factor * x - drag * vx
-    out[3] = factor * y - drag * vy
+    out[2] = ax
+    out[3] = ay
 
 
 @njit(cache=True)
-def _leg(times, order, start, y0, exponent, strength, linear, quadratic, rtol, atol, out):  # type: ignore[no-untyped-def]
+def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy, rtol, atol, out):  # type: ignore[no-untyped-def]
     """Integrate from times[start]'s epoch state y0 through times[order] (one direction)."""
     n_state = 4
     k = np.empty((STAGES + 1, n_state))
@@ -55,7 +102,7 @@ def _leg(times, order, start, y0, exponent, strength, linear, quadratic, rtol, a
     y_new = np.empty(n_state)
     stage = np.empty(n_state)
     t = start
-    _derivative(y, k[0], exponent, strength, linear, quadratic)
+    _derivative(y, t, k[0], exponent, strength, forces, table_t, table_xy)
     speed = np.sqrt(y[2] ** 2 + y[3] ** 2)
     accel = np.sqrt(k[0][2] ** 2 + k[0][3] ** 2)
     radius = np.sqrt(y[0] ** 2 + y[1] ** 2)
@@ -79,13 +126,13 @@ def _leg(times, order, start, y0, exponent, strength, linear, quadratic, rtol, a
                         for j in range(s):
                             acc += A[s, j] * k[j][i]
                         stage[i] = y[i] + h * acc
-                    _derivative(stage, k[s], exponent, strength, linear, quadratic)
+                    _derivative(stage, t + C[s] * h, k[s], exponent, strength, forces, table_t, table_xy)
                 for i in range(n_state):
                     acc = 0.0
                     for j in range(STAGES):
                         acc += B[j] * k[j][i]
                     y_new[i] = y[i] + h * acc
-                _derivative(y_new, k[STAGES], exponent, strength, linear, quadratic)
+                _derivative(y_new, t + h, k[STAGES], exponent, strength, forces, table_t, table_xy)
                 err5 = 0.0
                 err3 = 0.0
                 for i in range(n_state):
@@ -122,8 +169,12 @@ def _leg(times, order, start, y0, exponent, strength, linear, quadratic, rtol, a
 
 
 @njit(cache=True)
-def integrate_batch(times, epoch, states, exponent, strength, linear, quadratic, rtol, atol, out, status):  # type: ignore[no-untyped-def]
-    """Fill out[b, i, :] with the state of orbit b at times[i]; status[b] = OK or FAILED."""
+def integrate_batch(times, epoch, states, exponent, strength, forces, table_t, table_xy, rtol, atol, out,  # type: ignore[no-untyped-def]
+                    status):
+    """Fill out[b, i, :] with the state of orbit b at times[i]; status[b] = OK or FAILED.
+
+    ``forces[b]`` holds orbit b's extra forces (columns as in N_FORCES); ``table_t`` and
+    ``table_xy`` the perturbing body's positions (empty when there is none)."""
     n_times = times.size
     first_after = 0
     while first_after < n_times and times[first_after] < epoch:
@@ -131,11 +182,11 @@ def integrate_batch(times, epoch, states, exponent, strength, linear, quadratic,
     forward = np.arange(first_after, n_times)
     backward = np.arange(first_after - 1, -1, -1)
     for b in range(states.shape[0]):
-        code = _leg(times, forward, epoch, states[b], exponent[b], strength[b], linear[b],
-                    quadratic[b], rtol, atol[b], out[b])
+        code = _leg(times, forward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
+                    table_xy, rtol, atol[b], out[b])
         if code == OK:
-            code = _leg(times, backward, epoch, states[b], exponent[b], strength[b], linear[b],
-                        quadratic[b], rtol, atol[b], out[b])
+            code = _leg(times, backward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
+                        table_xy, rtol, atol[b], out[b])
         status[b] = code
         if code != OK:
             out[b, :, :] = np.nan

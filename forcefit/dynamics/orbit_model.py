@@ -6,6 +6,7 @@ Parameters (one flat vector, names in `OrbitModel.names`):
 ``log_force``           ln F(r_ref), F = k r**n at the reference radius (decorrelates n, k)
 ``drag``                c1 (1/T, linear) or c2 (1/L, quadratic), when drag is modelled
 ``rotation_rate``       Omega (rad/T) of the observer's frame, when fitted
+``yukawa_strength``     alpha of a Yukawa term of given range, when one is modelled
 ``centre_x``, ...       the force centre (one shared, or ``centre_x_j`` per track)
 ``x0_j``, ``y0_j``, ``vx0_j``, ``vy0_j``   track j's state relative to the centre at its epoch,
                         in the non-rotating frame that coincides with the observer's at the epoch
@@ -13,6 +14,8 @@ Parameters (one flat vector, names in `OrbitModel.names`):
 Observed positions are centre + R(-Omega (t - epoch)) r(t): a frame turning
 counter-clockwise at Omega (a laboratory on the rotating Earth, seen from above in the
 northern hemisphere: Omega = Omega_E sin(latitude)) sees the inertial motion turn back.
+Known extra forces (`forcefit.dynamics.forces`: the first post-Newtonian term, a Yukawa
+term, a perturbing body) are added to the power law when ``extra`` holds them.
 """
 
 from __future__ import annotations
@@ -25,6 +28,7 @@ import numpy as np
 
 from .._types import FloatArray
 from ..track import Track
+from .forces import ExtraForces
 from .propagate import BATCH_RTOL, propagate_batch
 
 DragKind = str | None
@@ -42,6 +46,7 @@ class OrbitModel:
     rotation_rate: float = 0.0
     shared_centre: bool = True
     rtol: float = BATCH_RTOL
+    extra: ExtraForces | None = None
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -51,6 +56,8 @@ class OrbitModel:
             names.append("drag")
         if self.fit_rotation:
             names.append("rotation_rate")
+        if self.extra is not None and self.extra.yukawa is not None:
+            names.append("yukawa_strength")
         multi = len(self.tracks) > 1
         if self.shared_centre:
             names += ["centre_x", "centre_y"]
@@ -88,6 +95,8 @@ class OrbitModel:
         drag = vectors[:, self.index("drag")] if self.drag is not None else np.zeros(len(vectors))
         rate = (vectors[:, self.index("rotation_rate")] if self.fit_rotation
                 else np.full(len(vectors), self.rotation_rate))
+        alpha = (vectors[:, self.index("yukawa_strength")] if "yukawa_strength" in self.names
+                 else np.zeros(len(vectors)))
         ok = np.ones(len(vectors), dtype=bool)
         predictions = []
         for j, (track, epoch) in enumerate(zip(self.tracks, self.epochs)):
@@ -97,6 +106,7 @@ class OrbitModel:
                 exponent=exponent, strength=strength, epoch=epoch,
                 linear_drag=drag if self.drag == "linear" else 0.0,
                 quadratic_drag=drag if self.drag == "quadratic" else 0.0, rtol=self.rtol,
+                extra=self.extra, yukawa_alpha=alpha, centre=vectors[:, cx:cy + 1],
             )
             ok &= batch.ok
             position = batch.position

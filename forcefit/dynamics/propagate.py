@@ -12,6 +12,7 @@ from scipy.integrate import solve_ivp
 
 from .._types import FloatArray
 from ..errors import InputError
+from .forces import ExtraForces
 
 REFERENCE_RTOL = 1e-13
 """Relative tolerance of the reference integrator (DOP853)."""
@@ -67,13 +68,17 @@ def acceleration(position: FloatArray, exponent: float, strength: float) -> Floa
 
 
 def _rhs(
-    exponent: float, strength: float, drag: Drag | None
+    exponent: float, strength: float, drag: Drag | None, extra: ExtraForces | None,
+    centre: tuple[float, float],
 ) -> Callable[[float, FloatArray], FloatArray]:
-    def derivative(_: float, state: FloatArray) -> FloatArray:
+    def derivative(t: float, state: FloatArray) -> FloatArray:
         position, velocity = state[:2], state[2:]
         accel = acceleration(position, exponent, strength)
         if drag is not None:
             accel = accel + drag.acceleration(velocity)
+        if extra is not None:
+            accel = accel + extra.acceleration(position, velocity, t, exponent=exponent, strength=strength,
+                                               centre=centre)
         return np.concatenate((velocity, accel))
 
     return derivative
@@ -81,7 +86,8 @@ def _rhs(
 
 def _leg(
     state: FloatArray, epoch: float, times: FloatArray, exponent: float, strength: float,
-    drag: Drag | None, rtol: float,
+    drag: Drag | None, rtol: float, extra: ExtraForces | None = None,
+    centre: tuple[float, float] = (0.0, 0.0),
 ) -> FloatArray:
     """States (4, n) at ``times``, all on one side of ``epoch``, integrating away from it."""
     if times.size == 0:
@@ -98,7 +104,7 @@ def _leg(
 
     collision.terminal = True  # type: ignore[attr-defined]
     solution = solve_ivp(
-        _rhs(exponent, strength, drag), (epoch, end), state, method="DOP853",
+        _rhs(exponent, strength, drag, extra, centre), (epoch, end), state, method="DOP853",
         t_eval=times, rtol=rtol, atol=rtol * np.maximum(scale, 1e-300), events=collision,
     )
     if solution.status == 1:
@@ -120,9 +126,11 @@ def propagate_reference(
     strength: float,
     epoch: float | None = None,
     drag: Drag | None = None,
+    extra: ExtraForces | None = None,
+    centre: tuple[float, float] = (0.0, 0.0),
     rtol: float = REFERENCE_RTOL,
 ) -> States:
-    """Reference solution of r'' = -k |r|**(n-1) r (+ drag) at the given times.
+    """Reference solution of r'' = -k |r|**(n-1) r (+ drag, + known extra forces) at the given times.
 
     The accuracy oracle for the rest of forcefit: scipy's DOP853 (an explicit
     Runge-Kutta method of order 8 with step control) at relative tolerance 1e-13,
@@ -140,6 +148,11 @@ def propagate_reference(
         Time of ``start``; default the first time.
     drag : Drag, optional
         Velocity-dependent drag.
+    extra : ExtraForces, optional
+        Known forces beside the power law (a Yukawa term with its ``alpha``, the first
+        post-Newtonian term, a perturbing body).
+    centre : (float, float)
+        Where the centre sits in the coordinates of a perturber's table (L).
     rtol : float
         Relative tolerance; the absolute tolerance is rtol times the size of the
         initial position and velocity.
@@ -169,8 +182,8 @@ def propagate_reference(
         raise InputError("times must be a one-dimensional, non-decreasing array.")
     t0 = float(times[0]) if epoch is None else float(epoch)
     before = times < t0
-    backward = _leg(state, t0, times[before][::-1], exponent, strength, drag, rtol)[:, ::-1]
-    forward = _leg(state, t0, times[~before], exponent, strength, drag, rtol)
+    backward = _leg(state, t0, times[before][::-1], exponent, strength, drag, rtol, extra, centre)[:, ::-1]
+    forward = _leg(state, t0, times[~before], exponent, strength, drag, rtol, extra, centre)
     solution = np.concatenate((backward, forward), axis=1)
     return States(position=solution[:2].T.copy(), velocity=solution[2:].T.copy())
 
@@ -203,6 +216,9 @@ def propagate_batch(
     epoch: float,
     linear_drag: ArrayLike = 0.0,
     quadratic_drag: ArrayLike = 0.0,
+    extra: ExtraForces | None = None,
+    yukawa_alpha: ArrayLike = 0.0,
+    centre: ArrayLike = (0.0, 0.0),
     rtol: float = BATCH_RTOL,
 ) -> BatchStates:
     """Integrate r'' = -k |r|**(n-1) r - c1 v - c2 |v| v for many parameter sets at once.
@@ -230,6 +246,12 @@ def propagate_batch(
         Time of the start states (T); integration runs forwards and backwards from it.
     linear_drag, quadratic_drag : array_like
         c1 (1/T) and c2 (1/L) of each orbit.
+    extra : ExtraForces, optional
+        Known forces beside the power law (see `forcefit.dynamics.forces`).
+    yukawa_alpha : array_like
+        The Yukawa term's strength of each orbit (with ``extra.yukawa``).
+    centre : array_like, shape (n_orbits, 2) or (2,)
+        Where each orbit's centre sits in the coordinates of ``extra.perturber``'s table (L).
     rtol : float
         Relative tolerance of the step control.
 
@@ -250,8 +272,9 @@ def propagate_batch(
     times = np.ascontiguousarray(times, dtype=np.float64)
     start = np.atleast_2d(np.asarray(start, dtype=np.float64))
     velocity = np.atleast_2d(np.asarray(velocity, dtype=np.float64))
+    centre = np.atleast_2d(np.asarray(centre, dtype=np.float64))
     n_orbits = max(start.shape[0], velocity.shape[0], np.size(exponent), np.size(strength),
-                   np.size(linear_drag), np.size(quadratic_drag))
+                   np.size(linear_drag), np.size(quadratic_drag), np.size(yukawa_alpha), centre.shape[0])
     states = np.ascontiguousarray(np.concatenate(
         (np.broadcast_to(start, (n_orbits, 2)), np.broadcast_to(velocity, (n_orbits, 2))), axis=1))
 
@@ -259,12 +282,50 @@ def propagate_batch(
         return np.ascontiguousarray(np.broadcast_to(np.asarray(value, dtype=np.float64), (n_orbits,)))
 
     n, k = each(exponent), each(strength)
+    forces, table_t, table_xy = _forces(n_orbits, each(linear_drag), each(quadratic_drag), extra,
+                                        each(yukawa_alpha), np.broadcast_to(centre, (n_orbits, 2)))
     radius = np.hypot(states[:, 0], states[:, 1])
     speed = np.maximum(np.hypot(states[:, 2], states[:, 3]),
                        np.sqrt(np.abs(k) * radius ** (n + 1.0)))
     atol = rtol * np.column_stack((radius, radius, speed, speed))
     out = np.empty((n_orbits, times.size, 4))
     status = np.zeros(n_orbits, dtype=np.int64)
-    integrate_batch(times, float(epoch), states, n, k, each(linear_drag), each(quadratic_drag),
+    integrate_batch(times, float(epoch), states, n, k, forces, table_t, table_xy,
                     float(rtol), np.ascontiguousarray(atol), out, status)
     return BatchStates(position=out[:, :, :2], velocity=out[:, :, 2:], ok=status == 0)
+
+
+def _forces(
+    n_orbits: int, linear: FloatArray, quadratic: FloatArray, extra: ExtraForces | None,
+    alpha: FloatArray, centre: FloatArray,
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """The compiled kernel's per-orbit force table and the perturber's shared table."""
+    from ._kernel import (
+        CENTRE_X,
+        CENTRE_Y,
+        GR_INV_C2,
+        GR_MU,
+        LINEAR,
+        N_FORCES,
+        PERTURBER_MU,
+        QUADRATIC,
+        YUKAWA_ALPHA,
+        YUKAWA_INV_LENGTH,
+    )
+
+    forces = np.zeros((n_orbits, N_FORCES))
+    forces[:, LINEAR], forces[:, QUADRATIC] = linear, quadratic
+    forces[:, CENTRE_X], forces[:, CENTRE_Y] = centre[:, 0], centre[:, 1]
+    table_t, table_xy = np.zeros(0), np.zeros((0, 2))
+    if extra is not None:
+        if extra.relativity is not None:
+            forces[:, GR_MU] = extra.relativity.gm
+            forces[:, GR_INV_C2] = 1.0 / extra.relativity.speed_of_light**2
+        if extra.yukawa is not None:
+            forces[:, YUKAWA_ALPHA] = alpha
+            forces[:, YUKAWA_INV_LENGTH] = 1.0 / extra.yukawa.length
+        if extra.perturber is not None:
+            forces[:, PERTURBER_MU] = extra.perturber.gm
+            table_t = np.ascontiguousarray(extra.perturber.times)
+            table_xy = np.ascontiguousarray(extra.perturber.positions)
+    return forces, table_t, table_xy

@@ -309,6 +309,8 @@ def _solve(
         for name in ("drag", "rotation_rate"):
             if name in model.names:
                 steps[model.index(name)] = 1e-6 / max(model.tracks[0].duration, 1e-300)
+        if "yukawa_strength" in model.names:
+            steps[model.index("yukawa_strength")] = 1e-6
         velocity = [i for i, name in enumerate(model.names) if name.startswith(("vx0", "vy0"))]
         speed = float(np.median(np.abs(current[velocity]))) if velocity else 1.0
         steps[velocity] = 1e-6 * np.maximum(np.abs(current[velocity]), speed)
@@ -342,6 +344,8 @@ def _vector(model: OrbitModel, exponent: float, log_force: float, centre: tuple[
         vector[model.index("drag")] = drag
     if model.fit_rotation:
         vector[model.index("rotation_rate")] = model.rotation_rate
+    if "yukawa_strength" in model.names and model.extra is not None and model.extra.yukawa is not None:
+        vector[model.index("yukawa_strength")] = model.extra.yukawa.alpha
     for j, state in enumerate(states):
         cx, cy, first = model.track_columns(j)
         vector[cx], vector[cy] = centre
@@ -359,8 +363,8 @@ def _free(model: OrbitModel, problem: StartProblem, *, law: bool) -> list[int]:
             free.append(0)
         if problem.centre is None:
             free += [i for i, name in enumerate(model.names) if name.startswith("centre_")]
-        free += [model.index(name) for name in ("drag", "rotation_rate")
-                 if name in model.names and (name != "rotation_rate" or model.fit_rotation)]
+        free += [model.index(name) for name in ("drag", "rotation_rate", "yukawa_strength")
+                 if name in model.names]
     return sorted(set(free))
 
 

@@ -22,6 +22,7 @@ import numpy as np
 
 from .._regression import autocorrelation_time
 from .._types import FloatArray
+from ..dynamics.forces import ExtraForces
 from ..dynamics.orbit_model import OrbitModel, observed
 from ..errors import FitError, GeometryError, InputError, NotIdentifiable
 from ..geometry.curves import is_straight
@@ -146,7 +147,8 @@ class _Solution:
 
 def _steps(model: OrbitModel, vector: FloatArray, size: float, speed: float, duration: float) -> FloatArray:
     """Central-difference steps for each parameter, in its own unit."""
-    scale = {"exponent": 1.0, "log_force": 1.0, "drag": 1.0 / duration, "rotation_rate": 1.0 / duration}
+    scale = {"exponent": 1.0, "log_force": 1.0, "drag": 1.0 / duration, "rotation_rate": 1.0 / duration,
+             "yukawa_strength": 1.0}
     steps = np.empty(vector.size)
     for i, name in enumerate(model.names):
         if name in scale:
@@ -214,6 +216,7 @@ def fit_orbit(
     centre: tuple[float, float] | None = None,
     shared_centre: bool = True,
     rotation_rate: float | Literal["fit"] | None = None,
+    extra: ExtraForces | None = None,
     max_evaluations: int = 200,
 ) -> OrbitFit:
     """Fit the integrated orbit of F = -k r**n r_hat to every sample of timestamped tracks.
@@ -244,6 +247,11 @@ def fit_orbit(
     rotation_rate : float or "fit", optional
         Rotation rate Omega (rad/T, counter-clockwise) of the observer's frame, given or
         fitted; e.g. Omega_E sin(latitude) for a camera fixed in a laboratory.
+    extra : ExtraForces, optional
+        Known forces added to the power law (`forcefit.dynamics.forces`): the first
+        post-Newtonian term of the central mass, a Yukawa term of given range (its strength
+        alpha is fitted), a perturbing body of known positions and GM. The fitted exponent
+        then measures the deviation beyond them.
     max_evaluations : int
         Most model evaluations the final optimiser may use.
 
@@ -290,9 +298,10 @@ def fit_orbit(
     first_guess = [centre if centre is not None else (float(np.mean(t.x)), float(np.mean(t.y)))
                    for t in tracks]
     provisional = _reference_radius(tracks, first_guess)
+    extra = _checked_extra(extra, tracks, rotation_rate)
     model = OrbitModel(tracks=tracks, epochs=tuple(epochs), reference_radius=provisional, drag=drag,
                        fit_rotation=rotation_rate == "fit", rotation_rate=rate,
-                       shared_centre=shared_centre or len(tracks) == 1)
+                       shared_centre=shared_centre or len(tracks) == 1, extra=extra)
     vector = orbit_start(StartProblem(model=model, exponent=exponent, centre=centre, sigma=sigma),
                          indices, noise)
     radius = _reference_radius(tracks, _centres(model, vector))
@@ -315,6 +324,26 @@ def fit_orbit(
             "not an orbit in a central power law; check the centre, the units and the data.",
             last_params=solution.values)
     return _law_fit(model, solution, tracks, sigma, sigma_known, loss, noise_level)
+
+
+def _checked_extra(extra: ExtraForces | None, tracks: Sequence[Track],
+                   rotation_rate: float | Literal["fit"] | None) -> ExtraForces | None:
+    """The extra forces, or None when there are none; refuses what cannot be combined."""
+    if extra is None or extra.empty:
+        return None
+    perturber = extra.perturber
+    if perturber is not None:
+        if rotation_rate not in (None, 0.0):
+            raise InputError("a perturbing body's positions are taken in a non-rotating frame; fit a "
+                             "rotating frame or a perturber, not both.")
+        for track in tracks:
+            if not perturber.covers(np.asarray(track.t)):
+                raise InputError(
+                    f"{perturber.name}: its positions span t = {perturber.times[0]:.10g} to "
+                    f"{perturber.times[-1]:.10g} {track.time_unit}, but {track.label} runs from "
+                    f"{float(np.asarray(track.t)[0]):.10g} to {float(np.asarray(track.t)[-1]):.10g}. "
+                    "Give the perturber's positions over the whole span of the data.")
+    return extra
 
 
 def _require_resolved_excursion(model: OrbitModel, vector: FloatArray, noise: float) -> None:
@@ -498,6 +527,8 @@ def _law_fit(
             last_params=solution.values)
     drag, drag_se = solution.value("drag") if model.drag is not None else (math.nan, math.nan)
     rate, rate_se = solution.value("rotation_rate") if model.fit_rotation else (math.nan, math.nan)
+    alpha, alpha_se = (solution.value("yukawa_strength") if "yukawa_strength" in model.names
+                       else (math.nan, math.nan))
     covariance = solution.covariance if solution.covariance is not None else np.full(
         (len(solution.varying),) * 2, math.nan)
     return OrbitFit(
@@ -514,6 +545,7 @@ def _law_fit(
         sigma_known=sigma_known, noise=noise, loss=loss, evaluations=solution.evaluations,
         converged=solution.success, turns=turns, angular_momentum=h, fitted_positions=positions,
         drag=drag, drag_stderr=drag_se, rotation_rate=rate, rotation_rate_stderr=rate_se,
+        yukawa_strength=alpha, yukawa_strength_stderr=alpha_se,
         correlation_time=solution.correlation_time, white_stderrs=solution.white_stderrs or {},
     )
 

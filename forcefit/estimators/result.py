@@ -373,6 +373,8 @@ class OrbitFit(LawFit):
     fitted_positions : ndarray, shape (n_points, 2)
         The fitted orbit at the samples, all tracks stacked (L); nan where it could not be
         integrated; read-only.
+    yukawa_strength, yukawa_strength_stderr : float
+        alpha of a Yukawa term of the model's given range, and its error; nan when none.
     correlation_time : float
         Integrated autocorrelation time of the residuals (samples; 1 when independent): the
         stated errors are the white-noise ones times its square root.
@@ -396,6 +398,8 @@ class OrbitFit(LawFit):
     drag_stderr: float = NAN
     rotation_rate: float = NAN
     rotation_rate_stderr: float = NAN
+    yukawa_strength: float = NAN
+    yukawa_strength_stderr: float = NAN
     correlation_time: float = 1.0
     white_stderrs: Mapping[str, float] = field(default_factory=dict)
 
@@ -457,6 +461,11 @@ class OrbitFit(LawFit):
         if self.model.fit_rotation:
             rows.append(Row("rotation rate", _measurement(self.rotation_rate, self.rotation_rate_stderr),
                             f"rad/{time}", brief=False))
+        if self.model.extra is not None:
+            rows.append(Row("known forces added", self.model.extra.describe()))
+            if self.model.extra.yukawa is not None:
+                label = f"Yukawa strength alpha (range {self.model.extra.yukawa.length:.6g} {length})"
+                rows.append(Row(label, _measurement(self.yukawa_strength, self.yukawa_strength_stderr)))
         rows.append(Row("noise", format_measurement(self.noise), length, brief=False))
         if self.correlation_time > 1.0:
             white = self.white_stderrs.get("exponent", NAN)
@@ -466,11 +475,16 @@ class OrbitFit(LawFit):
         return rows
 
     def _details(self) -> dict[str, Any]:
-        fitted: dict[str, float] = {}
+        fitted: dict[str, float | str] = {}
         if self.model.drag is not None:
             fitted.update(drag=self.drag, drag_stderr=self.drag_stderr)
         if self.model.fit_rotation:
             fitted.update(rotation_rate=self.rotation_rate, rotation_rate_stderr=self.rotation_rate_stderr)
+        if self.model.extra is not None:
+            fitted.update(extra_forces=self.model.extra.describe())
+            if self.model.extra.yukawa is not None:
+                fitted.update(yukawa_strength=self.yukawa_strength,
+                              yukawa_strength_stderr=self.yukawa_strength_stderr)
         return {"evaluations": self.evaluations, "noise": self.noise, "loss": self.loss, "turns": self.turns,
                 "correlation_time": self.correlation_time,
                 "exponent_stderr_white": self.white_stderrs.get("exponent", NAN),
