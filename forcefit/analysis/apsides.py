@@ -9,10 +9,13 @@ so a measured precession is a measured exponent.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from types import MappingProxyType
 from typing import Any
 
 import numpy as np
+import pandas as pd
 from scipy.signal import find_peaks
 
 from .._json import json_safe
@@ -20,14 +23,22 @@ from .._regression import fit_line
 from .._types import FloatArray, Row
 from ..dynamics.laws import exponent_from_apsidal_angle, lab_rotation_rate, pendulum_precession_rate
 from ..errors import InputError, NotIdentifiable
+from ..estimators.result import Diagnostic
 from ..geometry.path import PathGeometry, describe_path
 from ..track import Track
-from ..units import length_factor, time_factor
+from ..units import format_measurement, length_factor, time_factor
 
 WINDOW = 0.3
 """Half-width of the local fit around an apse, as a fraction of the apsidal angle."""
 
 MIN_APSES = 3
+
+MIN_SECULAR_ORBITS = 5.0
+"""Fewer orbits than this between the first and last apse, and a turn of the apses cannot be
+told from the periodic perturbations of a real orbit (they have periods of a few orbits)."""
+
+ARCSEC = 180.0 * 3600.0 / math.pi
+"""Seconds of arc per radian."""
 
 MIN_LOCAL_POINTS = 11
 """Fewest raw points in the local fit around an apse."""
@@ -73,6 +84,26 @@ class Apsides:
     exponent_near_circular: float
     length_unit: str
     time_unit: str | None
+    orbits: float = math.nan
+    scatter: float = math.nan
+    diagnostics: Mapping[str, Diagnostic] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "diagnostics", MappingProxyType(dict(self.diagnostics)))
+
+    @property
+    def passed(self) -> bool:
+        """True when no check failed: the apses' turn is a secular one, an exponent can be read."""
+        return all(check.passed is not False for check in self.diagnostics.values())
+
+    @property
+    def precession_per_century(self) -> tuple[float, float]:
+        """The precession rate and its error in seconds of arc per Julian century (nan when the
+        time unit is not a time, or without timestamps)."""
+        if self.time_unit is None or not math.isfinite(self.precession_rate):
+            return math.nan, math.nan
+        century = time_factor("d", self.time_unit) * 36525.0         # the century in time units
+        return self.precession_rate * century * ARCSEC, self.precession_rate_stderr * century * ARCSEC
 
     @property
     def pericentres(self) -> tuple[Apse, ...]:
@@ -91,22 +122,26 @@ class Apsides:
 
     def rows(self) -> list[Row]:
         """The summary as rows with units: apsidal angle, precession, radius ratio, exponent."""
+        per_orbit = math.degrees(self.precession_per_revolution)
+        per_orbit_se = math.degrees(self.precession_per_revolution_stderr)
         rows = [
-            Row("apses found", str(len(self.apses)), brief=False),
-            Row("apsidal angle", f"{math.degrees(self.apsidal_angle):.5f} ± "
-                                 f"{math.degrees(self.apsidal_angle_stderr):.2g}",
+            Row("apses found", f"{len(self.apses)} over {self.orbits:.3g} orbits", brief=False),
+            Row("apsidal angle", format_measurement(math.degrees(self.apsidal_angle),
+                                                    math.degrees(self.apsidal_angle_stderr)),
                 f"deg (closed orbit: {180 / self.closure:g} deg)"),
-            Row("precession", f"{math.degrees(self.precession_per_revolution):+.5g} ± "
-                              f"{math.degrees(self.precession_per_revolution_stderr):.2g}",
-                "deg per revolution, in the sense of the motion"),
+            Row("precession", format_measurement(per_orbit, per_orbit_se),
+                "deg per orbit, in the sense of the motion"),
         ]
         if math.isfinite(self.precession_rate):
-            rows.append(Row("", f"{self.precession_rate:+.4g} ± {self.precession_rate_stderr:.2g}",
+            rows.append(Row("", format_measurement(self.precession_rate, self.precession_rate_stderr),
                             f"rad/{self.time_unit or ''}"))
+            century, century_se = self.precession_per_century
+            if math.isfinite(century):
+                rows.append(Row("", format_measurement(century, century_se), "arcsec per century"))
         rows += [
             Row("r_max / r_min", f"{self.radius_ratio:.6g}"),
-            Row("exponent", f"{self.exponent:.6g} ± {self.exponent_stderr:.2g}",
-                f"(exact apsidal integral); near-circular formula gives {self.exponent_near_circular:.6g}"),
+            Row("exponent", format_measurement(self.exponent, self.exponent_stderr),
+                f"(exact apsidal integral); near-circular formula gives {self.exponent_near_circular:.8g}"),
         ]
         return rows
 
@@ -116,10 +151,14 @@ class Apsides:
         lines = [f"  {'apse':<11} {'angle [deg]':>18} {'radius [' + length + ']':>24} "
                  f"{'time [' + time + ']':>20}"]
         for apse in self.apses:
-            lines.append(f"  {apse.kind:<11} {math.degrees(apse.angle):>10.4f} ± "
-                         f"{math.degrees(apse.angle_stderr):<6.2g} {apse.radius:>14.6g} ± "
-                         f"{apse.radius_stderr:<7.2g} {apse.time:>12.6g} ± {apse.time_stderr:.2g}")
+            angle = format_measurement(math.degrees(apse.angle), math.degrees(apse.angle_stderr))
+            lines.append(f"  {apse.kind:<11} {angle:>18} "
+                         f"{format_measurement(apse.radius, apse.radius_stderr):>24} "
+                         f"{_epoch_text(apse.time, apse.time_stderr, time):>20}")
         lines += [f"  {row.label:<18} {row.text}" for row in self.rows() if row.brief]
+        for name, check in self.diagnostics.items():
+            mark = {True: "ok  ", False: "FAIL", None: "note"}[check.passed]
+            lines.append(f"  [{mark}] {name}: {check.message}")
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:
@@ -134,6 +173,11 @@ class Apsides:
             "precession_rate_unit": f"rad/{self.time_unit}" if self.time_unit else None,
             "radius_ratio": self.radius_ratio, "exponent": self.exponent,
             "exponent_stderr": self.exponent_stderr, "exponent_near_circular": self.exponent_near_circular,
+            "precession_arcsec_per_century": self.precession_per_century[0],
+            "precession_arcsec_per_century_stderr": self.precession_per_century[1],
+            "orbits": self.orbits, "scatter": self.scatter, "passed": self.passed,
+            "diagnostics": {name: {"passed": check.passed, "message": check.message}
+                            for name, check in self.diagnostics.items()},
             "length_unit": self.length_unit,
         })
 
@@ -251,7 +295,11 @@ def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
     spacing = float(np.median(np.diff(angles)))
     count = np.round((angles - angles[0]) / spacing)       # apse number, robust to a missed apse
     line = fit_line(count, angles, errors)
-    psi, psi_se = line.slope, math.sqrt(line.covariance[0, 0])
+    scatter = math.sqrt(line.reduced_chi2)
+    # The error comes from the apses' scatter about the line when it exceeds their local errors;
+    # never from a scatter smaller than those (few apses can line up by chance).
+    widen = max(1.0, 1.0 / line.reduced_chi2) if line.reduced_chi2 > 0 else 1.0
+    psi, psi_se = line.slope, math.sqrt(line.covariance[0, 0] * widen)
     closure = 1 if psi > 0.75 * math.pi else 2
     per_revolution = 2 * closure * psi - 2 * math.pi
     rate = rate_se = math.nan
@@ -259,7 +307,9 @@ def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
         times = np.array([apse.time for apse in apses])
         turning = angles - count * math.pi / closure
         drift = fit_line(times - times.mean(), turning, errors)
-        rate, rate_se = drift.slope, math.sqrt(drift.covariance[0, 0])
+        rate = drift.slope
+        rate_se = math.sqrt(drift.covariance[0, 0] * (max(1.0, 1.0 / drift.reduced_chi2)
+                                                      if drift.reduced_chi2 > 0 else 1.0))
     peri = np.mean([a.radius for a in apses if a.kind == "pericentre"] or [np.nan])
     apo = np.mean([a.radius for a in apses if a.kind == "apocentre"] or [np.nan])
     ratio = float(apo / peri)
@@ -267,7 +317,10 @@ def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
     step = max(psi_se, 1e-9)
     slope = (exponent_from_apsidal_angle(psi + step, ratio)
              - exponent_from_apsidal_angle(psi - step, ratio)) / (2 * step)
+    orbits = float(abs(angles[-1] - angles[0]) / (2 * math.pi))
+    diagnostics = _secular_checks(orbits, scatter, len(apses))
     return Apsides(
+        orbits=orbits, scatter=scatter, diagnostics=diagnostics,
         apses=tuple(apses), centre=path.centre, sense=sense, apsidal_angle=psi,
         apsidal_angle_stderr=psi_se, closure=closure, precession_per_revolution=per_revolution,
         precession_per_revolution_stderr=2 * closure * psi_se, precession_rate=rate,
@@ -275,6 +328,51 @@ def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
         exponent_stderr=abs(slope) * psi_se, exponent_near_circular=(math.pi / psi) ** 2 - 3.0,
         length_unit=track.length_unit, time_unit=track.time_unit if track.has_times else None,
     )
+
+
+def _secular_checks(orbits: float, scatter: float, count: int) -> dict[str, Diagnostic]:
+    """Can the apses' turn be read as the law's? Enough orbits, and apses on their line."""
+    checks = {}
+    if orbits < MIN_SECULAR_ORBITS:
+        checks["orbits covered"] = Diagnostic(
+            False, f"the apses span {orbits:.3g} orbits; with fewer than {MIN_SECULAR_ORBITS:g}, the "
+                   "periodic perturbations of a real orbit cannot be told from a secular turn, so the "
+                   "exponent read from the apses is no measurement of the law. The apses themselves "
+                   "are measured; record more orbits.")
+    else:
+        checks["orbits covered"] = Diagnostic(True, f"the apses span {orbits:.3g} orbits.")
+    limit = 1.0 + 5.0 * math.sqrt(2.0 / max(count - 2, 1))
+    if scatter**2 > limit:
+        checks["apse scatter"] = Diagnostic(
+            False, f"the apses scatter {scatter:.3g} times more about a steady turn than their own "
+                   "errors allow: something moves them (perturbations, drag, a wandering centre), so "
+                   "their turn is not the law's alone; the errors are taken from the scatter.")
+    else:
+        checks["apse scatter"] = Diagnostic(True, f"the apses follow a steady turn within their errors "
+                                                  f"(scatter {scatter:.2g} of their errors).")
+    return checks
+
+
+def _epoch_text(time: float, stderr: float, unit: str) -> str:
+    """An apse's time with the digits its error needs; a Julian date also as a calendar date."""
+    if not math.isfinite(time):
+        return "-"
+    if math.isfinite(stderr) and stderr > 0:
+        decimals = max(0, 1 - math.floor(math.log10(stderr)))
+        text = f"{time:.{decimals}f} ± {stderr:.{decimals}f}"
+    else:
+        text = f"{time:.10g}"
+    if unit == "d" and JULIAN_DATES[0] <= time <= JULIAN_DATES[1]:
+        moment = pd.Timestamp("1970-01-01") + pd.to_timedelta(time - UNIX_EPOCH_JD, unit="D")
+        text += f" ({moment:%Y-%m-%d %H:%M})"
+    return text
+
+
+JULIAN_DATES = (2_000_000.0, 2_800_000.0)
+"""Times in days within this range are taken as Julian dates (years -238 to 2954)."""
+
+UNIX_EPOCH_JD = 2_440_587.5
+"""The Julian date of 1970-01-01 00:00 (common practice)."""
 
 
 def precession_budget(

@@ -7,7 +7,7 @@ import math
 from typing import Any
 
 from ..analysis.apsides import measure_apsides, precession_budget
-from ._common import EXIT_OK, FORMATTER, Reports, add_centre_option, read_tracks
+from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, Reports, add_centre_option, read_tracks
 
 _EXAMPLES = """\
 examples:
@@ -34,9 +34,11 @@ def _budget_lines(rates: dict[str, float]) -> list[str]:
 
 
 def _cmd_apsides(args: argparse.Namespace) -> int:
-    reports = Reports(args.json)
+    reports, status = Reports(args.json), EXIT_OK
     for track in read_tracks(args.file, args):
         apsides = measure_apsides(track, centre=args.centre)
+        if not apsides.passed:
+            status = EXIT_FAILED_CHECKS
         rates = None
         if args.pendulum_length is not None or args.latitude is not None:
             rates = precession_budget(apsides, pendulum_length=args.pendulum_length, gravity=args.gravity,
@@ -46,7 +48,7 @@ def _cmd_apsides(args: argparse.Namespace) -> int:
         reports.add({"track": track.name, **apsides.to_dict(), "precession_rad_per_s": rates},
                     "\n".join(lines + (_budget_lines(rates) if rates is not None else [])))
     reports.close()
-    return EXIT_OK
+    return status
 
 
 def register(commands: Any, loading: argparse.ArgumentParser) -> None:
