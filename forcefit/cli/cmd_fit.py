@@ -6,12 +6,15 @@ import argparse
 import math
 from typing import Any
 
+from ..analysis.apsides import MIN_SECULAR_ORBITS, measure_apsides
+from ..analysis.deviation import deviation_from
 from ..analysis.duality_check import check_duality
-from ..errors import InputError
+from ..errors import ForcefitError, InputError
 from ..estimators import ESTIMATORS, LawFit, OrbitFit, fit_orbit, force_profile, registry
 from ..inference.comparison import compare_laws
 from ..outputs.report import write_report
 from ..track import Track
+from ..units import format_measurement
 from ._camera import camera_lines, camera_record
 from ._common import (
     EXIT_FAILED_CHECKS,
@@ -64,6 +67,30 @@ def _fitted_extras(fit: LawFit) -> list[str]:
     return lines
 
 
+def _nominal(args: argparse.Namespace, fit: LawFit) -> float:
+    """The nominal exponent: as given, else the nearer of Hooke's 1 and Newton's -2."""
+    if args.nominal is not None:
+        return float(args.nominal)
+    return 1.0 if abs(fit.exponent - 1.0) < abs(fit.exponent + 2.0) else -2.0
+
+
+def _measured_precession(track: Track, fit: OrbitFit, report: dict[str, Any]) -> list[str]:
+    """The apses' own turn beside the one the fitted exponent implies."""
+    try:
+        apsides = measure_apsides(track, centre=fit.centre)
+    except ForcefitError as exc:
+        return [f"  measured precession: not measured ({exc})"]
+    report["apsides"] = apsides.to_dict()
+    century, error = apsides.precession_per_century
+    verdict = "" if apsides.passed else " (the apses cannot separate a secular turn: see apsides)"
+    if math.isfinite(century):
+        return [f"  {'measured precession':<28} {format_measurement(century, error)} arcsec per century "
+                f"from {len(apsides.apses)} apses{verdict}"]
+    per_orbit = format_measurement(math.degrees(apsides.precession_per_revolution),
+                                   math.degrees(apsides.precession_per_revolution_stderr))
+    return [f"  {'measured precession':<28} {per_orbit} deg per orbit{verdict}"]
+
+
 def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, Any], str]:
     """Fit one track with everything the command line asked for: whether it passed, its JSON
     report and its text."""
@@ -83,6 +110,12 @@ def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, An
         report["duality"] = duality.to_dict()
         lines.append("  " + duality.to_text())
     lines += _fitted_extras(fit)
+    if isinstance(fit, OrbitFit):
+        deviation = deviation_from(fit, _nominal(args, fit))
+        report["deviation"] = deviation.to_dict()
+        lines.append(deviation.to_text())
+        if math.isfinite(deviation.precession_per_orbit) and fit.turns >= MIN_SECULAR_ORBITS:
+            lines += _measured_precession(track, fit, report)
     if page is not None:
         report["report"] = str(page)
     if profile is not None:
@@ -134,6 +167,9 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     fit.add_argument("--method", choices=sorted(ESTIMATORS),
                      help="estimator (default: orbit with timestamps, shape without)")
     add_centre_option(fit)
+    fit.add_argument("--nominal", type=float, metavar="N",
+                     help="the nominal exponent to state the deviation from (default: the nearer of "
+                          "1 and -2); against -2 the implied apsidal precession is printed too")
     fit.add_argument("--json", action="store_true", help="print JSON instead of a table")
     fit.add_argument("--report", metavar="DIR", help="write an HTML report with figures into DIR")
     add_orbit_options(fit)

@@ -1,0 +1,66 @@
+"""The deviation from a nominal law, and the precession it implies, against measured apses."""
+
+import math
+
+import numpy as np
+import pytest
+
+from forcefit.analysis.apsides import measure_apsides
+from forcefit.analysis.deviation import deviation_from
+from forcefit.cli import main
+from forcefit.dynamics.simulate import simulate_orbit
+from forcefit.estimators import fit_orbit
+
+
+@pytest.fixture(scope="module")
+def nearly_kepler():
+    # n = -2 - delta with delta = 2e-4 at e ~ 0.3 over 20 orbits: the apses advance by
+    # 2 pi delta / (1 + sqrt(1 - e^2)) per orbit (CHECKS.md §5, derived, verified to 2e-6).
+    track = simulate_orbit(exponent=-2.0002, strength=1.0, start=(1.0, 0.0), velocity=(0.0, math.sqrt(1.3)),
+                           duration=20 * 2 * math.pi * (1 / 0.7) ** 1.5, rate=40.0, noise=1e-5, rng=11)
+    return track, fit_orbit(track, centre=(0.0, 0.0))
+
+
+def test_the_deviation_is_the_fitted_exponent_less_the_nominal(nearly_kepler):
+    _, fit = nearly_kepler
+    deviation = deviation_from(fit, -2.0)
+    assert deviation.delta == pytest.approx(fit.exponent + 2.0)
+    assert deviation.significance == pytest.approx(abs(fit.exponent + 2.0) / fit.exponent_stderr)
+    assert abs(deviation.delta + 2e-4) < 3 * deviation.delta_stderr
+
+
+def test_the_implied_precession_is_what_the_apses_show(nearly_kepler):
+    track, fit = nearly_kepler
+    deviation = deviation_from(fit, -2.0)
+    e = deviation.eccentricity
+    assert e == pytest.approx(0.3, abs=0.01)                  # vis-viva: r_p = 1, v_p^2 = 1.3
+    exact = 2 * math.pi * 2e-4 / (1 + math.sqrt(1 - e**2))
+    assert abs(deviation.precession_per_orbit - exact) < 3 * deviation.precession_per_orbit_stderr
+    apsides = measure_apsides(track, centre=(0.0, 0.0))       # an independent measurement
+    gap = deviation.precession_per_orbit - apsides.precession_per_revolution
+    assert abs(gap) < 3 * math.hypot(deviation.precession_per_orbit_stderr,
+                                     apsides.precession_per_revolution_stderr)
+
+
+def test_against_hooke_no_precession_is_implied():
+    fit = fit_orbit(simulate_orbit(exponent=1.0, strength=4.0, noise=1e-3, rng=2))
+    deviation = deviation_from(fit, 1.0)
+    assert math.isnan(deviation.precession_per_orbit) and deviation.significance < 4
+
+
+def test_fit_states_the_deviation_from_the_nearer_nominal_law(tmp_path, capsys):
+    a, k = 1.0, 2.959122082855911e-4                          # au, au^3/d^2 (Gauss 1809)
+    track = simulate_orbit(exponent=-2.0, strength=k, start=(0.8 * a, 0.0),
+                           velocity=(0.0, math.sqrt(k * 1.2 / (0.8 * a))), duration=6 * 365.25, rate=0.5,
+                           noise=1e-7, length_unit="au", time_unit="d", rng=4)
+    path = tmp_path / "planet.csv"
+    path.write_text("t (d),x (au),y (au)\n" + "\n".join(f"{t:.2f},{x:.10f},{y:.10f}"
+                                                       for t, x, y in zip(track.t, track.x, track.y)))
+    assert main(["fit", str(path), "--centre", "0,0"]) == 0
+    text = capsys.readouterr().out
+    assert "deviation from n = -2" in text and "arcsec per century" in text
+    assert main(["fit", str(path), "--centre", "0,0", "--nominal", "-1.9", "--json"]) == 0
+    report = __import__("json").loads(capsys.readouterr().out)[0]
+    assert report["deviation"]["nominal"] == -1.9
+    assert report["deviation"]["delta"] == pytest.approx(report["exponent"] + 1.9)
+    assert np.isnan(report["deviation"]["precession_per_orbit"] or np.nan)
