@@ -1,0 +1,162 @@
+"""A pendulum is Hooke's law only for small swings: the finite-amplitude correction.
+
+A bob on a rod of length L swings on a sphere; seen from above its path is close to an
+orbit of F = -(g/L) r, but not exactly: the restoring force grows more slowly than r and
+the ellipse turns (Airy's precession), so a power-law fit of a real swing gives
+n ≈ 1 - 1.1 (a/L)**2 and a slightly low k (CHECKS.md §6, derived). Rather than a formula
+for one shape of swing, the correction here is exact for any: an ideal spherical pendulum of
+the same length, started in the fitted state, is integrated (`spherical_pendulum_states`,
+the exact equations of motion) and fitted the same way; what that fit finds instead of
+n = 1 and k = g/L is the finite-amplitude offset, taken off the measured values.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .._json import json_safe
+from .._types import Row
+from ..dynamics.simulate import spherical_pendulum_states
+from ..errors import InputError
+from ..estimators.orbit import fit_orbit
+from ..estimators.result import OrbitFit
+from ..track import Track
+from ..units import PIXEL, format_measurement, strength_unit
+
+
+@dataclass(frozen=True)
+class PendulumCorrection:
+    """A pendulum fit with its finite-amplitude offsets taken off.
+
+    Attributes
+    ----------
+    length : float
+        The pendulum's length, in the track's length unit.
+    ideal_exponent : float
+        What the same fit finds on an ideal spherical pendulum of this length and swing.
+    ideal_strength_ratio : float
+        That fit's omega**2 (k at n = 1, at the reference radius) over the true g/L.
+    exponent, exponent_stderr : float
+        The measured exponent less (ideal_exponent - 1).
+    omega_squared, omega_squared_stderr : float
+        g/L (T**-2): the measured k at n = 1 divided by ``ideal_strength_ratio``.
+    gravity, gravity_stderr : float
+        g = omega**2 L (L T**-2).
+    length_unit, time_unit : str
+    """
+
+    length: float
+    ideal_exponent: float
+    ideal_strength_ratio: float
+    exponent: float
+    exponent_stderr: float
+    omega_squared: float
+    omega_squared_stderr: float
+    gravity: float
+    gravity_stderr: float
+    length_unit: str
+    time_unit: str
+
+    def rows(self) -> list[Row]:
+        """The correction as rows with units."""
+        return [
+            Row("ideal pendulum of this swing", f"n = {self.ideal_exponent:.6f}, "
+                                                f"omega^2 x {self.ideal_strength_ratio:.6f}",
+                "(what the fit finds on the exact motion)"),
+            Row("exponent, finite amplitude removed",
+                format_measurement(self.exponent, self.exponent_stderr)),
+            Row("g / L", format_measurement(self.omega_squared, self.omega_squared_stderr),
+                strength_unit(self.length_unit, self.time_unit, 1.0)),
+            Row("g", format_measurement(self.gravity, self.gravity_stderr),
+                f"{self.length_unit} {self.time_unit}^-2 (with L = {self.length:g} {self.length_unit})"),
+        ]
+
+    def to_text(self) -> str:
+        """The rows as indented lines."""
+        return "\n".join(f"  {row.label:<36} {row.text}" for row in self.rows())
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-safe form."""
+        return json_safe(dict(vars(self)))
+
+
+def pendulum_correction(fit: OrbitFit, track: Track, *, length: float) -> PendulumCorrection:
+    """Take a finite swing's offsets off an orbit fit of a pendulum bob's path.
+
+    Parameters
+    ----------
+    fit : OrbitFit
+        The orbit fit of ``track`` (one track, timestamped).
+    track : Track
+        The bob's positions, in a length unit (not pixels) and a time unit.
+    length : float
+        Pivot to bob centre, in the track's length unit.
+
+    Returns
+    -------
+    PendulumCorrection
+
+    Examples
+    --------
+    >>> from forcefit.dynamics.simulate import simulate_pendulum
+    >>> swing = simulate_pendulum(length=2.0, start=(0.1, 0.0), velocity=(0.0, 0.1), duration=20.0,
+    ...                           rate=50.0, noise=2e-4, rng=1)
+    >>> fit = fit_orbit(swing)
+    >>> abs(fit.exponent - 1.0) > 5 * fit.exponent_stderr          # not Hooke's law at face value
+    True
+    >>> corrected = pendulum_correction(fit, swing, length=2.0)
+    >>> abs(corrected.exponent - 1.0) < 3 * corrected.exponent_stderr
+    True
+    """
+    if fit.n_tracks != 1 or track.t is None:
+        raise InputError("the pendulum correction takes the orbit fit of one timestamped track.")
+    if track.length_unit == PIXEL:
+        raise InputError(f"{track.label}: the pendulum's finite-amplitude correction needs lengths, not "
+                         "pixels; calibrate the track (a scale or two marks) first.")
+    if not (math.isfinite(length) and length > 0):
+        raise InputError(f"the pendulum length {length!r} must be a positive number.")
+    omega2, omega2_se = fit.strength_at_exponent(1.0)
+    t = np.asarray(track.t)
+    ideal = _ideal_swing(fit, t, length, omega2 * length, track)
+    synthetic = Track(t=t, x=ideal[:, 0], y=ideal[:, 1], length_unit=track.length_unit,
+                      time_unit=track.time_unit, name=f"{track.name} (ideal pendulum)")
+    model = fit_orbit(synthetic, centre=(0.0, 0.0))
+    ratio = model.strength_at_exponent(1.0)[0] / omega2
+    exponent = fit.exponent - (model.exponent - 1.0)
+    corrected, corrected_se = omega2 / ratio, omega2_se / ratio
+    return PendulumCorrection(
+        length=float(length), ideal_exponent=model.exponent, ideal_strength_ratio=ratio, exponent=exponent,
+        exponent_stderr=fit.exponent_stderr, omega_squared=corrected, omega_squared_stderr=corrected_se,
+        gravity=corrected * length, gravity_stderr=corrected_se * length,
+        length_unit=track.length_unit, time_unit=track.time_unit)
+
+
+def _ideal_swing(fit: OrbitFit, t: np.ndarray, length: float, gravity: float, track: Track) -> np.ndarray:
+    """An ideal pendulum's horizontal positions at ``t``, in the fitted state at the fit's epoch:
+    integrated forwards from the epoch, and backwards as the forward motion with the velocity
+    reversed (the undamped pendulum runs the same path backwards in time)."""
+    _, _, first = fit.model.track_columns(0)
+    state = fit.vector[first:first + 4]
+    if math.hypot(*state[:2]) >= length:
+        raise InputError(f"{track.label}: the bob swings {math.hypot(*state[:2]):.4g} {track.length_unit} "
+                         f"from the centre, more than the pendulum length {length:g}; check the length "
+                         "and its unit.")
+    epoch = fit.model.epochs[0]
+    positions = np.empty((t.size, 2))
+    for picked, direction in ((t >= epoch, 1.0), (t < epoch, -1.0)):
+        if not picked.any():
+            continue
+        elapsed = np.abs(t[picked] - epoch)
+        order = np.argsort(elapsed)
+        times = elapsed[order]
+        lead = 0 if times[0] == 0.0 else 1                  # the solver starts at the epoch
+        times = np.concatenate(([0.0], times)) if lead else times
+        swing = spherical_pendulum_states(length=length, gravity=gravity, start=list(state[:2]),
+                                          velocity=list(direction * state[2:]), times=times)[lead:]
+        chosen = np.flatnonzero(picked)[order]
+        positions[chosen] = swing
+    return positions

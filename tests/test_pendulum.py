@@ -1,0 +1,57 @@
+"""The finite-amplitude correction of a pendulum fit, against the exact spherical pendulum."""
+
+import math
+
+import numpy as np
+import pytest
+
+from forcefit.analysis.pendulum import pendulum_correction
+from forcefit.dynamics.simulate import simulate_pendulum
+from forcefit.errors import InputError
+from forcefit.estimators import fit_orbit
+from forcefit.track import Track
+
+G = 9.81                       # m/s^2, the simulation's g (not standard gravity: CHECKS.md §6)
+
+
+@pytest.fixture(scope="module")
+def swing():
+    # a/L = 0.05: a power-law fit reads n ~ 1 - 1.1 (a/L)^2 (CHECKS.md §6, derived) and the
+    # Airy precession turns the ellipse (Airy 1851; Olsson 1981, Am. J. Phys. 49, 531).
+    velocity = (0.0, 0.5 * 0.1 * math.sqrt(G / 2))
+    track = simulate_pendulum(length=2.0, gravity=G, start=(0.1, 0.0), velocity=velocity, duration=30.0,
+                              rate=60.0, noise=3e-4, rng=5)
+    return track, fit_orbit(track)
+
+
+def test_the_raw_fit_is_not_hookes_law_at_face_value(swing):
+    _, fit = swing
+    assert fit.passed
+    assert fit.exponent < 1.0 - 10 * fit.exponent_stderr
+    assert fit.exponent == pytest.approx(1 - 1.1 * 0.05**2, abs=2e-3)
+
+
+def test_the_correction_gives_back_hookes_law_and_g(swing):
+    track, fit = swing
+    corrected = pendulum_correction(fit, track, length=2.0)
+    assert abs(corrected.exponent - 1.0) < 3 * corrected.exponent_stderr
+    assert abs(corrected.gravity - G) < 3 * corrected.gravity_stderr
+    assert corrected.gravity_stderr < 1e-3 * G                     # and it is a precise test
+    assert corrected.omega_squared == pytest.approx(corrected.gravity / 2.0)
+
+
+def test_a_small_swing_needs_almost_no_correction():
+    track = simulate_pendulum(length=10.0, gravity=G, start=(0.02, 0.0), velocity=(0.0, 0.01), duration=40.0,
+                              rate=30.0, noise=1e-4, rng=2)
+    corrected = pendulum_correction(fit_orbit(track), track, length=10.0)
+    assert abs(corrected.ideal_exponent - 1.0) < 1e-5              # (a/L)^2 = 4e-6
+    assert corrected.ideal_strength_ratio == pytest.approx(1.0, abs=1e-5)
+
+
+def test_the_correction_refuses_pixels_and_impossible_lengths(swing):
+    track, fit = swing
+    with pytest.raises(InputError, match="more than the pendulum length"):
+        pendulum_correction(fit, track, length=0.05)
+    pixels = Track(t=track.t, x=np.asarray(track.x), y=np.asarray(track.y), length_unit="px")
+    with pytest.raises(InputError, match="not pixels"):
+        pendulum_correction(fit, pixels, length=2.0)
