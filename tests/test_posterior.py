@@ -1,5 +1,7 @@
 """Posterior sampling: exact on a linear-Gaussian toy, honest on orbits, resumable."""
 
+import math
+
 import numpy as np
 import pytest
 
@@ -7,6 +9,7 @@ from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import InputError
 from forcefit.estimators import fit_orbit, fit_shape
 from forcefit.inference.posterior import run_ensemble, sample_posterior
+from forcefit.track import Track
 
 
 def test_linear_gaussian_toy_matches_the_closed_form():
@@ -99,3 +102,42 @@ def test_only_orbit_fits_can_be_sampled():
     fit = fit_shape(simulate_orbit(exponent=1.0, noise=0.001, rng=1))
     with pytest.raises(InputError, match="fit_orbit"):
         sample_posterior(fit, progress=False)
+
+
+def _ar1_fit():
+    # AR(1) position noise (rho = 0.9), integrated autocorrelation time (1 + rho)/(1 - rho) = 19
+    # samples (Box & Jenkins 1976, Time Series Analysis, eq. 3.2.9).
+    generator = np.random.default_rng(8)
+    track = simulate_orbit(exponent=1.0, strength=4.0, start=(0.2, 0.0), velocity=(0.0, 0.25),
+                           duration=12.0, rate=15.0)
+    noise = np.zeros((track.n_points, 2))
+    for i in range(1, track.n_points):
+        noise[i] = 0.9 * noise[i - 1] + math.sqrt(1 - 0.81) * 3e-4 * generator.standard_normal(2)
+    return fit_orbit(Track(t=track.t, x=track.x + noise[:, 0], y=track.y + noise[:, 1]))
+
+
+def test_the_correlated_likelihood_counts_each_residual_one_tau_th():
+    from forcefit.inference.posterior import _problem
+
+    fit = _ar1_fit()
+    assert fit.correlation_time > 5
+    tau = fit.correlation_time
+    correlated, best, covariance = _problem(fit, "known", {}, tau)
+    independent, _, _ = _problem(fit, "known", {}, 1.0)
+    away = best + np.sqrt(np.diag(covariance)) * 0.7
+    gap_correlated = correlated(best[None])[0] - correlated(away[None])[0]
+    gap_independent = independent(best[None])[0] - independent(away[None])[0]
+    assert gap_correlated == pytest.approx(gap_independent / tau, rel=1e-9)
+
+
+@pytest.mark.slow
+def test_the_posterior_widens_with_correlated_residuals():
+    # The fit widens its errors by sqrt(tau); the posterior's correlated-noise likelihood must
+    # widen the same way, the independent one must not.
+    fit = _ar1_fit()
+    widened = sample_posterior(fit, rng=3, progress=False, max_steps=1500, min_steps=1500)
+    independent = sample_posterior(fit, rng=3, progress=False, max_steps=1500, min_steps=1500,
+                                   correlated=False)
+    ratio = widened.samples["exponent"].std() / independent.samples["exponent"].std()
+    assert ratio == pytest.approx(math.sqrt(fit.correlation_time), rel=0.25)
+    assert widened.samples["exponent"].std() == pytest.approx(fit.exponent_stderr, rel=0.25)

@@ -55,8 +55,8 @@ def _cmd_sample(args: argparse.Namespace) -> int:
             chain = Path(chain).with_name(f"{Path(chain).stem}_{track.name}{Path(chain).suffix}")
         posterior = sample_posterior(
             fit, walkers=args.walkers, max_steps=args.max_steps, priors=dict(args.prior),
-            noise=args.noise, progress=not args.json, rng=args.seed, save=chain,
-            resume=bool(args.resume))
+            noise=args.noise, correlated=not args.independent, progress=not args.json, rng=args.seed,
+            save=chain, resume=bool(args.resume))
         if not posterior.converged:
             status = EXIT_FAILED_CHECKS
         if args.figures:
@@ -95,6 +95,9 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
                           help="sigma as given, or sample a noise scale (default: by the data)")
     sampling.add_argument("--prior", type=_prior, action="append", default=[], metavar="NAME=KIND:A:B",
                           help="prior for a parameter: uniform:LOW:HIGH or normal:MEAN:SD; repeatable")
+    sampling.add_argument("--independent", action="store_true",
+                          help="take the residuals as independent (default: the fit's correlated-noise "
+                               "model widens the likelihood by the residuals' correlation time)")
     sampling.add_argument("--save", metavar="FILE", help="keep the chain in this HDF5 file")
     sampling.add_argument("--resume", metavar="FILE", help="continue the chain in this HDF5 file")
     sampling.add_argument("--figures", metavar="DIR", help="write corner and trace plots (PNG) here")

@@ -217,6 +217,7 @@ class _Problem:
     sigma: FloatArray
     fit_noise: bool
     priors: Mapping[str, Prior]
+    correlation_time: float = 1.0
 
     def __call__(self, theta: FloatArray) -> FloatArray:
         theta = np.atleast_2d(theta)
@@ -229,9 +230,10 @@ class _Problem:
         predictions, ok = self.model.predict(full)
         stacked = np.concatenate(predictions, axis=1)
         chi2 = np.sum(((self.data[None] - stacked) / self.sigma[None, :, None]) ** 2, axis=(1, 2))
+        chi2 /= self.correlation_time                  # correlated residuals: 1/tau the information
         if self.fit_noise:
             scale = np.exp(theta[alive][:, -1])
-            likelihood = -0.5 * chi2 / scale**2 - self.data.size * np.log(scale)
+            likelihood = -0.5 * chi2 / scale**2 - self.data.size / self.correlation_time * np.log(scale)
         else:
             likelihood = -0.5 * chi2
         log_p[alive] += np.where(ok & np.isfinite(likelihood), likelihood, -np.inf)
@@ -239,26 +241,26 @@ class _Problem:
 
 
 def _problem(
-    fit: OrbitFit, noise: str, priors: Mapping[str, Prior]
+    fit: OrbitFit, noise: str, priors: Mapping[str, Prior], correlation_time: float = 1.0,
 ) -> tuple[_Problem, FloatArray, FloatArray]:
     """The log-probability, the best-fit point and the covariance to start the walkers from."""
     model: OrbitModel = replace(fit.model, rtol=SAMPLING_RTOL)
     varying = list(fit.parameter_names)
     template = np.array([fit.values[name] for name in model.names])
     best = np.array([fit.values[name] for name in varying])
-    covariance = np.array(fit.covariance, dtype=float)
+    covariance = np.array(fit.covariance, dtype=float) * correlation_time / fit.correlation_time
     fit_noise = noise == "fit"
     names = tuple(varying) + (("log_noise_scale",) if fit_noise else ())
     if fit_noise:
         scale = math.log(max(math.sqrt(fit.reduced_chi2), 1e-6))
         best = np.append(best, scale)
         covariance = np.pad(covariance, ((0, 1), (0, 1)))
-        covariance[-1, -1] = 1.0 / (2.0 * fit.n_points)
+        covariance[-1, -1] = correlation_time / (2.0 * fit.n_points)
     _check_priors(priors, names)
     problem = _Problem(model=model, template=template,
                        columns=np.array([model.names.index(name) for name in varying]),
                        names=names, data=observed(model.tracks), sigma=np.asarray(fit.sigma),
-                       fit_noise=fit_noise, priors=priors)
+                       fit_noise=fit_noise, priors=priors, correlation_time=correlation_time)
     return problem, best, covariance
 
 
@@ -310,6 +312,7 @@ def sample_posterior(
     min_steps: int = 0,
     priors: Mapping[str, Prior] | None = None,
     noise: Literal["known", "fit"] | None = None,
+    correlated: bool = True,
     moves: Literal["de", "stretch"] = "de",
     progress: bool = True,
     rng: np.random.Generator | int | None = None,
@@ -334,6 +337,13 @@ def sample_posterior(
     noise : {"known", "fit"}, optional
         Take sigma as given, or sample a noise scale factor too (default: "known" when
         the tracks carry sigma, else "fit").
+    correlated : bool
+        Use the fit's correlated-noise model (default): residuals that stay alike over tau
+        samples (the fit's ``correlation_time``) carry 1/tau as much information, so the
+        log-likelihood is divided by tau -- the same widening as the fit's errors (the
+        effective-sample-size approximation; e.g. B. Efron & R. Tibshirani 1993, An
+        Introduction to the Bootstrap, §8.5, for dependent data). False takes the
+        residuals as independent.
     moves : {"de", "stretch"}
         Differential-evolution moves (default; shorter autocorrelation on these
         posteriors, see benchmarks/posterior.py) or emcee's stretch move.
@@ -354,7 +364,8 @@ def sample_posterior(
         raise InputError("sampling needs a fit from fit_orbit (the orbit method); "
                          f"this one is a {fit.method} fit.")
     noise = noise or ("known" if fit.sigma_known else "fit")
-    problem, best, covariance = _problem(fit, noise, dict(priors or {}))
+    problem, best, covariance = _problem(fit, noise, dict(priors or {}),
+                                         fit.correlation_time if correlated else 1.0)
 
     def in_prior(points: FloatArray) -> np.ndarray:
         return np.isfinite(_log_prior(points, problem.names, problem.priors))
