@@ -47,8 +47,8 @@ def test_path_figure_draws_the_samples_and_the_fitted_orbit(track, orbit):
     assert "n = " in fitted.get_label()
 
 
-def test_relation_figure_draws_the_results_points(orbit, track):
-    for fit in (orbit, fit_curvature(track)):
+def test_relation_figure_draws_the_results_points(track):
+    for fit in (fit_curvature(track),):
         figure = relation_figure(fit)
         points = figure.axes[0].lines[0]
         np.testing.assert_array_equal(points.get_xdata(), fit.relation.log_radius)
@@ -56,6 +56,12 @@ def test_relation_figure_draws_the_results_points(orbit, track):
         line = figure.axes[0].lines[1]
         slope = np.polyfit(line.get_xdata(), line.get_ydata(), 1)[0]
         assert slope == pytest.approx(fit.exponent, rel=1e-9)        # the fitted law's line
+
+
+def test_an_orbit_fit_has_no_relation_to_draw(orbit):
+    assert orbit.relation.log_radius.size == 0
+    with pytest.raises(ValueError, match="no force-curvature points"):
+        relation_figure(orbit)
 
 
 def test_residual_figure_plots_each_coordinate_against_time(track, orbit):

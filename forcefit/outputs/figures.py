@@ -150,6 +150,8 @@ def residual_figure(track: Track, fit: LawFit) -> Figure:
 def relation_figure(fit: LawFit) -> Figure:
     """The force-curvature relation about the fitted centre in log-log, with the fitted law's line."""
     points = fit.relation
+    if points.log_radius.size == 0:
+        raise ValueError(f"the {fit.method} fit has no force-curvature points to draw")
     length = fit.length_unit
     label = "ln(F / h^2)" if points.per_h2 else f"ln F [F in {length} {fit.time_unit}^-2]"
     figure = Figure(figsize=(6.0, 4.0))
