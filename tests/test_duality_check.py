@@ -29,3 +29,37 @@ def test_the_dual_strength_comes_from_the_orbit_fits_energy():
     assert check.fitted.method == "orbit" and check.passed
     assert check.fitted.strength == pytest.approx(check.predicted_strength, rel=1e-3)
     assert math.isnan(predicted_dual_strength(fit_shape(track, centre=(0.0, 0.0))))   # no state
+
+
+@pytest.fixture(scope="module")
+def hooke_check():
+    # The Hooke orbit of issue 13's failure mode 7, shortened: k = 3 s^-2 from (0.3, 0) m at (0, 0.19) m/s.
+    track = simulate_orbit(exponent=1.0, strength=3.0, start=(0.3, 0.0), velocity=(0.0, 0.19),
+                           duration=12.0, rate=60.0, noise=5e-4, rng=5)
+    fit = fit_orbit(track)
+    return track, fit, check_duality(track, fit)
+
+
+def test_the_dual_strength_is_compared_in_its_errors_and_unit(hooke_check):
+    _, _, check = hooke_check
+    # The dual of a Hooke orbit is a Kepler orbit with GM equal to the Hooke energy,
+    # E = v^2/2 + k r^2/2 (Arnold 1990, Huygens and Barrow, Newton and Hooke, from memory).
+    energy = 0.19**2 / 2 + 3.0 * 0.3**2 / 2
+    assert abs(check.predicted_strength - energy) < 3 * check.predicted_strength_stderr
+    assert abs(check.fitted.strength - energy) < 3 * check.fitted.strength_stderr
+    assert 0 < check.predicted_strength_stderr < 1e-3 * energy          # not inflated to pass
+    assert check.strength_unit == "m^3 s^-2" and check.passed
+    text = check.to_text()
+    assert "dual strength  predicted" in text and "m^3 s^-2" in text and "consistent" in text
+
+
+def test_a_wrong_strength_fails_the_duality_check(hooke_check):
+    track, fit, check = hooke_check
+    # 2% too strong a law predicts a dual GM about 2% off: far beyond both errors.
+    wrong = type(fit)(**{**fit.__dict__, "strength": 1.02 * fit.strength,
+                         "force_at_reference": 1.02 * fit.force_at_reference})
+    broken = check_duality(track, wrong)
+    assert abs(broken.z_score) < 3                       # the exponent alone cannot see it
+    assert broken.predicted_strength > check.predicted_strength       # a deeper well, a larger E
+    assert broken.strength_z_score < -3 and not broken.passed          # the refit sees the old E
+    assert "INCONSISTENT" in broken.to_text()

@@ -7,9 +7,10 @@ import math
 from pathlib import Path
 from typing import Any
 
-from ..analysis.duality_check import predicted_dual_strength
+from ..analysis.duality_check import predicted_dual_strength_with_error
 from ..dynamics.duality import dual_exponent, dual_track
 from ..estimators import registry
+from ..units import strength_unit
 from ..reading.loaders import save_track
 from ._common import EXIT_OK, FORMATTER, add_centre_option, read_tracks
 
@@ -23,19 +24,22 @@ examples:
 def _cmd_dual(args: argparse.Namespace) -> int:
     tracks = read_tracks(args.file, args)
     for track in tracks:
-        exponent, centre, strength = args.exponent, args.centre, math.nan
+        exponent, centre = args.exponent, args.centre
+        strength = strength_stderr = math.nan
         if exponent is None or centre is None:
             method = registry.choose_method(track)
             held = {"exponent": exponent} if method == "orbit" else {}     # only the orbit fit holds n
             fit = registry.fit(track, method, centre=centre, **held)
             exponent = fit.exponent if exponent is None else exponent
             centre = fit.centre if centre is None else centre
-            strength = predicted_dual_strength(fit)
+            strength, strength_stderr = predicted_dual_strength_with_error(fit)
         dual = dual_track(track, exponent, centre)
         print(f"{track.name}: n = {exponent:.6g} about ({centre[0]:.6g}, {centre[1]:.6g}) "
               f"{track.length_unit}; mapped by w = z^{(exponent + 3) / 2:.6g}")
-        print(f"  predicted dual law: n' = {dual_exponent(exponent):.6g}"
-              + (f", k' = {strength:.6g}" if math.isfinite(strength) else ""))
+        law = dual_exponent(exponent)
+        unit = strength_unit(track.length_unit, track.time_unit or "T", law)
+        print(f"  predicted dual law: n' = {law:.6g}"
+              + (f", k' = {strength:.6g} ± {strength_stderr:.2g} {unit}" if math.isfinite(strength) else ""))
         if args.out:
             out = Path(args.out)
             if len(tracks) > 1:

@@ -87,9 +87,11 @@ def dual_track(track: Track, exponent: float, centre: Sequence[float] = (0.0, 0.
     Returns
     -------
     Track
-        The dual path: positions w in L**alpha (written in the track's length unit with
-        the centre at the origin) and, for a timestamped track, the new time
-        tau = integral of alpha |z|**(2 alpha - 2) dt (cumulative Simpson rule). Its metadata
+        The dual path w = L0 (z / L0)**alpha, with the reference length L0 one unit of the
+        track's length (so positions stay in the track's length unit, the centre at the
+        origin) and, for a timestamped track, the new time
+        tau = integral of alpha (|z| / L0)**(2 alpha - 2) dt (cumulative Simpson rule), in
+        the track's time unit. Its metadata
         record alpha and the predicted dual exponent. A shape-only track keeps its sigma,
         mapped by |dw/dz|; a re-timed one drops it (noise in z also perturbs the new times)
         so that a fit estimates the noise.
@@ -126,7 +128,8 @@ def dual_track(track: Track, exponent: float, centre: Sequence[float] = (0.0, 0.
         name=f"{track.name} (dual, w = z^{alpha:g})",
         metadata={"dual_of": track.name, "map_power": alpha, "exponent": exponent,
                   "dual_exponent": dual_exponent(exponent), "centre": [float(c) for c in centre],
-                  "units_note": f"w is in {track.length_unit}^{alpha:g} and tau in "
-                                f"{track.time_unit} {track.length_unit}^{2 * alpha - 2:g}, written "
-                                "with the original unit names"},
+                  "units_note": f"w = L0 (z/L0)^{alpha:g} and tau from d(tau)/dt = "
+                                f"{alpha:g} (|z|/L0)^{2 * alpha - 2:g}, with L0 = 1 "
+                                f"{track.length_unit}: positions in {track.length_unit}, times in "
+                                f"{track.time_unit}"},
     )
