@@ -71,10 +71,10 @@ class DualityCheck:
     def to_text(self) -> str:
         """Predicted and fitted dual exponent (and strength), and the verdict."""
         verdict = "consistent" if self.passed else "INCONSISTENT"
+        predicted = _value(self.predicted_exponent, self.predicted_exponent_stderr)
         line = (f"duality check: {verdict} (each within {LIMIT:g} standard errors)\n"
-                f"    dual exponent  predicted {_value(self.predicted_exponent, self.predicted_exponent_stderr)}, "
-                f"fitted {_value(self.fitted.exponent, self.fitted.exponent_stderr)} "
-                f"({self.z_score:+.1f} sigma)")
+                f"    dual exponent  predicted {predicted}, fitted "
+                f"{_value(self.fitted.exponent, self.fitted.exponent_stderr)} ({self.z_score:+.1f} sigma)")
         if math.isfinite(self.strength_z_score):
             unit = self.strength_unit
             line += (f"\n    dual strength  predicted "

@@ -10,8 +10,8 @@ from typing import Any
 from ..analysis.duality_check import predicted_dual_strength_with_error
 from ..dynamics.duality import dual_exponent, dual_track
 from ..estimators import registry
-from ..units import strength_unit
 from ..reading.loaders import save_track
+from ..units import strength_unit
 from ._common import EXIT_OK, FORMATTER, add_centre_option, read_tracks
 
 _EXAMPLES = """\
