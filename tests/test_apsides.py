@@ -33,6 +33,8 @@ def test_near_circular_apsidal_angle_on_simulated_orbits(exponent, published):
                            noise=1e-6, rng=1)
     apsides = measure_apsides(track, centre=(0.0, 0.0))
     assert apsides.apsidal_angle == pytest.approx(published, abs=2e-4)   # O(e^2) ~ 1e-5 here
+    # and its inverse n = (pi / psi)^2 - 3 gives the exponent back (same sources)
+    assert apsides.exponent_near_circular == pytest.approx(exponent, abs=1e-3)
 
 
 def test_exact_integral_against_the_measured_angle_of_an_eccentric_orbit():

@@ -159,6 +159,31 @@ def test_apsides_of_the_stairwell_pendulum_leave_no_anomaly(capsys):
     assert rates["finite_amplitude"] > 3e-4 and rates["earth_rotation"] < 0
 
 
+def test_apsides_rates_are_the_same_for_a_track_in_seconds_and_in_milliseconds(tmp_path, capsys):
+    # The same stairwell pendulum with its times written in ms: every rate printed per second
+    # or per century must come out the same (a unit conversion, common practice).
+    lines = (DEMO / "stairwell_pendulum.csv").read_text().splitlines()
+    header = lines.index("frame,t [s],x [px],y [px]")
+    rows = [line.split(",") for line in lines[header + 1:]]
+    in_ms = tmp_path / "stairwell_ms.csv"
+    in_ms.write_text("frame,t [ms],x [px],y [px]\n" + "".join(
+        f"{row[0]},{float(row[1]) * 1000:.1f},{row[2]},{row[3]}\n" for row in rows))
+    options = ["--length-unit", "px", "--scale", "1.6 mm", "--origin", "958.3,541.7", "--flip-y",
+               "--pendulum-length", "11.0", "--gravity", "9.8105", "--latitude", "52", "--json"]
+    reports = []
+    for path in (DEMO / "stairwell_pendulum.csv", in_ms):
+        assert main(["apsides", str(path), *options]) == 0
+        (report,) = json.loads(capsys.readouterr().out)
+        reports.append(report)
+    seconds, millis = reports
+    assert millis["precession_rate_unit"] == "rad/ms"
+    assert millis["precession_rate"] * 1000 == pytest.approx(seconds["precession_rate"], rel=1e-3)
+    for key, value in seconds["precession_rad_per_s"].items():
+        assert millis["precession_rad_per_s"][key] == pytest.approx(value, rel=1e-3, abs=1e-12), key
+    assert millis["precession_arcsec_per_century"] == pytest.approx(
+        seconds["precession_arcsec_per_century"], rel=1e-3)
+
+
 def test_dual_and_plan_commands(tmp_path, capsys):
     hooke = tmp_path / "hooke.csv"
     main(["simulate", "--exponent", "1", "--strength", "4", "--start", "1.4,0", "--velocity", "0,1.6",

@@ -23,3 +23,26 @@ def test_circular_speed_balances_the_force():
     r = 2.0
     for exponent in (-2.0, 1.0, 0.5):
         assert float(circular_speed(r, exponent, 3.0)) ** 2 / r == pytest.approx(3.0 * r**exponent)
+
+
+def test_one_year_from_the_astronomical_unit_and_the_suns_gm_in_si():
+    # a = 1 au = 149 597 870 700 m exactly (IAU 2012 Resolution B2); GM_sun = 1.32712440041e20
+    # m^3 s^-2 (the DE-series value, e.g. Folkner et al. 2014, DE430/431 IPN 42-196, Table 8).
+    # Kepler's third law T = 2 pi sqrt(a^3 / GM) then gives the Gaussian year of 365.25690 d
+    # (Gauss 1809; IAU 1976): evaluated at r far from 1, where r**((1 - n)/2) matters.
+    period = float(circular_period(149_597_870_700.0, -2.0, 1.32712440041e20)) / 86400.0
+    assert period == pytest.approx(365.2568983, abs=2e-4)
+
+
+@pytest.mark.parametrize("radius", [0.01, 7.0, 250.0])
+def test_circular_periods_scale_with_radius_as_their_law_says(radius):
+    # Hooke: T = 2 pi / sqrt(k) whatever the radius; a constant force k: v^2 / r = k, so
+    # T = 2 pi r / v = 2 pi sqrt(r / k) (common practice).
+    assert float(circular_period(radius, 1.0, 4.0)) == pytest.approx(np.pi, rel=1e-12)
+    assert float(circular_period(radius, 0.0, 4.0)) == pytest.approx(2 * np.pi * np.sqrt(radius / 4.0),
+                                                                      rel=1e-12)
+    # and the circular speed's orbit closes in that period: 2 pi r / v
+    for exponent in (-2.0, -1.0, 0.5):
+        speed = float(circular_speed(radius, exponent, 4.0))
+        assert float(circular_period(radius, exponent, 4.0)) == pytest.approx(2 * np.pi * radius / speed,
+                                                                              rel=1e-12)

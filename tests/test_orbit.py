@@ -232,3 +232,20 @@ def test_correlated_residuals_widen_the_errors():
     widened = fit.white_stderrs["exponent"] * math.sqrt(fit.correlation_time)
     assert fit.exponent_stderr == pytest.approx(widened)
     assert fit.diagnostics["correlation"].passed is False
+
+
+def test_without_sigma_the_errors_follow_the_residuals_spread():
+    # The residual-variance convention (NIST StRD nonlinear regression, certified standard
+    # deviations; common practice): with sigma unknown, stderr = stderr(sigma known) *
+    # sqrt(reduced chi-square of the known-sigma fit). Here the stated sigma is 2.5x too small.
+    rng = np.random.default_rng(3)
+    clean = simulate_orbit(exponent=-1.5, duration=20.0, rate=30.0, noise=0.0, rng=1)
+    x = clean.x + 2.5e-3 * rng.standard_normal(clean.n_points)
+    y = clean.y + 2.5e-3 * rng.standard_normal(clean.n_points)
+    known = fit_orbit(Track(t=clean.t, x=x, y=y, sigma=np.full(clean.n_points, 1e-3)))
+    unknown = fit_orbit(Track(t=clean.t, x=x, y=y))
+    assert known.reduced_chi2 == pytest.approx(6.25, rel=0.15)
+    ratio = unknown.exponent_stderr / known.exponent_stderr
+    assert ratio == pytest.approx(np.sqrt(known.reduced_chi2), rel=0.02)
+    assert unknown.strength_stderr / known.strength_stderr == pytest.approx(ratio, rel=0.02)
+    assert unknown.reduced_chi2 == pytest.approx(1.0, rel=0.02)
