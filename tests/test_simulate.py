@@ -9,12 +9,31 @@ from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum, spheri
 from forcefit.errors import InputError
 
 
-def test_noise_free_track_is_the_reference_orbit():
-    track = simulate_orbit(exponent=-1.5, strength=2.0, duration=10.0, rate=20.0, centre=(3.0, -1.0))
-    truth = track.metadata["truth"]
-    states = propagate_reference(truth["start"], truth["velocity"], track.t, exponent=-1.5, strength=2.0)
-    np.testing.assert_allclose(track.x - 3.0, states.position[:, 0], atol=1e-12)
-    np.testing.assert_allclose(track.y + 1.0, states.position[:, 1], atol=1e-12)
+def test_a_noise_free_hooke_track_is_the_harmonic_oscillator():
+    # F = -k r: x(t) = x0 cos(wt) + (vx0/w) sin(wt), w = sqrt(k), per axis (common practice).
+    track = simulate_orbit(exponent=1.0, strength=2.25, start=(1.2, 0.3), velocity=(-0.4, 0.9),
+                           duration=17.0, rate=20.0, centre=(3.0, -1.0))
+    w, t = 1.5, track.t
+    np.testing.assert_allclose(track.x - 3.0, 1.2 * np.cos(w * t) - 0.4 / w * np.sin(w * t), atol=1e-9)
+    np.testing.assert_allclose(track.y + 1.0, 0.3 * np.cos(w * t) + 0.9 / w * np.sin(w * t), atol=1e-9)
+
+
+def test_a_noise_free_kepler_track_follows_keplers_equation():
+    # From pericentre r_p = a(1 - e) at speed sqrt(GM (1 + e) / r_p): M = E - e sin E with
+    # M = sqrt(GM / a^3) t, x = a (cos E - e), y = a sqrt(1 - e^2) sin E (Murray & Dermott 1999,
+    # Solar System Dynamics, eqs 2.36-2.41, from memory); E solved by scipy's Newton method.
+    from scipy.optimize import newton
+
+    gm, a, e = 4.0, 1.5, 0.6
+    pericentre = a * (1 - e)
+    track = simulate_orbit(exponent=-2.0, strength=gm, start=(pericentre, 0.0),
+                           velocity=(0.0, np.sqrt(gm * (1 + e) / pericentre)), duration=12.0,
+                           rate=50.0)
+    mean_anomaly = np.sqrt(gm / a**3) * track.t
+    anomaly = newton(lambda E: E - e * np.sin(E) - mean_anomaly, mean_anomaly,
+                     fprime=lambda E: 1 - e * np.cos(E), tol=1e-14, maxiter=100)
+    np.testing.assert_allclose(track.x, a * (np.cos(anomaly) - e), atol=1e-8)
+    np.testing.assert_allclose(track.y, a * np.sqrt(1 - e**2) * np.sin(anomaly), atol=1e-8)
 
 
 def test_noise_dropped_frames_and_outliers_are_as_asked():
