@@ -134,5 +134,6 @@ def test_byte_order_mark_and_mixed_line_endings_are_read(tmp_path, capsys, varia
     path = tmp_path / "run.csv"
     path.write_bytes(text.encode("utf-8"))
     assert load_tracks(path)[0].n_points == 400
-    assert main(["fit", str(path), "--json"]) in (0, 1)
+    # ELLIPSE carries a sin(7t) wobble, not a power law: read whole, fitted, and its residual checks fail
+    assert main(["fit", str(path), "--json"]) == 1
     assert json.loads(capsys.readouterr().out)[0]["n_points"] == 400
