@@ -454,7 +454,7 @@ def tasks(
                 continue
             families.add(scenario.family)
         for name in scenario.estimators:
-            if estimator and estimator != name:
+            if estimator and name not in estimator.split(","):
                 continue
             chosen += [(index, name, seed) for seed in range(1 if slice_ else replicates)]
     return chosen
@@ -493,7 +493,7 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help=f"{QUICK} replicates per cell")
     parser.add_argument("--slice", action="store_true", help="one replicate of every family")
     parser.add_argument("--only", default="", help="cells whose 'family: scenario' holds this text")
-    parser.add_argument("--estimator", default="")
+    parser.add_argument("--estimator", default="", help="only these estimators (comma-separated)")
     parser.add_argument("--log", default="", help="JSON lines of every replicate; resumes from it")
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--markdown", action="store_true", help="also print the family table")
