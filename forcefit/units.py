@@ -17,6 +17,17 @@ from .errors import InputError
 PIXEL = "px"
 _PIXEL_NAMES = frozenset({"px", "pixel", "pixels", "pix", "pxl"})
 
+SKY_ANGLES: dict[str, str] = {
+    "rad": "radian", "deg": "degree", "arcmin": "arcminute", "arcsec": "arcsecond",
+    "mas": "milliarcsecond", "uas": "microarcsecond",
+}
+"""Angles on the sky that serve as the length unit of projected positions (offsets from a
+reference star): symbol and pint's name. They convert among themselves; to a length only
+through a distance (the parallax)."""
+_SKY_NAMES = {**{name: symbol for symbol, name in SKY_ANGLES.items()}, **{s: s for s in SKY_ANGLES},
+              "arcseconds": "arcsec", "as": "arcsec", "\"": "arcsec", "″": "arcsec", "milliarcseconds": "mas",
+              "µas": "uas", "μas": "uas", "degrees": "deg", "arcminutes": "arcmin"}
+
 
 @lru_cache(maxsize=1)
 def registry() -> pint.UnitRegistry:
@@ -61,6 +72,8 @@ def parse_length_unit(name: str) -> str:
     text = name.strip()
     if text.lower() in _PIXEL_NAMES:
         return PIXEL
+    if text in _SKY_NAMES or text.lower() in _SKY_NAMES:
+        return _SKY_NAMES.get(text, _SKY_NAMES.get(text.lower(), text))
     unit = _lookup(text, "[length]")
     if unit is None:
         raise InputError(
@@ -110,7 +123,42 @@ def length_factor(from_unit: str, to_unit: str) -> float:
             "(a scale in length per pixel, or two marks a known distance apart)."
         )
     ureg = registry()
+    if is_sky_angle(source) or is_sky_angle(target):
+        if not (is_sky_angle(source) and is_sky_angle(target)):
+            raise InputError(f"cannot convert {source} to {target}: an angle on the sky becomes a "
+                             "length only through the distance (give radial velocities to fit it).")
+        source, target = SKY_ANGLES[source], SKY_ANGLES[target]
     return float(ureg.Quantity(1.0, source).to(target).magnitude)
+
+
+def is_sky_angle(unit: str) -> bool:
+    """Whether a (parsed) length unit is an angle on the sky (`SKY_ANGLES`).
+
+    Examples
+    --------
+    >>> is_sky_angle(parse_length_unit("milliarcsecond")), is_sky_angle("au")
+    (True, False)
+    """
+    return unit in SKY_ANGLES
+
+
+def velocity_scale(length_unit: str, time_unit: str, velocity_unit: str) -> float:
+    """A velocity of one length unit per time unit, in ``velocity_unit``; for an angle on the sky
+    the length is one au (the parallax, in that angle, then divides).
+
+    Examples
+    --------
+    >>> round(velocity_scale("mas", "yr", "km/s"), 6)   # 1 au per Julian year
+    4.74047
+    """
+    time = "year" if parse_time_unit(time_unit) == "yr" else parse_time_unit(time_unit)
+    length = "au" if is_sky_angle(length_unit) else parse_length_unit(length_unit)
+    if length == PIXEL:
+        raise InputError("velocities need positions in a length or an angle on the sky, not pixels.")
+    try:
+        return float(registry().Quantity(1.0, f"{length} / {time}").to(velocity_unit).magnitude)
+    except Exception:  # pint raises several kinds for a unit that is no velocity
+        raise InputError(f'"{velocity_unit}" is not a velocity unit (expected e.g. km/s or m/s).') from None
 
 
 def time_factor(from_unit: str, to_unit: str) -> float:

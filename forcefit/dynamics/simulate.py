@@ -11,8 +11,10 @@ from numpy.typing import ArrayLike
 from scipy.integrate import solve_ivp
 
 from .._types import FloatArray
+from ..astrometry import Astrometry, RadialVelocities, polar_covariance
 from ..errors import InputError
 from ..track import Track
+from ..units import is_sky_angle, velocity_scale
 from .laws import EARTH_ROTATION_RATE, circular_period, circular_speed
 from .propagate import REFERENCE_RTOL, Drag, propagate_reference
 
@@ -271,3 +273,142 @@ def simulate_pendulum(
         t=samples["t"], x=samples["x"], y=samples["y"], sigma=samples["sigma"],
         length_unit="m", time_unit="s", name=name, metadata={"truth": truth},
     )
+
+
+def _sky_epochs(count: int, duration: float, uneven: bool, rng: np.random.Generator) -> FloatArray:
+    """Epochs over ``duration``: evenly spaced, or at random times (a Poisson process, as nights
+    with good seeing come), the first and last at the ends."""
+    if count < 3:
+        raise InputError(f"{count} epochs are too few; simulate at least 3.")
+    if not uneven:
+        return np.linspace(0.0, duration, count)
+    inner = np.sort(rng.uniform(0.0, duration, count - 2))
+    return np.concatenate(([0.0], inner, [duration]))
+
+
+def simulate_projected(
+    *,
+    exponent: float,
+    strength: float = 1.0,
+    start: Sequence[float] = (1.0, 0.0),
+    velocity: Sequence[float] | None = None,
+    inclination: float = 60.0,
+    node: float = 30.0,
+    duration: float | None = None,
+    count: int = 80,
+    uneven: bool = True,
+    noise: float = 0.0,
+    separation_error: float | None = None,
+    angle_error: float | None = None,
+    velocities: int = 0,
+    velocity_error: float = 0.0,
+    parallax: float = 1.0,
+    velocity_unit: str = "km/s",
+    centre: Sequence[float] = (0.0, 0.0),
+    length_unit: str = "arcsec",
+    time_unit: str = "yr",
+    name: str = "simulated",
+    rng: np.random.Generator | int | None = None,
+) -> Astrometry:
+    """Positions on the sky of a body in F = -k r**n r_hat, its orbit inclined, observed with noise.
+
+    The orbit is integrated in its own plane by the reference integrator, turned by its
+    inclination and node and projected: x = north, y = east (`forcefit.astrometry`), with the
+    line-of-sight coordinate z = sin(i) Y positive away from the observer.
+
+    Parameters
+    ----------
+    exponent, strength : float
+        n and the true k (length_unit**(1-n) time_unit**-2).
+    start, velocity : (float, float)
+        The state at t = 0 in the node frame: first axis towards the ascending node, second 90
+        deg ahead in the direction of motion (L, L/T). Default velocity: 0.8 times the circular
+        speed, along the second axis.
+    inclination, node : float
+        i in degrees (below 90: direct, the position angle increases) and the position angle
+        of the ascending node in degrees (north through east).
+    duration : float, optional
+        Time span; default three circular periods at ``|start|``.
+    count : int
+        Number of epochs.
+    uneven : bool
+        Scattered epochs (random gaps, some long) instead of even ones.
+    noise : float
+        Standard deviation of the position noise per coordinate (L).
+    separation_error, angle_error : float, optional
+        Instead of ``noise``: errors of the separation (L) and of the position angle (deg),
+        drawn along and across the radius.
+    velocities : int
+        Number of radial velocities, at epochs drawn like the positions'.
+    velocity_error : float
+        Their noise, in ``velocity_unit``.
+    parallax : float
+        The parallax in ``length_unit`` when that is an angle on the sky: it sets the radial
+        velocities' scale (one au at the parallax).
+    centre : (float, float)
+        The force centre on the sky (the origin: positions relative to the primary).
+    rng : Generator or int, optional
+        Source of randomness (or its seed).
+
+    Returns
+    -------
+    Astrometry
+        With ``metadata["truth"]`` holding every true value.
+
+    Examples
+    --------
+    >>> data = simulate_projected(exponent=-2.0, inclination=0.0, node=0.0, count=20, uneven=False)
+    >>> bool(np.allclose(data.separation[0], 1.0)), data.track.length_unit
+    (True, 'arcsec')
+    """
+    generator = np.random.default_rng(rng)
+    position = np.asarray(start, dtype=np.float64)
+    r0 = float(np.hypot(*position))
+    if not (math.isfinite(strength) and strength > 0 and r0 > 0):
+        raise InputError("the strength must be positive and the start away from the centre.")
+    if velocity is None:
+        velocity = tuple(0.8 * float(circular_speed(r0, exponent, strength)) * np.array([-position[1], position[0]])
+                         / r0)
+    motion = np.asarray(velocity, dtype=np.float64)
+    if position[0] * motion[1] - position[1] * motion[0] <= 0:
+        raise InputError("the velocity must turn from the node axis towards the second axis (positive "
+                         "angular momentum in the node frame); set the sense with the inclination "
+                         "(above 90 deg: retrograde).")
+    if not 0.0 <= inclination <= 180.0:
+        raise InputError(f"inclination {inclination!r} must lie between 0 and 180 degrees.")
+    duration = 3.0 * float(circular_period(r0, exponent, strength)) if duration is None else float(duration)
+    t = _sky_epochs(count, duration, uneven, generator)
+    t_rv = _sky_epochs(velocities, duration, uneven, generator) if velocities else np.empty(0)
+    times = np.unique(np.concatenate((t, t_rv)))
+    states = propagate_reference(position, motion, times, exponent=exponent, strength=strength)
+    incl, turn = math.radians(inclination), math.radians(node)
+    rotate = np.array([[math.cos(turn), -math.sin(turn)], [math.sin(turn), math.cos(turn)]])
+    sky = states.position @ np.diag([1.0, math.cos(incl)]) @ rotate.T + np.asarray(centre, dtype=float)
+    keep = np.searchsorted(times, t)
+    x, y = sky[keep, 0].copy(), sky[keep, 1].copy()
+    covariance = None
+    if separation_error is not None or angle_error is not None:
+        rho, theta = np.hypot(x, y), np.arctan2(y, x)
+        covariance = polar_covariance(rho, theta, np.full(t.size, separation_error or 0.0),
+                                      np.radians(np.full(t.size, angle_error or 0.0)))
+        draws = np.einsum("nij,nj->ni", np.linalg.cholesky(covariance + 1e-300 * np.eye(2)),
+                          generator.standard_normal((t.size, 2)))
+        x, y = x + draws[:, 0], y + draws[:, 1]
+    elif noise > 0:
+        x, y = x + noise * generator.standard_normal(t.size), y + noise * generator.standard_normal(t.size)
+    track = Track(t=t, x=x, y=y, sigma=noise if noise > 0 and covariance is None else None,
+                  length_unit=length_unit, time_unit=time_unit, name=name)
+    radial = None
+    if velocities:
+        depth_rate = math.sin(incl) * states.velocity[np.searchsorted(times, t_rv), 1]
+        scale = velocity_scale(track.length_unit, track.time_unit, velocity_unit)
+        rv = scale * depth_rate / (parallax if is_sky_angle(track.length_unit) else 1.0)
+        rv = rv + velocity_error * generator.standard_normal(t_rv.size)
+        radial = RadialVelocities(t=t_rv, velocity=rv, sigma=max(velocity_error, 1e-12 * float(np.ptp(rv))),
+                                  unit=velocity_unit)
+    truth = {"exponent": float(exponent), "strength": float(strength), "inclination": float(inclination),
+             "node": float(node), "start": position.tolist(), "velocity": motion.tolist(),
+             "centre": [float(c) for c in centre], "parallax": float(parallax), "noise": float(noise)}
+    return Astrometry(track=track, covariance=covariance, velocities=radial,
+                      relative=tuple(centre) == (0.0, 0.0), metadata={"truth": truth})
+

@@ -13,7 +13,7 @@ correlated residuals and, with a robust loss, for the glitches it down-weights.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 from typing import Literal
 
@@ -611,14 +611,19 @@ def residual_correlation_time(model: OrbitModel, residual: FloatArray) -> float:
     residuals give by chance) counts as 1.
     """
     pieces = residual.reshape(-1, 2)
-    start, tau = 0, 1.0
-    for track in model.tracks:
-        own = pieces[start:start + track.n_points]
-        start += track.n_points
-        for column in range(2):
-            estimate = autocorrelation_time(own[:, column])
-            if estimate > 1.0 + 5.0 / math.sqrt(max(track.n_points, 1)):   # beyond its own noise
-                tau = max(tau, estimate)
+    bounds = np.cumsum([0] + [track.n_points for track in model.tracks])
+    return correlation_time([pieces[low:high, column] for low, high in zip(bounds[:-1], bounds[1:])
+                             for column in range(2)])
+
+
+def correlation_time(series: Sequence[FloatArray]) -> float:
+    """The largest integrated autocorrelation time (in samples) of residual series, each in time
+    order; 1 when none departs from independence by more than 5/sqrt(N) (its own noise)."""
+    tau = 1.0
+    for values in series:
+        estimate = autocorrelation_time(np.asarray(values, dtype=float))
+        if estimate > 1.0 + 5.0 / math.sqrt(max(len(values), 1)):   # beyond its own noise
+            tau = max(tau, estimate)
     return tau
 
 
@@ -650,6 +655,15 @@ def _least_squares(
         steps = _steps(model, vector, *scales)
         return np.nan_to_num(-model.jacobian(vector, steps, varying) * weights[:, None])
 
+    return run_least_squares(residual, jacobian, params, loss, max_evaluations)
+
+
+def run_least_squares(
+    residual: Callable[[lmfit.Parameters], FloatArray], jacobian: Callable[[lmfit.Parameters], FloatArray],
+    params: lmfit.Parameters, loss: Loss, max_evaluations: int,
+) -> lmfit.minimizer.MinimizerResult:
+    """lmfit's trust-region least squares of normalised residuals with an analytic-shape Jacobian
+    (the loss's scale is 1: one standard error)."""
     minimizer = lmfit.Minimizer(residual, params, scale_covar=False)
     try:
         return minimizer.least_squares(jac=jacobian, loss=loss, f_scale=1.0, x_scale="jac",
@@ -675,13 +689,20 @@ def _fit_covariance(
     varying = [model.index(name) for name in result.var_names]
     steps = _steps(model, vector, *scales)
     jacobian = model.jacobian(vector, steps, varying) / np.repeat(sigma, 2)[:, None]
+    return covariance_from(jacobian, np.asarray(result.residual), loss, sigma_known)
+
+
+def covariance_from(
+    jacobian: FloatArray, residual: FloatArray, loss: Loss, sigma_known: bool,
+) -> FloatArray | None:
+    """The covariance of `_fit_covariance` from the Jacobian and residuals in units of sigma."""
     if not np.all(np.isfinite(jacobian)):
         return None
     try:
         inverse = np.linalg.inv(jacobian.T @ jacobian)
     except np.linalg.LinAlgError:
         return None
-    residual = np.asarray(result.residual)
+    varying = range(jacobian.shape[1])
     count, dof = residual.size, max(residual.size - len(varying), 1)
     if loss == "linear":
         factor = 1.0 if sigma_known else float(residual @ residual) / dof

@@ -18,6 +18,7 @@ import numpy as np
 from .._json import json_safe
 from .._types import FloatArray, Row, frozen_array
 from ..dynamics.orbit_model import OrbitModel
+from ..dynamics.sky import ProjectedOrbitModel
 from ..units import format_measurement, strength_per_h2_unit, strength_unit
 
 NAN = float("nan")
@@ -494,3 +495,136 @@ class OrbitFit(LawFit):
 
 def _measurement(value: float, stderr: float) -> str:
     return format_measurement(value, stderr if math.isfinite(stderr) else None)
+
+
+@dataclass(frozen=True, kw_only=True)
+class ProjectedFit(LawFit):
+    """A `LawFit` of the projected-orbit estimator: the law of an orbit seen at an angle, and the
+    orbit's orientation.
+
+    The common fields hold the true law in the orbit's plane (k in the sky's length unit, e.g.
+    arcsec**(1-n) yr**-2) and the force centre on the sky. Angles follow the sky's convention:
+    x north, y east, position angles from x towards y (`forcefit.astrometry`).
+
+    Attributes
+    ----------
+    model : ProjectedOrbitModel
+        The model fitted (epochs, canonical frame, radial velocities, branch).
+    values, stderrs : mapping of str to float
+        Every parameter of ``model.names`` where the fit ended and its standard error (0 when
+        held fixed); the varying ones are ``parameter_names``, in the order of ``covariance``.
+    inclination, inclination_stderr : float
+        i in degrees, 0 to 180: below 90 the position angle increases (direct motion).
+    node, node_stderr : float
+        Position angle of the ascending node, degrees: in [0, 180) when ``node_ambiguous``
+        (without radial velocities the node 180 deg on fits as well), else in [0, 360).
+    node_ambiguous : bool
+        True without radial velocities.
+    sense : str
+        ``"direct"`` (position angle increasing) or ``"retrograde"``.
+    branch_chi2 : tuple of float
+        With radial velocities: the chi-square of the node reported and of the node 180 deg on
+        (nan, nan without).
+    parallax, parallax_stderr : float
+        The parallax in the positions' angle unit, from the radial velocities; nan without
+        (or when the positions are lengths).
+    elements, elements_stderr : mapping of str to float
+        The derived numbers and their errors (delta method over ``covariance``): the angles, the
+        scale from canonical to true lengths, and, with the exponent held at -2, the osculating
+        Kepler elements ``semi_major_axis`` (L), ``eccentricity``, ``periastron_argument`` (deg),
+        ``period`` (T) and ``periastron_time`` (T, nearest the epoch).
+    sigma_known : bool
+        Whether the positions came with their errors (else their scale is fitted).
+    noise : float
+        The typical position error (L): as given, or as the residuals show it.
+    loss, evaluations, converged, turns, angular_momentum, correlation_time, white_stderrs
+        As in `OrbitFit` (``angular_momentum`` is the true h, L**2/T).
+    fitted_positions : ndarray, shape (n_points, 2)
+        The fitted orbit on the sky at the epochs (L); read-only.
+    fitted_velocities : ndarray, shape (n_velocities,)
+        The fitted radial velocities (empty without); read-only.
+    """
+
+    model: ProjectedOrbitModel
+    values: Mapping[str, float]
+    stderrs: Mapping[str, float]
+    inclination: float
+    inclination_stderr: float
+    node: float
+    node_stderr: float
+    node_ambiguous: bool
+    sense: str
+    elements: Mapping[str, float]
+    elements_stderr: Mapping[str, float]
+    sigma_known: bool
+    noise: float
+    loss: str
+    evaluations: int
+    converged: bool
+    turns: float
+    angular_momentum: float
+    fitted_positions: FloatArray
+    fitted_velocities: FloatArray
+    branch_chi2: tuple[float, float] = (NAN, NAN)
+    parallax: float = NAN
+    parallax_stderr: float = NAN
+    correlation_time: float = 1.0
+    white_stderrs: Mapping[str, float] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        for name in ("values", "stderrs", "elements", "elements_stderr", "white_stderrs"):
+            object.__setattr__(self, name, MappingProxyType({k: float(v) for k, v in getattr(self, name).items()}))
+        for name in ("inclination", "inclination_stderr", "node", "node_stderr", "parallax", "parallax_stderr",
+                     "noise", "turns", "angular_momentum", "correlation_time"):
+            object.__setattr__(self, name, float(getattr(self, name)))
+        object.__setattr__(self, "branch_chi2", tuple(float(v) for v in self.branch_chi2))
+        object.__setattr__(self, "fitted_positions", frozen_array(self.fitted_positions))
+        object.__setattr__(self, "fitted_velocities", frozen_array(self.fitted_velocities))
+
+    @property
+    def vector(self) -> FloatArray:
+        """The fitted parameter vector, in the order of ``model.names``."""
+        return np.array([self.values[name] for name in self.model.names])
+
+    def _extra_rows(self) -> list[Row]:
+        length, time = self.length_unit, self.time_unit or ""
+        node_note = " (or +180: no radial velocities)" if self.node_ambiguous else ""
+        rows = [Row("inclination i", _measurement(self.inclination, self.inclination_stderr),
+                    f"deg, {self.sense}"),
+                Row("node", _measurement(self.node, self.node_stderr), f"deg{node_note}")]
+        if math.isfinite(self.parallax):
+            rows.append(Row("parallax", _measurement(self.parallax, self.parallax_stderr), length))
+        units = {"semi_major_axis": length, "eccentricity": "", "periastron_argument": "deg",
+                 "period": time, "periastron_time": time}
+        for name, unit in units.items():
+            if math.isfinite(self.elements.get(name, NAN)):
+                rows.append(Row(name.replace("_", " "),
+                                _measurement(self.elements[name], self.elements_stderr.get(name, NAN)), unit))
+        rows.append(Row("noise", format_measurement(self.noise), length, brief=False))
+        if self.correlation_time > 1.0:
+            white = self.white_stderrs.get("exponent", NAN)
+            rows.append(Row("errors widened", f"x{math.sqrt(self.correlation_time):.3g}: the residuals stay "
+                                              f"alike over {self.correlation_time:.3g} samples (n's error "
+                                              f"for independent residuals: {white:.2g})"))
+        return rows
+
+    def _details(self) -> dict[str, Any]:
+        return {"inclination": self.inclination, "inclination_stderr": self.inclination_stderr,
+                "node": self.node, "node_stderr": self.node_stderr, "node_ambiguous": self.node_ambiguous,
+                "sense": self.sense, "parallax": self.parallax, "parallax_stderr": self.parallax_stderr,
+                "branch_chi2": list(self.branch_chi2), "elements": dict(self.elements),
+                "elements_stderr": dict(self.elements_stderr), "evaluations": self.evaluations,
+                "noise": self.noise, "loss": self.loss, "turns": self.turns,
+                "correlation_time": self.correlation_time, "sigma_known": self.sigma_known,
+                "epoch": self.model.epoch, "angular_momentum": self.angular_momentum,
+                "n_velocities": int(self.fitted_velocities.size)}
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-safe form: the common fields, and ``inclination`` and ``node`` (degrees) with their
+        standard errors beside them."""
+        report = super().to_dict()
+        extra = json_safe({"inclination": self.inclination, "inclination_stderr": self.inclination_stderr,
+                           "node": self.node, "node_stderr": self.node_stderr,
+                           "node_ambiguous": self.node_ambiguous, "sense": self.sense})
+        return {**report, **extra}
