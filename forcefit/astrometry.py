@@ -183,7 +183,8 @@ class Astrometry:
         theta = np.radians(np.asarray(position_angle, dtype=float))
         if (separation_error is None) != (angle_error is None):
             raise InputError("give the errors of both the separation and the position angle, or neither.")
-        track = Track(t=t, x=rho * np.cos(theta), y=rho * np.sin(theta), length_unit=length_unit,
+        track = Track(t=np.asarray(t, dtype=float), x=rho * np.cos(theta), y=rho * np.sin(theta),
+                      length_unit=length_unit,
                       time_unit=time_unit, name=name)
         covariance = None
         if separation_error is not None and angle_error is not None:

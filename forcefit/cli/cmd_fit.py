@@ -11,8 +11,10 @@ from ..analysis.deviation import deviation_from
 from ..analysis.duality_check import check_duality
 from ..errors import ForcefitError, InputError
 from ..estimators import ESTIMATORS, LawFit, OrbitFit, fit_orbit, force_profile, registry
+from ..estimators.projected import fit_projected
 from ..inference.comparison import compare_laws
 from ..outputs.report import write_report
+from ..reading.astrometry import load_astrometry
 from ..track import Track
 from ..units import format_measurement
 from ._camera import camera_lines, camera_record
@@ -35,6 +37,7 @@ examples:
   forcefit fit bob.csv --length-unit px --scale "1.6 mm" --flip-y --latitude 52
   forcefit fit path.csv --method shape --profile 8   # time-free, with F(r) in 8 radius bins
   forcefit fit comet.csv --centre 0,0 --json    # the Sun at the origin
+  forcefit fit binary.csv --projected            # rho/theta (or ddec/dra) at epochs: orbit seen on the sky
   forcefit fit swing.mp4 --plane-marks 102,388,530,392,488,95,140,97 --plane-rectangle "0.8x0.6 m"
 """
 
@@ -130,7 +133,32 @@ def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, An
     return passed, report, "\n".join(lines)
 
 
+PROJECTED_OPTIONS = ("fix_exponent", "centre", "robust", "json", "length_unit", "sheet")
+"""The options ``fit --projected`` takes; the others are refused."""
+
+
+def _cmd_fit_projected(args: argparse.Namespace, parser_defaults: dict[str, Any]) -> int:
+    """``fit FILE --projected``: the law and the orientation of an orbit seen on the sky."""
+    given = sorted(name for name, default in parser_defaults.items()
+                   if name not in (*PROJECTED_OPTIONS, "file", "projected", "handler", "command")
+                   and getattr(args, name, default) != default)
+    if given:
+        listed = ", ".join("--" + name.replace("_", "-") for name in given)
+        raise InputError(f"{listed} does not apply to --projected; it takes --fix-exponent, --centre, "
+                         "--robust, --json, --length-unit and --sheet.")
+    sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
+    data = load_astrometry(args.file, length_unit=args.length_unit, sheet=sheet)
+    fit = fit_projected(data, exponent=args.fix_exponent, centre=args.centre,
+                        loss="soft_l1" if args.robust else "linear")
+    reports = Reports(args.json)
+    reports.add({**fit.to_dict(), "epochs": data.metadata.get("epochs")}, fit.to_text())
+    reports.close()
+    return EXIT_OK if fit.passed else EXIT_FAILED_CHECKS
+
+
 def _cmd_fit(args: argparse.Namespace) -> int:
+    if args.projected:
+        return _cmd_fit_projected(args, args.defaults)
     status, reports = EXIT_OK, Reports(args.json)
     tracks = read_tracks(args.file, args)
     if args.joint:
@@ -171,6 +199,9 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
                      help="the nominal exponent to state the deviation from (default: the nearer of "
                           "1 and -2); against -2 the implied apsidal precession is printed too")
     fit.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    fit.add_argument("--projected", action="store_true",
+                     help="positions on the sky (rho/theta or ddec/dra, at epochs): fit the law with "
+                          "the orbit's inclination and node")
     fit.add_argument("--report", metavar="DIR", help="write an HTML report with figures into DIR")
     add_orbit_options(fit)
     fit.add_argument("--compare", type=_exponents, metavar="N1,N2",
@@ -187,3 +218,5 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     timefree.add_argument("--profile", type=int, nargs="?", const=8, default=0, metavar="BINS",
                           help="also print F(r) in BINS radius bins with the local exponent")
     fit.set_defaults(handler=_cmd_fit)
+    defaults = vars(fit.parse_args(["FILE"]))
+    fit.set_defaults(defaults={name: value for name, value in defaults.items() if name != "defaults"})

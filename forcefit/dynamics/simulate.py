@@ -367,7 +367,8 @@ def simulate_projected(
     if not (math.isfinite(strength) and strength > 0 and r0 > 0):
         raise InputError("the strength must be positive and the start away from the centre.")
     if velocity is None:
-        velocity = tuple(0.8 * float(circular_speed(r0, exponent, strength)) * np.array([-position[1], position[0]])
+        speed = 0.8 * float(circular_speed(r0, exponent, strength))
+        velocity = tuple(speed * np.array([-position[1], position[0]])
                          / r0)
     motion = np.asarray(velocity, dtype=np.float64)
     if position[0] * motion[1] - position[1] * motion[0] <= 0:
@@ -396,7 +397,8 @@ def simulate_projected(
         x, y = x + draws[:, 0], y + draws[:, 1]
     elif noise > 0:
         x, y = x + noise * generator.standard_normal(t.size), y + noise * generator.standard_normal(t.size)
-    track = Track(t=t, x=x, y=y, sigma=noise if noise > 0 and covariance is None else None,
+    known = noise > 0 and covariance is None
+    track = Track(t=t, x=x, y=y, sigma=np.full(t.size, noise) if known else None,
                   length_unit=length_unit, time_unit=time_unit, name=name)
     radial = None
     if velocities:
@@ -404,7 +406,8 @@ def simulate_projected(
         scale = velocity_scale(track.length_unit, track.time_unit, velocity_unit)
         rv = scale * depth_rate / (parallax if is_sky_angle(track.length_unit) else 1.0)
         rv = rv + velocity_error * generator.standard_normal(t_rv.size)
-        radial = RadialVelocities(t=t_rv, velocity=rv, sigma=max(velocity_error, 1e-12 * float(np.ptp(rv))),
+        floor = max(velocity_error, 1e-12 * float(np.ptp(rv)))
+        radial = RadialVelocities(t=t_rv, velocity=rv, sigma=np.full(t_rv.size, floor),
                                   unit=velocity_unit)
     truth = {"exponent": float(exponent), "strength": float(strength), "inclination": float(inclination),
              "node": float(node), "start": position.tolist(), "velocity": motion.tolist(),

@@ -220,6 +220,9 @@ class ProjectedOrbitModel:
     fit_parallax: bool = False
     line_of_sight: FloatArray = field(default_factory=lambda: np.array([1.0, 0.0]))
     rtol: float = BATCH_RTOL
+    _times: FloatArray = field(init=False, repr=False)
+    _position_index: np.ndarray = field(init=False, repr=False)
+    _velocity_index: np.ndarray = field(init=False, repr=False)
 
     def __post_init__(self) -> None:
         position_times = np.asarray(self.position_times, dtype=float)
@@ -275,7 +278,7 @@ class ProjectedOrbitModel:
         vectors = np.atleast_2d(vectors)
         first = self.index("vx0")
         batch = propagate_batch(
-            self._times, np.array([self.start_radius, 0.0]), vectors[:, first:first + 2],  # type: ignore[attr-defined]
+            self._times, np.array([self.start_radius, 0.0]), vectors[:, first:first + 2],
             exponent=vectors[:, 0], strength=self.strength(vectors), epoch=self.epoch, rtol=self.rtol)
         return batch.position, batch.velocity, batch.ok
 
@@ -290,13 +293,13 @@ class ProjectedOrbitModel:
         position, velocity, ok = self.canonical(vectors)
         first = self.index(PROJECTION[0])
         projections = vectors[:, first:first + 4].reshape(-1, 2, 2)
-        at = position[:, self._position_index]                          # type: ignore[attr-defined]
+        at = position[:, self._position_index]
         sky = np.einsum("sij,stj->sti", projections, at) + self.centres(vectors)[:, None, :]
         radial = np.empty((vectors.shape[0], 0))
         if self.has_velocities:
             rows = line_of_sight_rows(projections, self.line_of_sight)
             scale = np.linalg.norm(projections, ord=2, axis=(1, 2))
-            moving = velocity[:, self._velocity_index]                  # type: ignore[attr-defined]
+            moving = velocity[:, self._velocity_index]
             radial = self.velocity_factor * scale[:, None] * np.einsum("sj,stj->st", rows, moving)
             if self.fit_parallax:
                 radial = radial / vectors[:, self.index("parallax")][:, None]

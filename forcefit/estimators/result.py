@@ -574,8 +574,10 @@ class ProjectedFit(LawFit):
     def __post_init__(self) -> None:
         super().__post_init__()
         for name in ("values", "stderrs", "elements", "elements_stderr", "white_stderrs"):
-            object.__setattr__(self, name, MappingProxyType({k: float(v) for k, v in getattr(self, name).items()}))
-        for name in ("inclination", "inclination_stderr", "node", "node_stderr", "parallax", "parallax_stderr",
+            frozen = {k: float(v) for k, v in getattr(self, name).items()}
+            object.__setattr__(self, name, MappingProxyType(frozen))
+        for name in ("inclination", "inclination_stderr", "node", "node_stderr", "parallax",
+                     "parallax_stderr",
                      "noise", "turns", "angular_momentum", "correlation_time"):
             object.__setattr__(self, name, float(getattr(self, name)))
         object.__setattr__(self, "branch_chi2", tuple(float(v) for v in self.branch_chi2))
