@@ -54,6 +54,14 @@ UNRESOLVED_ORIENTATION = 20.0
 """Refuse when the inclination's standard error exceeds this many degrees: the positions do not
 fix the orbit's orientation (and the linearised errors of everything else mean little)."""
 
+FACE_ON = 5.0
+"""The orbit counts as seen nearly face-on when its foreshortening (`foreshortening`) is within
+this many standard errors of none: the inclination is then stated as an upper limit and the
+node as undetermined, since i and the node are no linear functions of the data there."""
+
+FACE_ON_CHI2 = 5.991
+"""The 95% point of chi-square with 2 degrees of freedom (common practice), for the limit."""
+
 RESOLVED_EXCURSION = 10.0
 """The orbit's true radial half-range must exceed this many of its standard errors."""
 
@@ -248,6 +256,60 @@ def kepler_elements(position: FloatArray, velocity: FloatArray, strength: float,
     return {"semi_major_axis": axis, "eccentricity": eccentricity,
             "periastron_argument": math.degrees(math.atan2(vector[1], vector[0])) % 360.0,
             "period": period, "periastron_time": epoch - mean * period / (2.0 * math.pi)}
+
+
+def foreshortening(projection: FloatArray) -> FloatArray:
+    """The foreshortening vector of a projection matrix T = s R(node) diag(1, cos i) R(w):
+
+        f = (sin(i)**2 / (1 + cos(i)**2)) (cos 2 node, sin 2 node),
+
+    from M = T T^T as ((M11 - M22), 2 M12) / trace(M): a smooth (rational) function of T, so its
+    errors are linear where those of i and the node are not (near face-on, i and the node are
+    polar coordinates of f about its origin).
+
+    Examples
+    --------
+    >>> from forcefit.dynamics.sky import projection_matrix
+    >>> T = projection_matrix(scale=2.0, inclination=math.radians(60), node=0.0, axis_angle=0.4)
+    >>> np.round(foreshortening(T), 12)          # (3/4) / (5/4) along the node
+    array([0.6, 0. ])
+    """
+    matrix = np.asarray(projection, dtype=float).reshape(2, 2)
+    m = matrix @ matrix.T
+    return np.array([m[0, 0] - m[1, 1], 2.0 * m[0, 1]]) / (m[0, 0] + m[1, 1])
+
+
+def inclination_of(size: float) -> float:
+    """The inclination (deg, 0 to 90) whose foreshortening has this size (clipped to [0, 1])."""
+    size = min(max(size, 0.0), 1.0)
+    return math.degrees(math.acos(math.sqrt((1.0 - size) / (1.0 + size))))
+
+
+def _face_on_limit(model: ProjectedOrbitModel, vector: FloatArray, columns: list[int], steps: FloatArray,
+                   covariance: FloatArray) -> float:
+    """The 95% upper limit (deg) on the angle from face-on when the foreshortening is within FACE_ON
+    standard errors of none; nan when it is resolved.
+
+    |f_true| <= |f| + |f - f_true| and |f - f_true| <= sqrt(lambda_max chi2), chi2 being chi-square
+    with 2 degrees of freedom: the limit covers the truth at 95% or more (conservative)."""
+    first = model.index(PROJECTION[0])
+    centre = foreshortening(vector[first:first + 4])
+    gradient = np.zeros((2, len(columns)))
+    for k, i in enumerate(columns):
+        up, down = vector.copy(), vector.copy()
+        up[i] += steps[i]
+        down[i] -= steps[i]
+        change = foreshortening(up[first:first + 4]) - foreshortening(down[first:first + 4])
+        gradient[:, k] = change / (2 * steps[i])
+    spread = gradient @ covariance @ gradient.T
+    try:
+        significance = float(centre @ np.linalg.solve(spread, centre))
+    except np.linalg.LinAlgError:
+        return math.nan
+    if not (math.isfinite(significance) and significance < FACE_ON**2):
+        return math.nan
+    largest = float(np.linalg.eigvalsh(spread)[-1])
+    return inclination_of(float(np.hypot(*centre)) + math.sqrt(max(largest, 0.0) * FACE_ON_CHI2))
 
 
 def _derived(model: ProjectedOrbitModel, vector: FloatArray, branch: float, radius: float,
@@ -456,7 +518,8 @@ def _parallax_guess(model: ProjectedOrbitModel, vector: FloatArray, observed: Fl
 
 
 def _refuse_unidentified(track: Track, solution: _Solution, model: ProjectedOrbitModel,
-                         elements: Mapping[str, float], errors: Mapping[str, float]) -> None:
+                         elements: Mapping[str, float], errors: Mapping[str, float], *, face_on: bool,
+                         ) -> None:
     """Refuse what the projection leaves undetermined: an orbit seen edge-on (without radial
     velocities), an exponent whose error is too large for its linearised value to mean anything,
     and an orientation the positions do not fix."""
@@ -475,7 +538,7 @@ def _refuse_unidentified(track: Track, solution: _Solution, model: ProjectedOrbi
             f"{n_error:.2g}): the projection's unknown orientation takes up what these positions "
             "could say about the law. Observe a longer arc (through pericentre) or more epochs, or "
             "hold the exponent (--fix-exponent) to fit the orbit's elements.")
-    if not math.isfinite(spread) or spread > UNRESOLVED_ORIENTATION:
+    if not face_on and (not math.isfinite(spread) or spread > UNRESOLVED_ORIENTATION):
         raise NotIdentifiable(
             f"{track.label}: the orbit's orientation is not determined (i = {inclination:.3g} ± "
             f"{spread:.2g} deg): these positions fit about as well at any inclination. A harmonic "
@@ -570,7 +633,12 @@ def _result(data: Astrometry, problem: _Problem, solution: _Solution, branch: fl
     periods = {**ANGLES, "node": 360.0 if model.has_velocities else 180.0}
     elements = derived(vector)
     errors = _propagate(derived, vector, columns, steps, solution.covariance, periods)
-    _refuse_unidentified(track, solution, model, elements, errors)
+    face_on = _face_on_limit(model, vector, columns, steps, solution.covariance)
+    _refuse_unidentified(track, solution, model, elements, errors, face_on=math.isfinite(face_on))
+    if math.isfinite(face_on):
+        for name in ("inclination", "node", "periastron_argument"):
+            if name in elements:
+                elements[name], errors[name] = math.nan, math.nan
     residual = problem.residual(vector)
     typical = data.typical_error()
     noise = float(np.median(typical)) if typical is not None else _noise_level(problem)
@@ -580,6 +648,12 @@ def _result(data: Astrometry, problem: _Problem, solution: _Solution, branch: fl
     turns = _turns(model, vector)
     diagnostics = _checks(solution, residual, model, known, loss, noise, turns, track.length_unit,
                           branch_chi2)
+    direct = state.orientation.cos_inclination >= 0
+    if math.isfinite(face_on):
+        diagnostics["orientation"] = Diagnostic(None, (
+            f"seen nearly face-on: the orbit's plane is tilted less than {face_on:.3g} deg from the sky "
+            "(95%), too little to fix the inclination or the node (both left out); the law is not "
+            "affected."))
     n, n_error = solution.value("exponent")
     centre = model.centres(vector)[0]
     centre_error = ((solution.stderrs["centre_x"], solution.stderrs["centre_y"]) if model.centre is None
@@ -599,7 +673,7 @@ def _result(data: Astrometry, problem: _Problem, solution: _Solution, branch: fl
         track_name=track.name, model=model, values=solution.values, stderrs=solution.stderrs,
         inclination=elements["inclination"], inclination_stderr=errors["inclination"],
         node=elements["node"], node_stderr=errors["node"], node_ambiguous=not model.has_velocities,
-        sense="direct" if elements["inclination"] < 90.0 else "retrograde",
+        sense="direct" if direct else "retrograde", inclination_limit=face_on,
         elements=elements, elements_stderr=errors, sigma_known=known, noise=noise, loss=loss,
         evaluations=solution.evaluations, converged=solution.success, turns=turns,
         angular_momentum=elements["angular_momentum"], fitted_positions=prediction.positions[0],

@@ -514,10 +514,15 @@ class ProjectedFit(LawFit):
         Every parameter of ``model.names`` where the fit ended and its standard error (0 when
         held fixed); the varying ones are ``parameter_names``, in the order of ``covariance``.
     inclination, inclination_stderr : float
-        i in degrees, 0 to 180: below 90 the position angle increases (direct motion).
+        i in degrees, 0 to 180: below 90 the position angle increases (direct motion); nan when
+        the orbit is seen nearly face-on (see ``inclination_limit``).
+    inclination_limit : float
+        When seen nearly face-on: the 95% upper limit (deg) of the plane's tilt from the sky, i
+        below it (direct) or 180 minus i below it (retrograde); nan otherwise.
     node, node_stderr : float
         Position angle of the ascending node, degrees: in [0, 180) when ``node_ambiguous``
-        (without radial velocities the node 180 deg on fits as well), else in [0, 360).
+        (without radial velocities the node 180 deg on fits as well), else in [0, 360); nan when
+        seen nearly face-on.
     node_ambiguous : bool
         True without radial velocities.
     sense : str
@@ -566,6 +571,7 @@ class ProjectedFit(LawFit):
     fitted_positions: FloatArray
     fitted_velocities: FloatArray
     branch_chi2: tuple[float, float] = (NAN, NAN)
+    inclination_limit: float = NAN
     parallax: float = NAN
     parallax_stderr: float = NAN
     correlation_time: float = 1.0
@@ -576,7 +582,8 @@ class ProjectedFit(LawFit):
         for name in ("values", "stderrs", "elements", "elements_stderr", "white_stderrs"):
             frozen = {k: float(v) for k, v in getattr(self, name).items()}
             object.__setattr__(self, name, MappingProxyType(frozen))
-        for name in ("inclination", "inclination_stderr", "node", "node_stderr", "parallax",
+        for name in ("inclination", "inclination_stderr", "inclination_limit", "node", "node_stderr",
+                     "parallax",
                      "parallax_stderr",
                      "noise", "turns", "angular_momentum", "correlation_time"):
             object.__setattr__(self, name, float(getattr(self, name)))
@@ -592,9 +599,15 @@ class ProjectedFit(LawFit):
     def _extra_rows(self) -> list[Row]:
         length, time = self.length_unit, self.time_unit or ""
         node_note = " (or +180: no radial velocities)" if self.node_ambiguous else ""
-        rows = [Row("inclination i", _measurement(self.inclination, self.inclination_stderr),
-                    f"deg, {self.sense}"),
-                Row("node", _measurement(self.node, self.node_stderr), f"deg{node_note}")]
+        if math.isfinite(self.inclination_limit):
+            bound = (f"< {self.inclination_limit:.3g}" if self.sense == "direct"
+                     else f"> {180.0 - self.inclination_limit:.3g}")
+            rows = [Row("inclination i", bound, f"deg (95%), {self.sense}; seen nearly face-on"),
+                    Row("node", "undetermined", "seen nearly face-on")]
+        else:
+            rows = [Row("inclination i", _measurement(self.inclination, self.inclination_stderr),
+                        f"deg, {self.sense}"),
+                    Row("node", _measurement(self.node, self.node_stderr), f"deg{node_note}")]
         if math.isfinite(self.parallax):
             rows.append(Row("parallax", _measurement(self.parallax, self.parallax_stderr), length))
         units = {"semi_major_axis": length, "eccentricity": "", "periastron_argument": "deg",
@@ -613,7 +626,9 @@ class ProjectedFit(LawFit):
 
     def _details(self) -> dict[str, Any]:
         return {"inclination": self.inclination, "inclination_stderr": self.inclination_stderr,
-                "node": self.node, "node_stderr": self.node_stderr, "node_ambiguous": self.node_ambiguous,
+                "inclination_limit": self.inclination_limit, "node": self.node,
+                "node_stderr": self.node_stderr,
+                "node_ambiguous": self.node_ambiguous,
                 "sense": self.sense, "parallax": self.parallax, "parallax_stderr": self.parallax_stderr,
                 "branch_chi2": list(self.branch_chi2), "elements": dict(self.elements),
                 "elements_stderr": dict(self.elements_stderr), "evaluations": self.evaluations,
@@ -627,6 +642,7 @@ class ProjectedFit(LawFit):
         standard errors beside them."""
         report = super().to_dict()
         extra = json_safe({"inclination": self.inclination, "inclination_stderr": self.inclination_stderr,
-                           "node": self.node, "node_stderr": self.node_stderr,
-                           "node_ambiguous": self.node_ambiguous, "sense": self.sense})
+                           "inclination_limit": self.inclination_limit, "node": self.node,
+                           "node_stderr": self.node_stderr, "node_ambiguous": self.node_ambiguous,
+                           "sense": self.sense})
         return {**report, **extra}
