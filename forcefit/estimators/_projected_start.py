@@ -127,6 +127,47 @@ def _planar_start(problem: ProjectedStart, plane: Track, index: int) -> FloatArr
     return vector
 
 
+def kepler_start(plane: Track, index: int) -> FloatArray | None:
+    """The planar start's vector (n = -2, ln k, centre, state) of a Kepler ellipse with a focus
+    at the origin through a deprojected track, timed by Kepler's equation; None when the points
+    are no such ellipse.
+
+    The focal conic r = p - e . X is linear in (p, e) (common practice); each point's eccentric
+    and mean anomalies follow (Green 1985, Spherical Astronomy, ch. 6; from memory), the mean
+    anomaly grows between epochs by less than a turn (epochs closer than a period), and its
+    rate gives k = (mean motion)**2 a**3. Works on epochs too sparse for a local velocity.
+    """
+    x, y, t = np.asarray(plane.x), np.asarray(plane.y), np.asarray(plane.t)
+    r = np.hypot(x, y)
+    design = np.column_stack((np.ones_like(r), -x, -y))
+    (p, ex, ey), *_ = np.linalg.lstsq(design, r, rcond=None)
+    e = math.hypot(ex, ey)
+    if not (p > 0 and 1e-6 < e < 0.99):
+        return None
+    sense = 1.0 if np.median(x[:-1] * y[1:] - y[:-1] * x[1:]) >= 0 else -1.0
+    peri = np.array([ex, ey]) / e
+    quarter = sense * np.array([-peri[1], peri[0]])
+    true = np.arctan2(x * quarter[0] + y * quarter[1], x * peri[0] + y * peri[1])
+    eccentric = 2.0 * np.arctan(math.sqrt((1.0 - e) / (1.0 + e)) * np.tan(true / 2.0))
+    mean = eccentric - e * np.sin(eccentric)
+    grown = np.concatenate(([0.0], np.cumsum(np.diff(mean) % (2.0 * math.pi))))
+    motion, offset = np.polyfit(t - t[index], grown, 1)
+    if not motion > 0:
+        return None
+    axis = p / (1.0 - e * e)
+    strength = motion**2 * axis**3
+    anomaly = float(offset + mean[0])                                 # mean anomaly at the epoch
+    e_anomaly = anomaly
+    for _ in range(50):                                               # Newton on Kepler's equation
+        e_anomaly -= (e_anomaly - e * math.sin(e_anomaly) - anomaly) / (1.0 - e * math.cos(e_anomaly))
+    nu = 2.0 * math.atan2(math.sqrt(1.0 + e) * math.sin(e_anomaly / 2),
+                          math.sqrt(1.0 - e) * math.cos(e_anomaly / 2))
+    radius = axis * (1.0 - e * math.cos(e_anomaly))
+    position = radius * (math.cos(nu) * peri + math.sin(nu) * quarter)
+    velocity = math.sqrt(strength / p) * (-math.sin(nu) * peri + (e + math.cos(nu)) * quarter)
+    return np.array([-2.0, math.log(strength), 0.0, 0.0, *position, *velocity])
+
+
 def _as_projected(problem: ProjectedStart, deprojection: FloatArray, planar: FloatArray) -> FloatArray:
     """The projected model's vector for a planar start found on the deprojected track."""
     model = problem.model
@@ -169,6 +210,13 @@ def projected_starts(problem: ProjectedStart, index: int) -> Iterator[FloatArray
         The epoch's sample.
     """
     model = replace(problem.model, rtol=START_RTOL)
+    focal = focal_deprojection(*(problem.track.positions - np.asarray(problem.centre)).T)
+    if focal is not None and problem.exponent in (None, -2.0):
+        planar = kepler_start(_deprojected(problem, focal), index)
+        if planar is not None:
+            vector = _as_projected(problem, focal, planar)
+            if math.isfinite(sky_misfit(model, vector, problem.track, problem.sigma)):
+                yield vector
     for deprojection in trial_deprojections(problem.track, problem.centre):
         planar = _planar_start(problem, _deprojected(problem, deprojection), index)
         if planar is None:
