@@ -26,7 +26,7 @@ if TYPE_CHECKING:
     )
     from .orbit_model import OrbitModel
     from .propagate import BatchStates, Drag, States, propagate_batch, propagate_reference
-    from .simulate import simulate_orbit, simulate_pendulum, spherical_pendulum_states
+    from .simulate import simulate_orbit, simulate_pendulum, simulate_projected, spherical_pendulum_states
 
 __getattr__, __dir__ = lazy_exports(__name__, {
     "dual_energy": ".duality",
@@ -56,6 +56,7 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "propagate_reference": ".propagate",
     "simulate_orbit": ".simulate",
     "simulate_pendulum": ".simulate",
+    "simulate_projected": ".simulate",
     "spherical_pendulum_states": ".simulate",
 })
 
@@ -84,6 +85,7 @@ __all__ = [
     "propagate_reference",
     "radial_force",
     "simulate_orbit",
+    "simulate_projected",
     "simulate_pendulum",
     "specific_energy",
     "specific_energy_at",

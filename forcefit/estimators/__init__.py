@@ -12,6 +12,7 @@ if TYPE_CHECKING:
     from .curvature import fit_curvature
     from .orbit import fit_orbit
     from .profile import ForceProfile, force_profile
+    from .projected import fit_projected
     from .registry import ESTIMATORS, Estimator, choose_method, fit
     from .result import (
         AccelerationFit,
@@ -20,6 +21,7 @@ if TYPE_CHECKING:
         Diagnostic,
         LawFit,
         OrbitFit,
+        ProjectedFit,
         ShapeFit,
     )
     from .shape import fit_shape
@@ -30,6 +32,7 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "fit_orbit": ".orbit",
     "ForceProfile": ".profile",
     "force_profile": ".profile",
+    "fit_projected": ".projected",
     "ESTIMATORS": ".registry",
     "Estimator": ".registry",
     "choose_method": ".registry",
@@ -40,6 +43,7 @@ __getattr__, __dir__ = lazy_exports(__name__, {
     "Diagnostic": ".result",
     "LawFit": ".result",
     "OrbitFit": ".result",
+    "ProjectedFit": ".result",
     "ShapeFit": ".result",
     "fit_shape": ".shape",
 })
@@ -54,12 +58,14 @@ __all__ = [
     "ForceProfile",
     "LawFit",
     "OrbitFit",
+    "ProjectedFit",
     "ShapeFit",
     "choose_method",
     "fit",
     "fit_acceleration",
     "fit_curvature",
     "fit_orbit",
+    "fit_projected",
     "fit_shape",
     "force_profile",
 ]

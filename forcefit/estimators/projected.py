@@ -432,7 +432,13 @@ def fit_projected(
             f"needs at least {MIN_SAMPLES} to fix the law, the orientation and the state with room "
             "to spare. Add epochs.")
     noise = difference_noise(track)
-    _require_bend(track, noise)
+    try:
+        _require_bend(track, noise)
+    except NotIdentifiable:
+        raise NotIdentifiable(
+            f"{track.label}: the positions lie along a line on the sky within their noise: an orbit "
+            "seen edge-on (its depth unseen), or an arc too short to bend. Neither fixes the "
+            "orientation or the law; observe a longer arc, or add radial velocities.") from None
     typical = data.typical_error()
     size = float(max(np.ptp(track.x), np.ptp(track.y)))
     sigma = typical if typical is not None else np.full(track.n_points, max(noise, 1e-9 * size))
