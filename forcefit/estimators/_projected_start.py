@@ -29,7 +29,7 @@ from ..dynamics.orbit_model import OrbitModel
 from ..dynamics.sky import PROJECTION, ProjectedOrbitModel
 from ..errors import ForcefitError
 from ..track import Track
-from ._start import START_RTOL, StartProblem, orbit_start
+from ._start import START_RTOL, StartProblem, conic_coefficients, orbit_start
 
 TRIAL_TILTS = (0.8, 0.5)
 """cos i of the grid's trial orientations (besides face-on and the focal deprojection)."""
@@ -52,13 +52,10 @@ def focal_deprojection(x: FloatArray, y: FloatArray) -> FloatArray | None:
     scale = float(max(np.std(x), np.std(y), np.max(np.hypot(x, y))))
     if not scale > 0:
         return None
-    u, v = x / scale, y / scale
-    design = np.column_stack((u * u, u * v, v * v, u, v, np.ones_like(u)))
-    try:
-        _, _, rows = np.linalg.svd(design, full_matrices=False)
-    except np.linalg.LinAlgError:
+    coefficients = conic_coefficients(x / scale, y / scale)
+    if coefficients is None:
         return None
-    a, b, c, d, e, f = rows[-1]
+    a, b, c, d, e, f = coefficients
     if abs(f) < 1e-9:
         return None
     quadratic = np.array([[a, b / 2], [b / 2, c]]) / f

@@ -61,6 +61,17 @@ class _Conic:
     foci: tuple[tuple[float, float], ...]
 
 
+def conic_coefficients(u: FloatArray, v: FloatArray) -> FloatArray | None:
+    """Unit-norm coefficients (a, b, c, d, e, f) of the conic a u² + b uv + c v² + d u + e v + f
+    = 0 nearest the points (algebraic fit: the smallest singular vector); None when it fails."""
+    design = np.column_stack((u * u, u * v, v * v, u, v, np.ones_like(u)))
+    try:
+        _, _, rows = np.linalg.svd(design, full_matrices=False)
+    except np.linalg.LinAlgError:
+        return None
+    return np.asarray(rows[-1])
+
+
 def _conic(x: FloatArray, y: FloatArray) -> _Conic | None:
     """The conic a x² + b xy + c y² + d x + e y + f = 0 nearest the points (algebraic fit,
     unit-norm coefficients, on centred and scaled coordinates); None when degenerate."""
@@ -68,13 +79,10 @@ def _conic(x: FloatArray, y: FloatArray) -> _Conic | None:
     scale = float(max(np.std(x), np.std(y)))
     if not scale > 0:
         return None
-    u, v = (x - mx) / scale, (y - my) / scale
-    design = np.column_stack((u * u, u * v, v * v, u, v, np.ones_like(u)))
-    try:
-        _, _, rows = np.linalg.svd(design, full_matrices=False)
-    except np.linalg.LinAlgError:
+    coefficients = conic_coefficients((x - mx) / scale, (y - my) / scale)
+    if coefficients is None:
         return None
-    a, b, c, d, e, f = rows[-1]
+    a, b, c, d, e, f = coefficients
     quadratic = np.array([[a, b / 2], [b / 2, c]])
     if abs(np.linalg.det(quadratic)) < 1e-9 * max(abs(a), abs(c), 1e-300) ** 2:
         return None                                   # a parabola or a pair of lines

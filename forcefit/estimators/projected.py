@@ -32,6 +32,7 @@ from ._start import centre_candidates
 from .orbit import (
     MIN_SAMPLES,
     Loss,
+    _epoch,
     _require_bend,
     _residual_checks,
     _robust_spread,
@@ -358,14 +359,6 @@ def _describes(solution: _Solution, problem: _Problem, known: bool, noise: float
     return _noise_level(problem) < 1.5 * noise
 
 
-def _epoch_index(t: FloatArray, epoch: Literal["middle"] | float) -> tuple[float, int]:
-    if epoch == "middle":
-        index = t.size // 2
-        return float(t[index]), index
-    index = int(np.argmin(np.abs(t - float(epoch))))
-    return float(epoch), index
-
-
 def fit_projected(
     data: Track | Astrometry,
     *,
@@ -445,7 +438,7 @@ def fit_projected(
     held = centre if centre is not None else ((0.0, 0.0) if data.relative else None)
     guess = held if held is not None else centre_candidates(track, noise)[0]
     t = np.asarray(track.t)
-    epoch_time, index = _epoch_index(t, epoch)
+    epoch_time, index = _epoch(track, epoch)
     offsets = np.hypot(track.x - guess[0], track.y - guess[1])
     with np.errstate(divide="ignore"):
         radius = float(np.exp(np.mean(np.log(offsets))))
