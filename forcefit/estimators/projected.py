@@ -348,6 +348,12 @@ def _propagate(function: Callable[[FloatArray], dict[str, float]], vector: Float
             for name, g in gradient.items()}
 
 
+def _misfit(solution: _Solution, problem: _Problem, known: bool) -> float:
+    """What ranks the fits from several starts: the chi-square with known errors; without, the
+    position noise each fit needs (its chi-square is scaled to the degrees of freedom)."""
+    return solution.chi2 if known else _noise_level(problem)
+
+
 def _describes(solution: _Solution, problem: _Problem, known: bool, noise: float) -> bool:
     """Whether a fit describes the positions: with known errors, a reduced chi-square within the
     chi-square check's bounds; without, residuals no larger than the noise the samples'
@@ -458,7 +464,7 @@ def fit_projected(
     best: tuple[_Solution, _Problem] | None = None
     for vector in starts:
         fitted = _optimise(problem, vector, exponent, known, loss, max_evaluations)
-        if best is None or fitted[0].chi2 < best[0].chi2:
+        if best is None or _misfit(*fitted, known) < _misfit(*best, known):
             best = fitted
         if _describes(*best, known, noise):
             break
