@@ -241,3 +241,15 @@ def test_a_velocity_that_turns_the_wrong_way_is_refused():
     speed = float(circular_speed(1.0, -2.0, 1.0))
     with pytest.raises(InputError, match="inclination"):
         simulate_projected(exponent=-2.0, velocity=(0.0, -speed))
+
+
+def test_radial_velocities_resolve_the_node_and_give_the_parallax():
+    # Velocities in km/s of an orbit in arcsec at parallax 0.1 arcsec: one au per Julian year is
+    # 4.74047 km/s (IAU 2012 au, common practice); the node 250 deg is not 70.
+    data = simulate_projected(exponent=-2.0, inclination=60.0, node=250.0, noise=3e-3, count=50,
+                              velocities=15, velocity_error=0.05, parallax=0.1, rng=2)
+    fit = fit_projected(data)
+    assert fit.passed and not fit.node_ambiguous
+    assert abs(fit.node - 250.0) < 4 * fit.node_stderr
+    assert abs(fit.parallax - 0.1) < 4 * fit.parallax_stderr
+    assert fit.branch_chi2[1] - fit.branch_chi2[0] > 100

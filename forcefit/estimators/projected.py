@@ -582,8 +582,9 @@ def _turns(model: ProjectedOrbitModel, vector: FloatArray) -> float:
 
 def _checks(solution: _Solution, residual: FloatArray, model: ProjectedOrbitModel, known: bool, loss: Loss,
             noise: float, turns: float, length_unit: str, branch_chi2: tuple[float, float],
-            ) -> dict[str, Diagnostic]:
-    """Convergence, chi-square (known errors), the residuals' runs, correlation and outliers,
+            outward: FloatArray) -> dict[str, Diagnostic]:
+    """Convergence, chi-square (known errors), the residuals' runs, correlation and outliers
+    (of their part along ``outward``, the unit vectors from the centre to the fitted positions),
     the node's ambiguity, the noise and the coverage."""
     diagnostics = {"convergence": Diagnostic(
         solution.success, f"the least-squares fit {'settled' if solution.success else 'had not settled'} "
@@ -593,9 +594,8 @@ def _checks(solution: _Solution, residual: FloatArray, model: ProjectedOrbitMode
         diagnostics["chi-square"] = chi_square_diagnostic(float(residual @ residual) / dof, dof)
     count = model.position_times.size
     whitened = residual[:2 * count].reshape(count, 2)
-    offsets = np.ones(count)                                          # the sky-radial part, in sigma
-    signed = np.hypot(*whitened.T) * np.sign(whitened[:, 0] + 1e-300)
-    diagnostics.update(_residual_checks(signed, offsets, loss,
+    radial = np.sum(whitened * outward, axis=1)                       # in units of sigma
+    diagnostics.update(_residual_checks(radial, np.ones(count), loss,
                                         solution.correlation_time))
     if model.has_velocities:
         gap = branch_chi2[1] - branch_chi2[0]
@@ -651,8 +651,10 @@ def _result(data: Astrometry, problem: _Problem, solution: _Solution, branch: fl
         _require_resolved_excursion(track, model, vector, noise)
     prediction = model.predict(vector[None, :])
     turns = _turns(model, vector)
+    offset = prediction.positions[0] - model.centres(vector)[0]
+    outward = offset / np.maximum(np.hypot(offset[:, 0], offset[:, 1]), 1e-300)[:, None]
     diagnostics = _checks(solution, residual, model, known, loss, noise, turns, track.length_unit,
-                          branch_chi2)
+                          branch_chi2, outward)
     direct = state.orientation.cos_inclination >= 0
     if math.isfinite(face_on):
         diagnostics["orientation"] = Diagnostic(None, (
