@@ -437,7 +437,8 @@ def fit_projected(
         raise NotIdentifiable(
             f"{track.label}: the positions lie along a line on the sky within their noise: an orbit "
             "seen edge-on (its depth unseen), or an arc too short to bend. Neither fixes the "
-            "orientation or the law; observe a longer arc, or add radial velocities.") from None
+            "orientation or the law; observe a longer arc, or add radial velocities "
+            "(`Astrometry.velocities`).") from None
     typical = data.typical_error()
     size = float(max(np.ptp(track.x), np.ptp(track.y)))
     sigma = typical if typical is not None else np.full(track.n_points, max(noise, 1e-9 * size))
@@ -535,7 +536,7 @@ def _refuse_unidentified(track: Track, solution: _Solution, model: ProjectedOrbi
         raise NotIdentifiable(
             f"{track.label}: the orbit is seen edge-on (i = {inclination:.1f} ± {spread:.1f} deg): its "
             "path on the sky is nearly a line, which leaves the orbit's depth, and with it the "
-            "exponent, undetermined. Radial velocities would see the depth (a velocity column).")
+            "exponent, undetermined. Radial velocities would see the depth (`Astrometry.velocities`).")
     n_error = solution.stderrs.get("exponent", 0.0)
     if not math.isfinite(n_error) or n_error > UNRESOLVED_EXPONENT:
         raise NotIdentifiable(
@@ -548,8 +549,8 @@ def _refuse_unidentified(track: Track, solution: _Solution, model: ProjectedOrbi
             f"{track.label}: the orbit's orientation is not determined (i = {inclination:.3g} ± "
             f"{spread:.2g} deg): these positions fit about as well at any inclination. A harmonic "
             "orbit (n = 1) or a circular one looks alike from every angle, and a short arc shows "
-            "too little of the orbit; fit the law as a planar orbit (--method orbit), or observe "
-            "more of it.")
+            "too little of the orbit; observe more of it (through pericentre), or add radial "
+            "velocities (`Astrometry.velocities`).")
 
 
 def _require_resolved_excursion(track: Track, model: ProjectedOrbitModel, vector: FloatArray,
