@@ -403,11 +403,12 @@ def fit_projected(
     Raises
     ------
     NotIdentifiable
-        Without epochs; for a path that does not bend; when the orbit is seen edge-on without
-        radial velocities, is too round, or the data leave the exponent's error above
-        UNRESOLVED_EXPONENT.
-    FitError
-        When no trial orientation leads to an orbit that follows the data.
+        Without epochs; for positions along a line on the sky (edge-on, or too short an arc);
+        when the orbit is seen edge-on without radial velocities, is too round, or the data
+        leave the exponent's error above UNRESOLVED_EXPONENT or the inclination's above
+        UNRESOLVED_ORIENTATION; when no trial orientation leads to an orbit.
+    GeometryError
+        For fewer than MIN_SAMPLES positions.
 
     Examples
     --------
@@ -418,7 +419,6 @@ def fit_projected(
     True
     >>> bool(abs(fit.inclination - 60) < 4 * fit.inclination_stderr)
     True
-    (True, True)
     """
     if isinstance(data, Track) and not data.has_times:
         raise NotIdentifiable(f"{data.label}: the projected-orbit estimator needs timestamps; fit a "
