@@ -131,8 +131,9 @@ def kepler_start(plane: Track, index: int) -> FloatArray | None:
 
     The focal conic r = p - e . X is linear in (p, e) (common practice); each point's eccentric
     and mean anomalies follow (Green 1985, Spherical Astronomy, ch. 6; from memory), the mean
-    anomaly grows between epochs by less than a turn (epochs closer than a period), and its
-    rate gives k = (mean motion)**2 a**3. Works on epochs too sparse for a local velocity.
+    anomaly grows between epochs by the whole turns its median rate implies plus the change
+    seen, and its rate gives k = (mean motion)**2 a**3. Works on epochs too sparse for a local
+    velocity.
     """
     x, y, t = np.asarray(plane.x), np.asarray(plane.y), np.asarray(plane.t)
     r = np.hypot(x, y)
@@ -147,7 +148,10 @@ def kepler_start(plane: Track, index: int) -> FloatArray | None:
     true = np.arctan2(x * quarter[0] + y * quarter[1], x * peri[0] + y * peri[1])
     eccentric = 2.0 * np.arctan(math.sqrt((1.0 - e) / (1.0 + e)) * np.tan(true / 2.0))
     mean = eccentric - e * np.sin(eccentric)
-    grown = np.concatenate(([0.0], np.cumsum(np.diff(mean) % (2.0 * math.pi))))
+    gaps, step = np.diff(t), (np.diff(mean) + math.pi) % (2.0 * math.pi) - math.pi   # in (-pi, pi]
+    rate = float(np.median((step % (2.0 * math.pi)) / np.maximum(gaps, 1e-300)))        # most gaps
+    turns = np.round((rate * gaps - step) / (2.0 * math.pi))          # whole turns the rate implies
+    grown = np.concatenate(([0.0], np.cumsum(step + 2.0 * math.pi * turns)))
     motion, offset = np.polyfit(t - t[index], grown, 1)
     if not motion > 0:
         return None
