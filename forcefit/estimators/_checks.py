@@ -12,6 +12,7 @@ from .._types import FloatArray
 from ..errors import GeometryError, NotIdentifiable
 from ..geometry.curves import is_straight
 from ..geometry.path import PathGeometry
+from ..track import Track
 from .result import Diagnostic
 
 
@@ -53,6 +54,49 @@ def require_monotonic(path: PathGeometry) -> None:
             f"({path.centre[0]:.6g}, {path.centre[1]:.6g}) near sample {index}: the polar angle "
             "must turn one way along a central-force orbit. Check the centre, or the data."
         )
+
+
+def _turns_steadily(track: Track) -> bool:
+    """True when the chords between samples turn one way (by more than a quarter turn in
+    all): the path bends, however sparse its samples. Noise turns them to and fro."""
+    direction = np.unwrap(np.arctan2(np.diff(track.y), np.diff(track.x)))
+    turning = np.diff(direction)
+    net = abs(float(np.sum(turning)))
+    return net > math.pi / 2 and net > 0.5 * float(np.sum(np.abs(turning)))
+
+
+def require_bend(track: Track, noise: float) -> None:
+    """A path that stays within the noise of a straight line shows no force. (Not asked of a
+    path whose chords turn steadily one way: there the differences that measure the noise
+    may measure the path's own turns, when its samples are sparse.)"""
+    if _turns_steadily(track):
+        return
+    if is_straight(track.x, track.y, np.array([noise])):
+        raise NotIdentifiable(
+            f"{track.label}: the path does not bend significantly; a straight path shows no "
+            "force, so no exponent can be read from it. Check that the body moved under the force "
+            "(and not only the camera)."
+        )
+
+
+def require_one_sense(track: Track, centre: tuple[float, float], sigma: FloatArray,
+                      kept: np.ndarray | None = None) -> None:
+    """The samples (those ``kept``, outliers aside) must turn one way about the centre, as on
+    every central orbit."""
+    kept = np.arange(track.n_points) if kept is None else kept
+    if kept.size < 3:
+        return
+    offset = track.positions[kept] - np.asarray(centre)
+    radius = np.hypot(offset[:, 0], offset[:, 1])
+    step = np.diff(np.unwrap(np.arctan2(offset[:, 1], offset[:, 0])))
+    sense = np.sign(np.sum(step))
+    back = sense * step < -3.0 * math.sqrt(2.0) * sigma[kept][1:] / np.maximum(radius[1:], 1e-300)
+    if back.mean() > 0.01:
+        index = int(kept[int(np.argmax(back)) + 1])
+        raise GeometryError(
+            f"{track.label}: the path winds back about the centre ({centre[0]:.6g}, "
+            f"{centre[1]:.6g}) near sample {index}: the polar angle must turn one way along "
+            "a central-force orbit. Check the centre, or the data.")
 
 
 def angular_momentum(path: PathGeometry) -> tuple[float, float, float]:

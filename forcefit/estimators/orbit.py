@@ -25,10 +25,9 @@ from .._types import FloatArray
 from ..dynamics.forces import ExtraForces
 from ..dynamics.orbit_model import OrbitModel, observed
 from ..errors import FitError, GeometryError, InputError, NotIdentifiable
-from ..geometry.curves import is_straight
 from ..geometry.noise import difference_noise
 from ..track import Track
-from ._checks import chi_square_diagnostic, runs_diagnostic
+from ._checks import chi_square_diagnostic, require_bend, require_one_sense, runs_diagnostic
 from ._start import StartProblem, orbit_start
 from .result import Diagnostic, OrbitFit
 
@@ -175,29 +174,6 @@ def _centres(model: OrbitModel, vector: FloatArray) -> list[tuple[float, float]]
             for j in range(len(model.tracks))]
 
 
-def _turns_steadily(track: Track) -> bool:
-    """True when the chords between samples turn one way (by more than a quarter turn in
-    all): the path bends, however sparse its samples. Noise turns them to and fro."""
-    direction = np.unwrap(np.arctan2(np.diff(track.y), np.diff(track.x)))
-    turning = np.diff(direction)
-    net = abs(float(np.sum(turning)))
-    return net > math.pi / 2 and net > 0.5 * float(np.sum(np.abs(turning)))
-
-
-def _require_bend(track: Track, noise: float) -> None:
-    """A path that stays within the noise of a straight line shows no force. (Not asked of a
-    path whose chords turn steadily one way: there the differences that measure the noise
-    may measure the path's own turns, when its samples are sparse.)"""
-    if _turns_steadily(track):
-        return
-    if is_straight(track.x, track.y, np.array([noise])):
-        raise NotIdentifiable(
-            f"{track.label}: the path does not bend significantly; a straight path shows no "
-            "force, so no exponent can be read from it. Check that the body moved under the force "
-            "(and not only the camera)."
-        )
-
-
 def _sigma(track: Track, noise: float) -> FloatArray:
     """Each sample's sigma (L): as given, or the noise level the differences show."""
     if track.sigma is not None:
@@ -287,14 +263,14 @@ def fit_orbit(
                 "Record a longer stretch or at a higher frame rate.")
     noise = [difference_noise(track) for track in tracks]
     for track, level in zip(tracks, noise):
-        _require_bend(track, level)
+        require_bend(track, level)
     epochs, indices = zip(*(_epoch(track, epoch) for track in tracks))
     rate = 0.0 if rotation_rate is None or rotation_rate == "fit" else float(rotation_rate)
     sigma_known = all(track.sigma is not None for track in tracks)
     sigma = np.concatenate([_sigma(track, level) for track, level in zip(tracks, noise)])
     if centre is not None:
         for track, level in zip(tracks, noise):
-            _require_one_sense(track, centre, _sigma(track, level))
+            require_one_sense(track, centre, _sigma(track, level))
     first_guess = [centre if centre is not None else (float(np.mean(t.x)), float(np.mean(t.y)))
                    for t in tracks]
     provisional = _reference_radius(tracks, first_guess)
@@ -316,7 +292,7 @@ def fit_orbit(
     bounds = np.cumsum([0] + [track.n_points for track in tracks])
     for j, (track, about) in enumerate(zip(tracks, _centres(model, fitted))):
         own = slice(bounds[j], bounds[j + 1])
-        _require_one_sense(track, about, sigma[own], np.flatnonzero(inlier[own]))
+        require_one_sense(track, about, sigma[own], np.flatnonzero(inlier[own]))
     if solution.covariance is None or not np.all(np.isfinite(solution.covariance)):
         raise FitError(
             f"{tracks[0].label}: the orbit fit found no well-determined solution (its covariance "
@@ -372,26 +348,6 @@ def _require_resolved_excursion(model: OrbitModel, vector: FloatArray, noise: fl
                 "circular orbit exists for every exponent, so the exponent cannot be read from "
                 "this path. Launch the body off-circular so that r varies, or measure more "
                 "precisely.")
-
-
-def _require_one_sense(track: Track, centre: tuple[float, float], sigma: FloatArray,
-                       kept: np.ndarray | None = None) -> None:
-    """The samples (those ``kept``, outliers aside) must turn one way about the centre, as on
-    every central orbit."""
-    kept = np.arange(track.n_points) if kept is None else kept
-    if kept.size < 3:
-        return
-    offset = track.positions[kept] - np.asarray(centre)
-    radius = np.hypot(offset[:, 0], offset[:, 1])
-    step = np.diff(np.unwrap(np.arctan2(offset[:, 1], offset[:, 0])))
-    sense = np.sign(np.sum(step))
-    back = sense * step < -3.0 * math.sqrt(2.0) * sigma[kept][1:] / np.maximum(radius[1:], 1e-300)
-    if back.mean() > 0.01:
-        index = int(kept[int(np.argmax(back)) + 1])
-        raise GeometryError(
-            f"{track.label}: the path winds back about the centre ({centre[0]:.6g}, "
-            f"{centre[1]:.6g}) near sample {index}: the polar angle must turn one way along "
-            "a central-force orbit. Check the centre, or the data.")
 
 
 def _inliers(model: OrbitModel, vector: FloatArray, sigma: FloatArray) -> np.ndarray:
