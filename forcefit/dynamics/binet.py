@@ -24,7 +24,7 @@ import numpy as np
 from numba import njit
 
 from .._types import FloatArray
-from ._kernel import A, B, E3, E5, FAILED, MAX_FACTOR, MIN_FACTOR, OK, SAFETY, STAGES
+from ._kernel import E3, E5, FAILED, MAX_FACTOR, MIN_FACTOR, OK, SAFETY, STAGES, A, B
 
 BINET_PARAMETERS = ("exponent", "log_ratio", "log_radius", "slope")
 """The parameters of a solution: n, ln(k/h**2), ln r and d ln r/dtheta at the reference angle."""

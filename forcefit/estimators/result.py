@@ -302,17 +302,29 @@ class ShapeFit(LawFit):
     angular_momentum, angular_momentum_stderr : float
         Mean specific angular momentum h (L**2/T) and its error; nan without timestamps.
     evaluations : int
-        Residual evaluations the optimiser used.
+        Integrations of Binet's equation the fit used, its start included.
+    noise : float
+        Position noise per coordinate (L): the median sigma given, or the one the residuals
+        show when none was given (then the reduced chi-square is 1 by construction).
+    correlation_time : float
+        Integrated autocorrelation time of the residuals in path order (samples); the stated
+        errors are the white-noise ones times its square root.
     """
 
     reference_angle: float
     angular_momentum: float
     angular_momentum_stderr: float
     evaluations: int
+    noise: float
+    correlation_time: float
+
+    def _extra_rows(self) -> list[Row]:
+        return [Row("noise", format_measurement(self.noise), self.length_unit, brief=False)]
 
     def _details(self) -> dict[str, Any]:
         return {"reference_angle": self.reference_angle, "angular_momentum": self.angular_momentum,
-                "angular_momentum_stderr": self.angular_momentum_stderr, "evaluations": self.evaluations}
+                "angular_momentum_stderr": self.angular_momentum_stderr, "evaluations": self.evaluations,
+                "noise": self.noise, "correlation_time": self.correlation_time}
 
 
 @dataclass(frozen=True, kw_only=True)

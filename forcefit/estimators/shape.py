@@ -3,9 +3,13 @@
 About the force centre the polar angle theta is monotonic along a central orbit, and
 u = 1/r obeys Binet's equation d2u/dtheta2 + u = (k/h**2) u**(-n-2) for F = k r**n.
 Integrating it from a reference angle in the middle of the path and fitting n, k/h**2,
-the initial u and du/dtheta (and the centre, unless given) to the observed points
-gives the exponent from the shape alone, with every point used as measured (no
-derivatives of noisy data).
+the initial u and du/dtheta (and the centre, unless given) to the samples' distances
+from the curve gives the exponent from the shape alone, with every sample used as
+measured: no smoothing, no derivatives of noisy data, no assumption about the spacing of
+the samples. The start comes from what the samples resolve (`._binet_fit`), about each
+likely centre (the conic through the points: its centre and foci; with timestamps, the
+centre of steady areal rate). Timestamps, when present, give h and so k, and decide
+between centres the shape alone cannot tell apart.
 
 References
 ----------
@@ -16,187 +20,232 @@ Classical Mechanics, 3rd ed., section 3.7, equation (3.34).
 from __future__ import annotations
 
 import math
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.integrate import solve_ivp
-from scipy.optimize import OptimizeResult, least_squares
 
+from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
 from ..errors import FitError, GeometryError, NotIdentifiable
-from ..geometry.path import PathGeometry, describe_path, force_relation
-from ..geometry.smoothing import Smoothing
+from ..geometry.noise import difference_noise
+from ..geometry.path import PathGeometry, force_relation
 from ..track import Track
+from ._binet_fit import BinetProblem, Effort, Evaluation, evaluate, fit_binet, polar
 from ._checks import (
-    angular_momentum,
+    chi_square_diagnostic,
     constancy_diagnostic,
-    require_monotonic,
-    require_orbit,
+    require_bend,
+    require_one_sense,
     runs_diagnostic,
 )
-from .curvature import fit_curvature
+from ._start import AREAL_TOLERANCE, areal_misfit, centre_candidates
+from .orbit import RESOLVED_EXCURSION
 from .result import CurvaturePoints, Diagnostic, ShapeFit
 
 AMBIGUITY_FACTOR = 1.5
-"""Solutions whose reduced chi-square is within this factor of the best are all reported."""
+"""Solutions whose chi-square is within this factor of the best are all reported."""
+
+MIN_SAMPLES = 12
+"""Fewest samples the shape fit accepts (it fits up to 6 numbers)."""
+
+PARAMETER_NAMES = ("exponent", "log_strength_per_h2", "log_r_reference", "dlnr_dtheta_reference")
 
 
-EXPONENT_RANGE = 50.0
-"""|n| beyond which the optimiser is taken to have strayed: the Binet equation is then so stiff
-that one integration could take minutes; such a trial gets the penalty residual instead."""
+@dataclass(frozen=True)
+class _Solution:
+    """The least-squares solution about one start centre, before any check."""
 
-EVALUATIONS_PER_TURN = 10_000
-"""Right-hand-side evaluations allowed per turn of polar angle (plus as many again for the
-first), about five times what even a pendulum ellipse with b/a = 0.01 needs at rtol 1e-10; a
-trial that needs more (a stiff, strayed one) gets the penalty residual."""
+    problem: BinetProblem
+    vector: FloatArray
+    evaluation: Evaluation
+    chi2: float
+    settled: bool
+
+    @property
+    def centre(self) -> tuple[float, float]:
+        return self.problem.centre_of(self.vector)
 
 
-class _TooStiff(Exception):
-    """A trial integration exceeded its evaluation budget (EVALUATIONS_PER_TURN)."""
+def _solve_about(track: Track, start: tuple[float, float], sigma: FloatArray, *, free_centre: bool,
+                 effort: Effort) -> _Solution:
+    """Fit the Binet curve to every sample, starting about ``start`` (held when not free)."""
+    require_one_sense(track, start, sigma)
+    radius, theta = polar(track.x, track.y, start, 0.0)
+    reference = float(theta[int(np.argmin(np.abs(theta - 0.5 * (theta.min() + theta.max()))))])
+    size = float(np.ptp(radius) + np.min(radius))
+    problem = BinetProblem(x=track.x, y=track.y, sigma=sigma, reference=reference,
+                           centre=None if free_centre else start,
+                           penalty=1e3 * size / float(np.median(sigma)))
+    solved = fit_binet(problem, start, effort)
+    if not math.isfinite(solved.chi2):
+        raise FitError(f"{track.label}: no Binet curve about ({start[0]:.6g}, {start[1]:.6g}) follows the "
+                       "samples; the path is probably not an orbit in a central power law about that "
+                       "centre.", last_params=dict(zip(PARAMETER_NAMES, map(float, solved.vector))))
+    evaluation = evaluate(problem, solved.vector, effort)
+    return _Solution(problem, solved.vector, evaluation, solved.chi2, solved.settled)
 
 
-def _binet_radius(
-    theta: FloatArray, reference: float, exponent: float, ratio: float, u0: float, w0: float
-) -> tuple[FloatArray, FloatArray]:
-    """Model r(theta) and cos(gamma) at ``theta`` from u(reference) = u0, u'(reference) = w0.
+def _require_resolved_excursion(track: Track, solution: _Solution, noise: float) -> None:
+    """Refuse a solution whose radial excursion is not resolved above the noise.
 
-    Raises ``_TooStiff`` when an integration exceeds its budget (EVALUATIONS_PER_TURN).
+    A circular orbit exists for every exponent, so n shows only through how r varies along
+    the fitted curve. With the centre fitted, a small shift of the centre adds
+    -(shift . r_hat), a first harmonic in theta, to r: that part of the excursion says
+    nothing about n and is set aside. What remains must exceed RESOLVED_EXCURSION times its
+    standard error (~ noise sqrt(2/N)), as in the orbit fit.
     """
-    evaluations, budget = 0, 0
-
-    def derivative(_: float, state: FloatArray) -> FloatArray:
-        nonlocal evaluations
-        evaluations += 1
-        if evaluations > budget:
-            raise _TooStiff
-        u, w = state
-        return np.array([w, ratio * max(u, 1e-300) ** (-exponent - 2.0) - u])
-
-    def escape(_: float, state: FloatArray) -> float:
-        return float(state[0] - 1e-9 * u0)
-
-    escape.terminal = True  # type: ignore[attr-defined]
-    u = np.full(theta.size, np.nan)
-    w = np.full(theta.size, np.nan)
-    for side in (theta >= reference, theta < reference):
-        points = theta[side]
-        if points.size == 0:
-            continue
-        order = np.argsort(np.abs(points - reference))
-        targets = points[order]
-        evaluations = 0
-        budget = int(EVALUATIONS_PER_TURN * (1.0 + abs(float(targets[-1]) - reference) / (2.0 * math.pi)))
-        solution = solve_ivp(derivative, (reference, float(targets[-1])), [u0, w0], method="DOP853",
-                             t_eval=targets, rtol=1e-10, atol=1e-12 * abs(u0), events=escape)
-        values = np.asarray(solution.y, dtype=float).reshape(2, -1)     # empty if it failed at once
-        index = np.flatnonzero(side)[order][: values.shape[1]]
-        u[index], w[index] = values[0], values[1]
-    return 1.0 / u, u / np.hypot(u, w)
+    model = solution.evaluation.solution.radius
+    theta = solution.evaluation.theta
+    if solution.problem.centre is None:
+        design = np.column_stack((np.ones_like(theta), np.cos(theta), np.sin(theta)))
+        part = model - design @ np.linalg.lstsq(design, model, rcond=None)[0]
+    else:
+        part = model - float(np.mean(model))
+    excursion = 0.5 * float(np.ptp(part))
+    resolution = max(noise * math.sqrt(2.0 / model.size), 1e-10 * float(np.mean(model)))
+    if excursion <= RESOLVED_EXCURSION * resolution:
+        moved = " beyond what a shift of the centre explains" if solution.problem.centre is None else ""
+        raise NotIdentifiable(
+            f"{track.label}: the distance from the centre hardly changes{moved} (by "
+            f"{2 * excursion:.3g} {track.length_unit} about r = {np.mean(model):.6g} "
+            f"{track.length_unit}, against a noise of {noise:.3g} {track.length_unit}); a circular "
+            "orbit exists for every exponent, so the exponent cannot be read from this path. "
+            + ("Give the centre if it is known, or launch" if moved else "Launch")
+            + " the body off-circular so that r varies.")
 
 
-def _polar(
-    x: FloatArray, y: FloatArray, centre: tuple[float, float], reference: float
-) -> tuple[FloatArray, FloatArray]:
-    """r and the unwrapped polar angle about ``centre``, on the branch where the middle
-    sample lies within pi of ``reference`` (so that small moves of the centre never jump)."""
-    radius = np.hypot(x - centre[0], y - centre[1])
-    theta = np.unwrap(np.arctan2(y - centre[1], x - centre[0]))
-    theta -= 2.0 * math.pi * round((theta[theta.size // 2] - reference) / (2.0 * math.pi))
-    return radius, theta
+def _correlation_time(residuals: FloatArray) -> float:
+    """Integrated autocorrelation time of the residuals in path order; 1 within its own noise
+    (5/sqrt(N)) of 1, as in the orbit fit (`forcefit.estimators.orbit.residual_correlation_time`)."""
+    estimate = autocorrelation_time(residuals)
+    return estimate if estimate > 1.0 + 5.0 / math.sqrt(max(residuals.size, 1)) else 1.0
 
 
-def _residuals(
-    params: FloatArray, x: FloatArray, y: FloatArray, sigma: FloatArray, reference: float,
-    fixed_centre: tuple[float, float] | None, penalty: float,
-    prior: tuple[FloatArray, FloatArray] | None,
-) -> FloatArray:
-    """Normal distances from the points to the Binet curve, in units of their sigma, and
-    (with a ``prior`` centre and its standard error) the centre's pull towards it."""
-    exponent, log_ratio, log_r0, slope0 = params[:4]
-    centre = fixed_centre if fixed_centre is not None else (float(params[4]), float(params[5]))
-    radius, theta = _polar(x, y, centre, reference)
+def _angular_momentum(track: Track, evaluation: Evaluation, sigma: FloatArray
+                      ) -> tuple[float, float, float]:
+    """h (L**2/T), its standard error and its relative drift over the track, from the times.
+
+    Along the fitted curve g(theta) = integral of r**2 dtheta grows as h t; a sample's
+    position error sigma across the path moves its g by r sigma. A line in t gives h; a
+    quadratic gives the drift dh/dt times the duration, over h.
+    """
+    if track.t is None:
+        return math.nan, math.nan, math.nan
+    t = np.asarray(track.t) - float(np.mean(track.t))
+    g, spread = evaluation.solution.swept, evaluation.radius * sigma
+    line = fit_line(t, g, spread)
+    design = np.column_stack((np.ones_like(t), t, t * t)) / spread[:, None]
+    quadratic = np.linalg.lstsq(design, g / spread, rcond=None)[0]
+    drift = 2.0 * float(quadratic[2]) * float(np.ptp(t)) / line.slope if line.slope else math.nan
+    return line.slope, math.sqrt(float(line.covariance[0, 0])), drift
+
+
+def _relation(path: PathGeometry | None, centre: tuple[float, float], timed: bool) -> CurvaturePoints:
+    """The force-curvature relation about the fitted centre, for the figure: only from a path the
+    caller described (the fit itself smooths nothing)."""
+    if path is None:
+        return CurvaturePoints(log_radius=np.empty(0), log_force=np.empty(0), per_h2=not timed)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_radius, log_force, _ = force_relation(path, centre)
+    return CurvaturePoints(log_radius=log_radius, log_force=log_force, per_h2=not path.track.has_times)
+
+
+def _law_fit(track: Track, solution: _Solution, sigma_known: bool, path: PathGeometry | None,
+             evaluations: int) -> ShapeFit:
+    """The checked result of one solution: errors in the noise the residuals show, widened by
+    their correlation time; h and k from the times when there are any."""
+    problem, evaluation = solution.problem, solution.evaluation
+    n_params = problem.n_parameters
+    dof = max(track.n_points - n_params, 1)
+    scale = 1.0 if sigma_known else math.sqrt(solution.chi2 / dof)    # fitted noise / provisional sigma
+    sigma = problem.sigma * scale
+    noise = float(np.median(sigma))
+    centre = solution.centre
+    require_one_sense(track, centre, sigma)
+    _require_resolved_excursion(track, solution, noise)
+    residuals = evaluation.residual / scale
+    tau = _correlation_time(residuals)
     try:
-        if not abs(exponent) <= EXPONENT_RANGE:
-            raise _TooStiff
-        r0 = math.exp(log_r0)
-        with np.errstate(all="ignore"):
-            model, cos_gamma = _binet_radius(theta, reference, exponent, math.exp(log_ratio),
-                                             1.0 / r0, -slope0 / r0)
-            residual = np.where(np.isfinite(model), (radius - model) * cos_gamma / sigma, penalty)
-    except (OverflowError, ZeroDivisionError, ValueError, _TooStiff):   # the optimiser strayed
-        residual = np.full(radius.size, penalty)
-    residual = np.where(np.isfinite(residual), residual, penalty)
-    if prior is None:
-        return residual
-    return np.concatenate((residual, (np.asarray(centre) - prior[0]) / prior[1]))
-
-
-GRID_EXPONENTS = (-5.0, -4.0, -3.0, -2.5, -2.0, -1.5, -1.0, -0.5, 0.0, 0.5, 1.0, 2.0, 3.0)
-"""Exponents tried for a start when the curvature relation is too noisy to give one."""
-
-
-def _start(
-    track: Track, path: PathGeometry, reference_index: int, reference: float, sigma: FloatArray
-) -> FloatArray:
-    """(n, log k/h**2, log r, d ln r / d theta) at the reference angle to start from.
-
-    n and k/h**2 come from the curvature fit about the centre; when the curvature is
-    too noisy for that, from the best of short fits with n held at each of GRID_EXPONENTS.
-    """
-    radius = path.radius
-    slope = float(np.gradient(np.log(radius), path.polar_angle)[reference_index])
-    log_r0 = math.log(radius[reference_index])
-    try:
-        first = fit_curvature(track, centre=path.centre, path=replace(path, centre_estimate=None))
-        return np.array([first.exponent, math.log(first.strength_per_h2), log_r0, slope])
-    except (NotIdentifiable, np.linalg.LinAlgError):
-        pass
-    mean_log_r = float(np.mean(np.log(radius)))
-    best, best_cost = None, math.inf
-    for exponent in GRID_EXPONENTS:
-        def held(params: FloatArray, exponent: float = exponent) -> FloatArray:
-            return _residuals(np.concatenate(([exponent], params)), track.x, track.y, sigma,
-                              reference, path.centre, 1e6, None)
-
-        trial = least_squares(held, [-(exponent + 3.0) * mean_log_r, log_r0, slope], max_nfev=20)
-        if trial.cost < best_cost:
-            best, best_cost = np.concatenate(([exponent], trial.x)), float(trial.cost)
-    return np.asarray(best)
-
-
-def _solve(
-    track: Track, path: PathGeometry, free_centre: bool
-) -> tuple[OptimizeResult, float, FloatArray]:
-    """Least-squares Binet fit started from the curvature fit about ``path.centre``.
-
-    With timestamps, the centre the accelerations point at enters as a Gaussian prior
-    (its value and standard error), so that a shape that cannot fix the centre alone
-    (a circle through the centre, say) still gets the centre the motion shows.
-    """
-    polar = path.polar_angle
-    reference_index = int(np.argmin(np.abs(polar - 0.5 * (polar.min() + polar.max()))))
-    reference = float(polar[reference_index])
-    sigma = track.sigma if track.sigma is not None else path.smoothing.noise
-    start = _start(track, path, reference_index, reference, sigma)
-    if free_centre:
-        start = np.concatenate((start, path.centre))
-    fixed = None if free_centre else path.centre
-    penalty = 1e3 * float(np.ptp(path.radius) / np.median(sigma))
-    stderr = np.asarray(path.centre_stderr)
-    prior = ((np.asarray(path.centre), stderr)
-             if free_centre and track.has_times and np.all(stderr > 0) else None)
-    result = least_squares(
-        _residuals, start, args=(track.x, track.y, sigma, reference, fixed, penalty, prior),
-        method="trf", x_scale="jac", max_nfev=200,
+        covariance = np.linalg.inv(evaluation.jacobian.T @ evaluation.jacobian) * scale**2 * tau
+    except np.linalg.LinAlgError:
+        covariance = np.full((n_params, n_params), math.nan)
+    if not (np.all(np.isfinite(covariance)) and np.all(np.diag(covariance) > 0)):
+        raise FitError(f"{track.label}: the shape fit found no well-determined solution (its covariance "
+                       "is singular). The path is probably not an orbit in a central power law; check "
+                       "the centre and the data.", last_params=dict(zip(PARAMETER_NAMES, solution.vector)))
+    chi2 = float(residuals @ residuals)
+    exponent, log_ratio = (float(value) for value in solution.vector[:2])
+    ratio = math.exp(log_ratio)
+    ratio_se = ratio * math.sqrt(covariance[1, 1])
+    centre_se = ((math.sqrt(covariance[4, 4]), math.sqrt(covariance[5, 5])) if problem.centre is None
+                 else (0.0, 0.0))
+    h, h_se, drift = _angular_momentum(track, evaluation, sigma)
+    strength = ratio * h**2
+    strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
+    log_reference = float(np.mean(np.log(evaluation.radius)))
+    gradient = np.zeros(n_params)
+    gradient[:2] = (log_reference, 1.0)            # ln F/h**2 (r_ref) = ln(k/h**2) + n ln r_ref
+    per_h2_se = math.sqrt(float(gradient @ covariance @ gradient))
+    force = math.exp(log_ratio + exponent * log_reference) * h**2
+    force_se = force * math.hypot(per_h2_se, 2 * h_se / h) if math.isfinite(h) else math.nan
+    turns = float(np.ptp(evaluation.theta)) / (2.0 * math.pi)
+    diagnostics = _checks(track, solution, residuals, sigma_known, noise, tau, drift, turns)
+    if problem.centre is None and max(centre_se) > 0.05 * float(np.ptp(evaluation.radius)
+                                                                + np.min(evaluation.radius)):
+        diagnostics["centre"] = Diagnostic(None, f"the shape fixes the centre only to ±{max(centre_se):.3g} "
+                                                 f"{track.length_unit}; give it if it is known.")
+    return ShapeFit(
+        exponent=exponent, exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
+        strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
+        centre=centre, centre_stderr=centre_se, method="shape", n_points=track.n_points,
+        reference_radius=math.exp(log_reference), force_at_reference=force,
+        force_at_reference_stderr=force_se, chi2=chi2, reduced_chi2=chi2 / dof,
+        parameter_names=PARAMETER_NAMES + (("centre_x", "centre_y") if problem.centre is None else ()),
+        covariance=covariance, residuals=residuals, length_unit=track.length_unit,
+        time_unit=track.time_unit if track.has_times else None, diagnostics=diagnostics,
+        relation=_relation(path, centre, track.has_times), reference_angle=problem.reference,
+        angular_momentum=h, angular_momentum_stderr=h_se, evaluations=evaluations, noise=noise,
+        correlation_time=tau, track_name=track.name,
     )
-    return result, reference, sigma
+
+
+def _checks(track: Track, solution: _Solution, residuals: FloatArray, sigma_known: bool, noise: float,
+            tau: float, drift: float, turns: float) -> dict[str, Diagnostic]:
+    """Convergence, chi-square (sigma given), runs of residual signs, h's constancy; the noise,
+    the correlation time and the coverage as information."""
+    dof = max(track.n_points - solution.problem.n_parameters, 1)
+    diagnostics = {
+        "convergence": Diagnostic(True, "the least-squares fit settled.") if solution.settled else
+        Diagnostic(False, "the least-squares fit had not settled when it stopped: the values and "
+                          "errors are those where it stopped."),
+        "residuals": runs_diagnostic(residuals),
+        "angular momentum": constancy_diagnostic(drift),
+        "noise": Diagnostic(None, f"sigma as given (median {noise:.3g} {track.length_unit})" if sigma_known
+                            else f"fitted noise level {noise:.3g} {track.length_unit}"),
+        "coverage": Diagnostic(None, f"the samples sweep {turns:.2f} turns about the centre"
+                                     + (f"; neighbouring residuals stay alike over {tau:.3g} samples, "
+                                        f"so the errors are widened {math.sqrt(tau):.3g} times."
+                                        if tau > 1.0 else ".")),
+    }
+    if sigma_known:
+        diagnostics["chi-square"] = chi_square_diagnostic(float(residuals @ residuals) / dof, dof)
+    return diagnostics
+
+
+def _candidates(track: Track, noise: float) -> list[tuple[float, float]]:
+    """Likely centres: the conic's centre and foci, the centroid; with timestamps those about
+    which the area grows steadily, best first (`forcefit.estimators._start.centre_candidates`)."""
+    candidates = centre_candidates(track, noise)
+    if not candidates:
+        raise NotIdentifiable(f"{track.label}: no likely force centre could be found from the path's "
+                              "shape. Give the centre.")
+    return candidates
 
 
 def fit_shape(
     track: Track,
     *,
     centre: tuple[float, float] | None = None,
-    smoothing: Smoothing = "auto",
     path: PathGeometry | None = None,
 ) -> ShapeFit:
     """Fit Binet's equation to the path: n and k/h**2 from the shape, time-free.
@@ -204,13 +253,14 @@ def fit_shape(
     Parameters
     ----------
     track : Track
-        Positions (L); timestamps, when present, give h and so k, and fix the centre.
+        Positions (L) in path order, evenly spaced or not; timestamps, when present, give h
+        and so k, and decide between centres the shape fits equally well; a sigma column
+        weights the samples (without one the noise is fitted).
     centre : (float, float), optional
         The force centre (L), held fixed; fitted when not given.
-    smoothing : {"auto", "spline", "savgol"}
-        Smoothing for the starting values (the fit itself uses the raw points).
     path : PathGeometry, optional
-        The track's geometry, if already described.
+        The track's geometry, if already described: its force-curvature relation about the
+        fitted centre is kept for the figure (the fit itself smooths nothing).
 
     Returns
     -------
@@ -222,9 +272,13 @@ def fit_shape(
     Raises
     ------
     NotIdentifiable
-        For a circle about the centre or a straight path.
+        For a straight path, and when the radial excursion of the fitted curve is not resolved
+        above the noise (a circle about the centre, or nearly).
     GeometryError
-        When the path winds back about the centre.
+        For fewer than 12 samples, and when the path winds back about the centre.
+    FitError
+        When no Binet curve follows the samples, or the fit spends its budget of integration
+        steps (which grows with the samples) without settling.
 
     Examples
     --------
@@ -235,99 +289,57 @@ def fit_shape(
     >>> round(fit.exponent, 6), round(fit.strength_per_h2, 6)   # k/h**2 = 1/p
     (-2.0, 1.0)
     """
-    path = path if path is not None else describe_path(track, centre=centre, smoothing=smoothing)
-    free = centre is None
-    fit = _fit_about(track, path, free_centre=free)
-    estimate = path.centre_estimate
-    if not free or estimate is None or not estimate.alternatives:
-        return fit
-    others = []
-    for other in estimate.alternatives:
+    if track.n_points < MIN_SAMPLES:
+        raise GeometryError(
+            f"{track.label}: {track.n_points} samples are too few for the shape fit; it needs at least "
+            f"{MIN_SAMPLES} to fix the law, the state and the centre with room to spare. Record a "
+            "longer stretch of the path or more points along it.")
+    noise = difference_noise(track)
+    require_bend(track, noise)
+    size = float(max(np.ptp(track.x), np.ptp(track.y)))
+    sigma = (np.asarray(track.sigma, dtype=float) if track.sigma is not None
+             else np.full(track.n_points, max(noise, 1e-12 * size, 1e-300)))
+    effort = Effort(track.n_points, track.label)
+    solutions: list[_Solution] = []
+    failures: list[Exception] = []
+    for start in [centre] if centre is not None else _candidates(track, noise):
         try:
-            others.append(_fit_about(
-                track, describe_path(track, centre=other.centre, curve=path.smoothing), free_centre=True))
-        except (FitError, GeometryError):
+            solutions.append(_solve_about(track, (float(start[0]), float(start[1])), sigma,
+                                          free_centre=centre is None, effort=effort))
+        except (GeometryError, FitError) as exc:
+            if effort.spent > effort.limit:
+                raise
+            failures.append(exc)
+    if not solutions:
+        raise failures[0]
+    if track.has_times and len(solutions) > 1:
+        misfits = [areal_misfit(track, solution.centre) for solution in solutions]
+        solutions = [solution for solution, misfit in zip(solutions, misfits)
+                     if misfit <= AREAL_TOLERANCE * min(misfits) + 1e-300]
+    solutions.sort(key=lambda solution: solution.chi2)
+    fit = _law_fit(track, solutions[0], track.sigma is not None, path, effort.integrations)
+    return _with_alternatives(track, fit, solutions, path, effort.integrations)
+
+
+def _with_alternatives(track: Track, fit: ShapeFit, solutions: list[_Solution], path: PathGeometry | None,
+                       evaluations: int) -> ShapeFit:
+    """``fit`` with the other solutions that fit about as well about distinct centres, flagged."""
+    size = float(max(np.ptp(track.x), np.ptp(track.y)))
+    others: list[ShapeFit] = []
+    for solution in solutions[1:]:
+        if solution.chi2 > AMBIGUITY_FACTOR * solutions[0].chi2:
             continue
-    best = min([fit, *others], key=lambda f: f.reduced_chi2)
-    rest = tuple(f for f in [fit, *others] if f is not best
-                 and f.reduced_chi2 <= AMBIGUITY_FACTOR * best.reduced_chi2
-                 and math.dist(f.centre, best.centre) > 1e-3 * float(np.ptp(path.radius) + 1e-300))
-    if not rest:
-        return best
-    listed = "; ".join(f"n = {f.exponent:.3f} about ({f.centre[0]:.4g}, {f.centre[1]:.4g})" for f in rest)
+        distinct = max(1e-3 * size, 3.0 * math.hypot(*fit.centre_stderr))
+        if any(math.dist(solution.centre, known.centre) <= distinct for known in [fit, *others]):
+            continue
+        try:
+            others.append(_law_fit(track, solution, track.sigma is not None, path, evaluations))
+        except (NotIdentifiable, GeometryError, FitError):
+            continue
+    if not others:
+        return fit
+    listed = "; ".join(f"n = {f.exponent:.3f} about ({f.centre[0]:.4g}, {f.centre[1]:.4g})" for f in others)
     check = Diagnostic(False, f"the path's shape fits as well about other centres ({listed}). A closed "
                               "ellipse is an orbit of n = 1 about its centre and of n = -2 about a "
                               "focus; give the centre or timestamps to decide.")
-    return replace(best, alternatives=rest, diagnostics={**best.diagnostics, "centre": check})
-
-
-def _fit_about(track: Track, path: PathGeometry, *, free_centre: bool) -> ShapeFit:
-    require_orbit(path)
-    require_monotonic(path)
-    result, reference, sigma = _solve(track, path, free_centre)
-    if not result.success:
-        raise FitError(f"{track.label}: the shape fit did not converge ({result.message}).",
-                       last_params=dict(zip(("exponent", "log_ratio", "log_r0", "slope0"), result.x)))
-    n_params = result.x.size
-    chi2 = 2.0 * float(result.cost)
-    reduced = chi2 / max(track.n_points - n_params, 1)
-    scale = reduced if track.sigma is None else 1.0
-    covariance = np.linalg.pinv(result.jac.T @ result.jac) * scale
-    exponent, log_ratio = result.x[:2]
-    ratio = math.exp(log_ratio)
-    ratio_se = ratio * math.sqrt(covariance[1, 1])
-    centre = (float(result.x[4]), float(result.x[5])) if free_centre else path.centre
-    centre_se = ((math.sqrt(covariance[4, 4]), math.sqrt(covariance[5, 5])) if free_centre
-                 else path.centre_stderr)
-    h, h_se, drift = angular_momentum(path)
-    strength = ratio * h**2
-    strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
-    log_reference = float(np.mean(np.log(path.radius)))
-    gradient = np.zeros(n_params)
-    gradient[:2] = (log_reference, 1.0)            # log F/h^2 (r_ref) = log(k/h^2) + n log r_ref
-    per_h2_se = math.sqrt(float(gradient @ covariance @ gradient))
-    force = math.exp(log_ratio + exponent * log_reference) * h**2
-    force_se = force * math.hypot(per_h2_se, 2 * h_se / h) if math.isfinite(h) else math.nan
-    residuals = result.fun[: track.n_points]
-    diagnostics = {
-        "residuals": runs_diagnostic(residuals),
-        "angular momentum": constancy_diagnostic(drift),
-        "noise": Diagnostic(None, "sigma as given" if track.sigma is not None else
-                            "sigma estimated from the residuals: "
-                            f"{math.sqrt(reduced) * float(np.median(sigma)):.3g} {track.length_unit}"),
-    }
-    if track.sigma is not None:
-        diagnostics["chi-square"] = _chi2_diagnostic(reduced, track.n_points - n_params)
-    if free_centre and max(centre_se) > 0.05 * float(np.ptp(path.radius) + np.min(path.radius)):
-        diagnostics["centre"] = Diagnostic(None, f"the shape fixes the centre only to ±{max(centre_se):.3g} "
-                                                 f"{track.length_unit}; give it if it is known.")
-    names = ("exponent", "log_strength_per_h2", "log_r_reference", "dlnr_dtheta_reference")
-    return ShapeFit(
-        exponent=float(exponent), exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
-        strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
-        centre=centre, centre_stderr=centre_se, method="shape", n_points=track.n_points,
-        reference_radius=math.exp(log_reference), force_at_reference=force,
-        force_at_reference_stderr=force_se,
-        chi2=chi2, reduced_chi2=reduced,
-        parameter_names=names + (("centre_x", "centre_y") if free_centre else ()),
-        covariance=covariance, residuals=residuals, length_unit=track.length_unit,
-        time_unit=track.time_unit if track.has_times else None, diagnostics=diagnostics,
-        relation=_relation(path, centre), reference_angle=reference, angular_momentum=h,
-        angular_momentum_stderr=h_se, evaluations=int(result.nfev), track_name=track.name,
-    )
-
-
-def _relation(path: PathGeometry, centre: tuple[float, float]) -> CurvaturePoints:
-    """The force-curvature relation about the fitted centre, for the figure."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        log_radius, log_force, _ = force_relation(path, centre)
-    return CurvaturePoints(log_radius=log_radius, log_force=log_force, per_h2=not path.track.has_times)
-
-
-def _chi2_diagnostic(reduced: float, dof: int) -> Diagnostic:
-    """Reduced chi-square against its expected spread sqrt(2/dof) (for known sigma)."""
-    spread = math.sqrt(2.0 / max(dof, 1))
-    text = f"reduced chi-square {reduced:.3g} (expected 1 ± {spread:.2g})"
-    if abs(reduced - 1.0) > 5 * spread and reduced > 1.0:
-        return Diagnostic(False, text + ": the model misses the points by more than their sigma.")
-    return Diagnostic(True, text + ".")
+    return replace(fit, alternatives=tuple(others), diagnostics={**fit.diagnostics, "centre": check})
