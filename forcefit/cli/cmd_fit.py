@@ -43,6 +43,9 @@ examples:
 
 ORBIT_ONLY = ("fix_exponent", "drag", "compare", "rotation_rate", "latitude", "extra")
 
+SMOOTHING_METHODS = ("curvature", "acceleration")
+"""The methods that smooth the path before differentiating it (the shape fit smooths nothing)."""
+
 
 def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
     """Fit one track with the method and options of the command line."""
@@ -52,7 +55,9 @@ def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
         if given or args.fit_rotation or args.robust:
             raise InputError(f"{', '.join(given or ['--robust'])} applies to the orbit method only; "
                              "drop it or use --method orbit.")
-        return registry.fit(track, method, centre=args.centre, smoothing=args.smoothing)
+        if method in SMOOTHING_METHODS:
+            return registry.fit(track, method, centre=args.centre, smoothing=args.smoothing)
+        return registry.fit(track, method, centre=args.centre)
     return registry.fit(track, method, **orbit_options(args, track))
 
 

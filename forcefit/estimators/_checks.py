@@ -141,12 +141,18 @@ def centre_covariance(
     return jacobian @ np.diag(stderr**2) @ jacobian.T
 
 
-def constancy_diagnostic(drift: float) -> Diagnostic:
-    """Verdict on the angular momentum's drift over the track (central forces keep h)."""
+def constancy_diagnostic(drift: float, *, error: float = 0.0) -> Diagnostic:
+    """Verdict on the angular momentum's drift over the track (central forces keep h).
+
+    A drift beyond 2% fails, unless its standard error ``error`` (when known) leaves it
+    within 4 of them of zero: a short stretch does not resolve it.
+    """
     if not math.isfinite(drift):
         return Diagnostic(None, "not checked (no timestamps).")
     text = f"h changes by {100 * drift:+.2g}% over the track"
-    if abs(drift) > 0.02:
+    if error > 0:
+        text += f" (± {100 * error:.2g}%)"
+    if abs(drift) > 0.02 and not abs(drift) <= 4.0 * error:
         return Diagnostic(False, text + ": not a conservative central force (drag, or the "
                                         "wrong centre).")
     return Diagnostic(True, text + ".")

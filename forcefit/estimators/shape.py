@@ -122,22 +122,31 @@ def _correlation_time(residuals: FloatArray) -> float:
 
 
 def _angular_momentum(track: Track, evaluation: Evaluation, sigma: FloatArray
-                      ) -> tuple[float, float, float]:
-    """h (L**2/T), its standard error and its relative drift over the track, from the times.
+                      ) -> tuple[float, float, float, float]:
+    """h (L**2/T), its standard error, its relative drift over the track and the drift's
+    standard error, from the times.
 
     Along the fitted curve g(theta) = integral of r**2 dtheta grows as h t; a sample's
     position error sigma across the path moves its g by r sigma. A line in t gives h; a
-    quadratic gives the drift dh/dt times the duration, over h.
+    quadratic gives the drift dh/dt times the duration, over h, its error scaled by the
+    quadratic's own reduced chi-square (the along-path scatter is not sigma's business).
     """
     if track.t is None:
-        return math.nan, math.nan, math.nan
+        return math.nan, math.nan, math.nan, math.nan
     t = np.asarray(track.t) - float(np.mean(track.t))
     g, spread = evaluation.solution.swept, evaluation.radius * sigma
     line = fit_line(t, g, spread)
-    design = np.column_stack((np.ones_like(t), t, t * t)) / spread[:, None]
-    quadratic = np.linalg.lstsq(design, g / spread, rcond=None)[0]
-    drift = 2.0 * float(quadratic[2]) * float(np.ptp(t)) / line.slope if line.slope else math.nan
-    return line.slope, math.sqrt(float(line.covariance[0, 0])), drift
+    scale = max(float(np.ptp(t)), 1e-300)
+    design = np.column_stack((np.ones_like(t), t / scale, (t / scale) ** 2)) / spread[:, None]
+    quadratic, *_ = np.linalg.lstsq(design, g / spread, rcond=None)
+    misfit = g / spread - design @ quadratic
+    variance = float(misfit @ misfit) / max(t.size - 3, 1) * autocorrelation_time(misfit)
+    curvature_se = math.sqrt(max(float(np.linalg.pinv(design.T @ design)[2, 2]) * variance, 0.0))
+    if not line.slope:
+        return line.slope, math.sqrt(float(line.covariance[0, 0])), math.nan, math.nan
+    drift = 2.0 * float(quadratic[2]) / scale / line.slope
+    return (line.slope, math.sqrt(float(line.covariance[0, 0])), drift,
+            abs(2.0 * curvature_se / scale / line.slope))
 
 
 def _relation(path: PathGeometry | None, centre: tuple[float, float], timed: bool) -> CurvaturePoints:
@@ -179,7 +188,7 @@ def _law_fit(track: Track, solution: _Solution, sigma_known: bool, path: PathGeo
     ratio_se = ratio * math.sqrt(covariance[1, 1])
     centre_se = ((math.sqrt(covariance[4, 4]), math.sqrt(covariance[5, 5])) if problem.centre is None
                  else (0.0, 0.0))
-    h, h_se, drift = _angular_momentum(track, evaluation, sigma)
+    h, h_se, drift, drift_se = _angular_momentum(track, evaluation, sigma)
     strength = ratio * h**2
     strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
     log_reference = float(np.mean(np.log(evaluation.radius)))
@@ -189,7 +198,7 @@ def _law_fit(track: Track, solution: _Solution, sigma_known: bool, path: PathGeo
     force = math.exp(log_ratio + exponent * log_reference) * h**2
     force_se = force * math.hypot(per_h2_se, 2 * h_se / h) if math.isfinite(h) else math.nan
     turns = float(np.ptp(evaluation.theta)) / (2.0 * math.pi)
-    diagnostics = _checks(track, solution, residuals, sigma_known, noise, tau, drift, turns)
+    diagnostics = _checks(track, solution, residuals, sigma_known, noise, tau, (drift, drift_se), turns)
     if problem.centre is None and max(centre_se) > 0.05 * float(np.ptp(evaluation.radius)
                                                                 + np.min(evaluation.radius)):
         diagnostics["centre"] = Diagnostic(None, f"the shape fixes the centre only to ±{max(centre_se):.3g} "
@@ -210,7 +219,7 @@ def _law_fit(track: Track, solution: _Solution, sigma_known: bool, path: PathGeo
 
 
 def _checks(track: Track, solution: _Solution, residuals: FloatArray, sigma_known: bool, noise: float,
-            tau: float, drift: float, turns: float) -> dict[str, Diagnostic]:
+            tau: float, drift: tuple[float, float], turns: float) -> dict[str, Diagnostic]:
     """Convergence, chi-square (sigma given), runs of residual signs, h's constancy; the noise,
     the correlation time and the coverage as information."""
     dof = max(track.n_points - solution.problem.n_parameters, 1)
@@ -219,7 +228,7 @@ def _checks(track: Track, solution: _Solution, residuals: FloatArray, sigma_know
         Diagnostic(False, "the least-squares fit had not settled when it stopped: the values and "
                           "errors are those where it stopped."),
         "residuals": runs_diagnostic(residuals),
-        "angular momentum": constancy_diagnostic(drift),
+        "angular momentum": constancy_diagnostic(drift[0], error=drift[1]),
         "noise": Diagnostic(None, f"sigma as given (median {noise:.3g} {track.length_unit})" if sigma_known
                             else f"fitted noise level {noise:.3g} {track.length_unit}"),
         "coverage": Diagnostic(None, f"the samples sweep {turns:.2f} turns about the centre"
