@@ -6,10 +6,11 @@ import importlib.util
 import sys
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 SCRIPT = Path(__file__).resolve().parents[1] / "benchmarks" / "validation.py"
-SLICE_ESTIMATORS = ("orbit", "pendulum")
+SLICE_ESTIMATORS = ("orbit", "pendulum", "shape")
 
 
 @pytest.fixture(scope="module")
@@ -46,7 +47,29 @@ def test_no_confident_wrong_answer_and_no_crash(matrix, slice_rows):
 
 
 def test_the_circle_is_refused_and_the_screened_force_flagged(matrix, slice_rows):
-    outcome = {matrix.scenarios()[row["cell"]].family: row["outcome"] for row in slice_rows
-               if row["estimator"] == "orbit"}
-    assert outcome["near-circle"] == "refused"                # e = 0: no exponent can be read
-    assert outcome["screened"] == "flagged"                   # not a power law, and it says so
+    for estimator in ("orbit", "shape"):
+        outcome = {matrix.scenarios()[row["cell"]].family: row["outcome"] for row in slice_rows
+                   if row["estimator"] == estimator}
+        assert outcome["near-circle"] == "refused", estimator  # e = 0: no exponent can be read
+        assert outcome["screened"] == "flagged", estimator     # not a power law, and it says so
+
+
+SHAPE_STUDY = ("baseline", "near-circle", "short arc", "long: 10 turns n=-1", "uneven", "sparse", "eccentric",
+               "sigma column: right", "pendulum: a/L=0.05, length not given")
+"""The cells where the shape fit answers (others refuse or flag, which the slice checks)."""
+
+
+@pytest.mark.slow
+def test_shape_errors_are_honest_across_the_matrix(matrix):
+    # The trust rule for the shape fit over the families it answers, 10 replicates per cell: no
+    # confident wrong answer, z = (n - truth) / stated error with SD within 0.8-1.25 and 90-98% of
+    # the answers inside their 95% interval, pooled (both two-sided: errors stated too large fail
+    # as surely as errors stated too small; common practice).
+    tasks = [task for task in matrix.tasks(replicates=10, estimator="shape")
+             if any(text in matrix.scenarios()[task[0]].name for text in SHAPE_STUDY)]
+    rows = [matrix.run_one(task) for task in tasks]
+    assert not [row for row in rows if row["outcome"] == "crash"]
+    z = np.array([row["z"] for row in rows if row["outcome"] == "answered"])
+    assert z.size > 0.6 * len(rows) and not np.any(np.abs(z) > matrix.WRONG_Z)
+    assert 0.8 <= float(np.std(z)) <= 1.25
+    assert 0.90 <= float(np.mean(np.abs(z) < 1.96)) <= 0.98
