@@ -149,6 +149,23 @@ def _angular_momentum(track: Track, evaluation: Evaluation, sigma: FloatArray
             abs(2.0 * curvature_se / scale / line.slope))
 
 
+def _drift_spread(track: Track, solution: _Solution, covariance: FloatArray, sigma: FloatArray) -> float:
+    """The standard error of h's drift that the fitted parameters carry (a centre fixed only
+    loosely, on a short arc, makes the swept area grow unevenly): the drift's gradient by
+    central differences of a tenth of each parameter's error, through the covariance."""
+    effort = Effort(track.n_points, track.label)
+    errors = np.sqrt(np.diag(covariance))
+    gradient = np.zeros(errors.size)
+    for j, error in enumerate(errors):
+        step = np.zeros(errors.size)
+        step[j] = 0.1 * error
+        drifts = [_angular_momentum(track, evaluate(solution.problem, solution.vector + sign * step, effort),
+                                    sigma)[2] for sign in (1.0, -1.0)]
+        gradient[j] = (drifts[0] - drifts[1]) / (0.2 * error)
+    spread = float(gradient @ covariance @ gradient)
+    return math.sqrt(spread) if math.isfinite(spread) and spread > 0 else 0.0
+
+
 def _relation(path: PathGeometry | None, centre: tuple[float, float], timed: bool) -> CurvaturePoints:
     """The force-curvature relation about the fitted centre, for the figure: only from a path the
     caller described (the fit itself smooths nothing)."""
@@ -189,6 +206,8 @@ def _law_fit(track: Track, solution: _Solution, sigma_known: bool, path: PathGeo
     centre_se = ((math.sqrt(covariance[4, 4]), math.sqrt(covariance[5, 5])) if problem.centre is None
                  else (0.0, 0.0))
     h, h_se, drift, drift_se = _angular_momentum(track, evaluation, sigma)
+    if math.isfinite(drift):
+        drift_se = math.hypot(drift_se, _drift_spread(track, solution, covariance, sigma))
     strength = ratio * h**2
     strength_se = abs(strength) * math.hypot(ratio_se / ratio, 2 * h_se / h) if math.isfinite(h) else math.nan
     log_reference = float(np.mean(np.log(evaluation.radius)))
