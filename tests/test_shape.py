@@ -282,3 +282,17 @@ def test_stated_errors_match_the_scatter_of_replicates():
     assert 0.75 < float(np.std(z, ddof=1)) < 1.3, np.std(z, ddof=1)
     assert 0.88 <= float(np.mean(np.abs(z) < 1.96)) <= 0.99
     assert abs(float(np.mean(z))) < 4 / math.sqrt(z.size)
+
+
+@pytest.mark.parametrize("centre", [None, (0.0, 0.0)])
+def test_drag_fails_the_angular_momentum_check(centre):
+    # Linear drag a = -c v takes h down as exp(-c t) (common practice): over 3 turns of a Hooke
+    # orbit at c = 0.02 /s, by 31%. A curve of constant h drawn through the samples hides that, so
+    # the drift is read from the samples' own swept area; without drag the same track keeps h.
+    from forcefit.dynamics.propagate import Drag
+
+    options = {"exponent": 1.0, "velocity": (0.0, 0.6), "duration": 3 * 2 * math.pi, "rate": 20.0,
+               "noise": 1e-3, "rng": 3}
+    dragged = fit_shape(simulate_orbit(**options, drag=Drag("linear", 0.02)), centre=centre)
+    assert dragged.diagnostics["angular momentum"].passed is False
+    assert fit_shape(simulate_orbit(**options), centre=centre).diagnostics["angular momentum"].passed

@@ -12,6 +12,7 @@ from ..analysis.duality_check import check_duality
 from ..errors import ForcefitError, InputError
 from ..estimators import ESTIMATORS, LawFit, OrbitFit, fit_orbit, force_profile, registry
 from ..estimators.projected import fit_projected
+from ..geometry.path import describe_path
 from ..inference.comparison import compare_laws
 from ..outputs.report import write_report
 from ..reading.astrometry import load_astrometry
@@ -57,6 +58,9 @@ def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
                              "drop it or use --method orbit.")
         if method in SMOOTHING_METHODS:
             return registry.fit(track, method, centre=args.centre, smoothing=args.smoothing)
+        if args.report:                   # the report draws the force-curvature relation
+            path = describe_path(track, centre=args.centre, smoothing=args.smoothing)
+            return registry.fit(track, method, centre=args.centre, path=path)
         return registry.fit(track, method, centre=args.centre)
     return registry.fit(track, method, **orbit_options(args, track))
 

@@ -127,26 +127,28 @@ def _angular_momentum(track: Track, evaluation: Evaluation, sigma: FloatArray
     standard error, from the times.
 
     Along the fitted curve g(theta) = integral of r**2 dtheta grows as h t; a sample's
-    position error sigma across the path moves its g by r sigma. A line in t gives h; a
-    quadratic gives the drift dh/dt times the duration, over h, its error scaled by the
-    quadratic's own reduced chi-square (the along-path scatter is not sigma's business).
+    position error sigma across the path moves its g by r sigma. A line in t gives h. The
+    drift comes from the samples' own g (the trapezoids of r**2 over their polar angles: a
+    curve of constant h cannot show it when drag shrinks the path): a quadratic in t gives
+    dh/dt times the duration, over h, its error from the quadratic's own scatter.
     """
     if track.t is None:
         return math.nan, math.nan, math.nan, math.nan
     t = np.asarray(track.t) - float(np.mean(track.t))
     g, spread = evaluation.solution.swept, evaluation.radius * sigma
     line = fit_line(t, g, spread)
+    h, h_se = line.slope, math.sqrt(float(line.covariance[0, 0]))
+    if not h:
+        return h, h_se, math.nan, math.nan
+    square = evaluation.radius**2
+    swept = np.concatenate(([0.0], np.cumsum(0.5 * (square[1:] + square[:-1]) * np.diff(evaluation.theta))))
     scale = max(float(np.ptp(t)), 1e-300)
     design = np.column_stack((np.ones_like(t), t / scale, (t / scale) ** 2)) / spread[:, None]
-    quadratic, *_ = np.linalg.lstsq(design, g / spread, rcond=None)
-    misfit = g / spread - design @ quadratic
+    quadratic, *_ = np.linalg.lstsq(design, swept / spread, rcond=None)
+    misfit = swept / spread - design @ quadratic
     variance = float(misfit @ misfit) / max(t.size - 3, 1) * autocorrelation_time(misfit)
     curvature_se = math.sqrt(max(float(np.linalg.pinv(design.T @ design)[2, 2]) * variance, 0.0))
-    if not line.slope:
-        return line.slope, math.sqrt(float(line.covariance[0, 0])), math.nan, math.nan
-    drift = 2.0 * float(quadratic[2]) / scale / line.slope
-    return (line.slope, math.sqrt(float(line.covariance[0, 0])), drift,
-            abs(2.0 * curvature_se / scale / line.slope))
+    return h, h_se, 2.0 * float(quadratic[2]) / scale / h, abs(2.0 * curvature_se / scale / h)
 
 
 def _drift_spread(track: Track, solution: _Solution, covariance: FloatArray, sigma: FloatArray) -> float:
