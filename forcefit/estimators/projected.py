@@ -26,14 +26,13 @@ from ..errors import GeometryError, NotIdentifiable
 from ..geometry.noise import difference_noise
 from ..track import Track
 from ..units import is_sky_angle, velocity_scale
-from ._checks import chi_square_diagnostic
+from ._checks import chi_square_diagnostic, require_bend
 from ._projected_start import ProjectedStart, projected_starts
 from ._start import centre_candidates
 from .orbit import (
     MIN_SAMPLES,
     Loss,
     _epoch,
-    _require_bend,
     _residual_checks,
     _robust_spread,
     _Solution,
@@ -432,7 +431,7 @@ def fit_projected(
             "to spare. Add epochs.")
     noise = difference_noise(track)
     try:
-        _require_bend(track, noise)
+        require_bend(track, noise)
     except NotIdentifiable:
         raise NotIdentifiable(
             f"{track.label}: the positions lie along a line on the sky within their noise: an orbit "
