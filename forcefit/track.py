@@ -10,6 +10,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from numpy.typing import NDArray
 
 from ._types import FloatArray
 from .errors import InputError
@@ -65,6 +66,9 @@ class Track:
     metadata : mapping
         Anything else worth keeping: source file, detected columns, dropped rows,
         calibration, plane of a 3-D track, truth of a simulation.
+    source_rows : array_like of int, shape (n_points,), optional
+        The row of the source file each sample came from, as the loader counts them (1-based,
+        as a spreadsheet or an editor shows them); None when the track was not read from a file.
 
     Examples
     --------
@@ -82,6 +86,7 @@ class Track:
     time_unit: str = "s"
     name: str = "track"
     metadata: Mapping[str, Any] = field(default_factory=dict)
+    source_rows: NDArray[np.int64] | None = None
 
     def __post_init__(self) -> None:
         where = f"track {self.name!r}"
@@ -108,6 +113,31 @@ class Track:
         object.__setattr__(self, "length_unit", parse_length_unit(self.length_unit))
         object.__setattr__(self, "time_unit", parse_time_unit(self.time_unit))
         object.__setattr__(self, "metadata", MappingProxyType(dict(self.metadata)))
+        object.__setattr__(self, "source_rows", self._checked_rows(where))
+
+    def _checked_rows(self, where: str) -> NDArray[np.int64] | None:
+        if self.source_rows is None:
+            return None
+        rows = np.array(self.source_rows, dtype=np.int64)
+        if rows.shape != self.x.shape:
+            raise InputError(f"{where}: source_rows has {rows.size} values but x has {self.x.size}.")
+        rows.setflags(write=False)
+        return rows
+
+    def sample_label(self, index: int) -> str:
+        """How a message names one sample: its row in the source file and its time.
+
+        Examples
+        --------
+        >>> track = Track(t=[0.0, 0.5, 1.0], x=[0, 1, 2], y=[0, 1, 0], source_rows=[4, 5, 7])
+        >>> track.sample_label(2), Track(x=[0, 1, 2], y=[0, 1, 0]).sample_label(1)
+        ('row 7 (t = 1 s)', 'sample 2 of 3')
+        """
+        where = (f"row {int(self.source_rows[index])}" if self.source_rows is not None
+                 else f"sample {index + 1} of {self.n_points}")
+        if self.t is None:
+            return where
+        return f"{where} (t = {float(self.t[index]):.12g} {self.time_unit})"
 
     def _checked_times(self, where: str) -> FloatArray | None:
         if self.t is None:
@@ -190,6 +220,7 @@ class Track:
             "y": self.y[index],
             "t": None if self.t is None else self.t[index],
             "sigma": None if self.sigma is None else self.sigma[index],
+            "source_rows": None if self.source_rows is None else self.source_rows[index],
         }
         return replace(self, **picked)
 

@@ -220,29 +220,3 @@ def strength_per_h2_unit(length_unit: str, exponent: float) -> str:
     if not math.isfinite(exponent):
         return f"{length_unit}^(-3-n)"
     return _power(length_unit, -3.0 - exponent) or "1"
-
-
-def format_measurement(value: float, stderr: float | None = None, unit: str = "") -> str:
-    """A value with its standard error and unit, rounded to the error's two digits.
-
-    Examples
-    --------
-    >>> format_measurement(1.30843, 0.00213, "s^-2")
-    '1.3084 ± 0.0021 s^-2'
-    >>> format_measurement(0.25, None, "m")
-    '0.25 m'
-    >>> format_measurement(2.9591e-4, 1.2e-9, "au^3 d^-2")
-    '(2.959100 ± 0.000012)e-04 au^3 d^-2'
-    """
-    suffix = f" {unit}" if unit else ""
-    if not math.isfinite(value):
-        return f"{value}{suffix}"
-    if stderr is None or not math.isfinite(stderr) or stderr <= 0:
-        return f"{value:.6g}{suffix}"
-    decimals = max(0, 1 - math.floor(math.log10(stderr)))
-    if decimals <= 12 and 1e-3 <= abs(value) < 1e6 or decimals <= 6 and abs(value) < 1e6:
-        return f"{value:.{decimals}f} ± {stderr:.{decimals}f}{suffix}"
-    power = math.floor(math.log10(max(abs(value), stderr)))
-    digits = max(0, power + 1 - math.floor(math.log10(stderr)))
-    scale = 10.0**power
-    return f"({value / scale:.{digits}f} ± {stderr / scale:.{digits}f})e{power:+03d}{suffix}"

@@ -199,3 +199,21 @@ def test_dual_and_plan_commands(tmp_path, capsys):
                  "--rate", "30", "--noise", "0.001", "--target", "1e-4", "--json"]) == 0
     plan = json.loads(capsys.readouterr().out)
     assert 0 < plan["exponent_stderr"] < 1e-3 and plan["needs"]["duration"] > 30
+
+
+@pytest.mark.parametrize(("content", "expected"), [
+    ("temps (s);abscisse (px);ordonnée (px);luminosité\n0,0;100,0;50,0;3\n0,1;101,0;51,0;3\n"
+     "0,2;102,5;53,0;3\n0,3;103,0;55,5;3\n",
+     ("t: temps (s), x: abscisse (px), y: ordonnée (px)", "length px (header), time s (header)")),
+    ("Bild;Zeit [ms];x-Position [mm];y-Position [mm]\n1;0;10,0;5,0\n2;40;11,0;5,5\n3;80;12,5;6,2\n"
+     "4;120;13,0;7,5\n",
+     ("t: Zeit [ms], x: x-Position [mm], y: y-Position [mm]", "length mm (header), time ms (header)")),
+], ids=["french", "german"])
+def test_inspect_finds_t_x_y_and_their_units_in_french_and_german_headers(tmp_path, capsys, content,
+                                                                          expected):
+    # issue 15, "Done when": inspect on a French and a German header finds t, x, y and their units
+    path = tmp_path / "export.csv"
+    path.write_text(content, encoding="utf-8")
+    assert main(["inspect", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert expected[0] in out and expected[1] in out

@@ -2,11 +2,14 @@
 
 Edge cases found in review of issue #2: each once gave a wrong number or a raw trace."""
 
+import warnings
+
 import numpy as np
 import pandas as pd
 import pytest
 
-from forcefit.errors import InputError
+from forcefit.errors import ForcefitWarning, InputError
+from forcefit.reading.columns import classify
 from forcefit.reading.loaders import load_track, load_tracks
 
 
@@ -54,3 +57,72 @@ def test_odd_header_units_and_integer_column_names(write):
     assert track.n_points == 3
     with pytest.raises(InputError, match="table is empty"):
         load_track(pd.DataFrame())
+
+
+# Issue 15, "Columns": headers in the languages a lab is likely to use, Julian dates, date-times,
+# the columns left unused, a title line above the header, fix-it examples in the CLI's syntax.
+
+@pytest.mark.parametrize(("header", "role", "unit"), [
+    ("Bild", "frame", None), ("JDTDB", "t", None), ("JD_TDB", "t", None), ("BJD", "t", None),
+    ("MJD", "t", None), ("JD (TDB)", "t", None), ("temps (s)", "t", "s"), ("tiempo", "t", None),
+    ("Zeit [ms]", "t", "ms"), ("tempo (s)", "t", "s"), ("posición x", "x", None),
+    ("Posição Y (mm)", "y", "mm"), ("posizione_x [px]", "x", "px"), ("x-Position [mm]", "x", "mm"),
+    ("abscisse (px)", "x", "px"), ("ordonnée (px)", "y", "px"), ("cuadro", "frame", None),
+    ("image", "frame", None), ("fotogramma", "frame", None),
+])
+def test_headers_of_many_languages_are_recognised(header, role, unit):
+    column = classify(header)
+    assert column is not None and (column.role, column.unit) == (role, unit)
+
+
+def test_a_julian_date_column_is_read_in_days(write):
+    text = "JDTDB,x [au],y [au]\n" + "\n".join(
+        f"{2460000.5 + d},{np.cos(d / 30)},{np.sin(d / 30)}" for d in range(0, 40, 4))
+    track = load_track(write("asteroid.csv", text))
+    assert track.time_unit == "d" and track.t[1] - track.t[0] == pytest.approx(4.0)
+    assert track.metadata["units_from"]["time"] == "header (Julian date)"
+
+
+def test_iso_date_times_become_seconds_from_the_first(write):
+    text = ("time,x [mm],y [mm]\n2026-03-05 14:02:03.000,1,0\n2026-03-05 14:02:03.040,0,1\n"
+            "2026-03-05T14:02:03.080,-1,0\n2026-03-05 14:02:04.000,0,-1\n")
+    track = load_track(write("phone.csv", text))
+    np.testing.assert_allclose(track.t, [0.0, 0.04, 0.08, 1.0])
+    assert track.time_unit == "s" and track.metadata["time_origin"].startswith("2026-03-05T14:02:03")
+
+
+def test_unrecognised_columns_are_listed_and_a_missing_time_column_is_not_silent(write):
+    text = "tiemp0,pos x [px],pos y [px],brillo\n" + "\n".join(
+        f"{t / 10},{np.cos(t)},{np.sin(t)},7" for t in range(6))
+    with pytest.warns(ForcefitWarning, match='no time column was recognised.*--column t="tiemp0"'):
+        track = load_track(write("run.csv", text))
+    assert track.t is None
+    assert track.metadata["unrecognised_columns"] == ["tiemp0", "brillo"]
+
+
+def test_a_title_line_above_the_header_is_skipped_with_a_note(write):
+    text = "object: bob 1\nt [s],x [mm],y [mm]\n" + "\n".join(
+        f"{t / 10},{np.cos(t)},{np.sin(t)}" for t in range(6))
+    with pytest.warns(ForcefitWarning, match="title.*object: bob 1"):
+        track = load_track(write("titled.csv", text))
+    assert track.n_points == 6 and track.metadata["columns"]["x"] == "x [mm]"
+    assert track.source_rows.tolist() == [3, 4, 5, 6, 7, 8]
+
+
+def test_fix_it_examples_use_the_command_line_and_a_plausible_column(write):
+    text = "tiempo (s),horizontal,vertical\n0,1,0\n1,0,1\n2,-1,0\n"
+    with pytest.raises(InputError, match='found no x column') as caught:
+        load_track(write("es.csv", text))
+    message = str(caught.value)
+    assert '--column x="horizontal"' in message and 'x="tiempo (s)"' not in message
+
+
+def test_a_column_named_on_the_command_line_keeps_the_unit_its_header_states(write):
+    text = "temps (s),abscisse (px),vertical (px)\n0,100,50\n0.1,101,52\n0.2,103,55\n"
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", ForcefitWarning)          # no false "no length unit" note
+        track = load_track(write("fr.csv", text), y="vertical (px)")
+    assert track.length_unit == "px" and track.metadata["units_from"]["length"] == "header"
+    track = load_track(write("fr2.csv", text.replace("abscisse", "colonne A")), x="colonne A (px)",
+                       y="vertical (px)")
+    assert track.length_unit == "px"

@@ -5,7 +5,9 @@ import json
 import numpy as np
 import pytest
 
+from forcefit.errors import ForcefitWarning
 from forcefit.reading.inspection import inspect_track, second_difference_noise, turns_about_middle
+from forcefit.reading.loaders import load_track
 from forcefit.track import Track
 
 
@@ -44,3 +46,15 @@ def test_text_and_json_say_the_same():
     assert report["n_points"] == 1000 and report["time_unit"] == "s" and report["n_gaps"] == 0
     shape_only = inspect_track(_two_turns().shape_only())
     assert "none (shape-only path)" in shape_only.to_text() and shape_only.to_dict()["duration"] is None
+
+
+def test_dropped_rows_and_unused_columns_are_named(write):
+    # issue 15: "1 rows dropped" without saying which row; unrecognised columns dropped silently
+    text = "t [s],x [mm],y [mm],Kommentar\n" + "\n".join(
+        f"{t / 10},{'' if t == 4 else np.cos(t)},{np.sin(t)},ok" for t in range(8))
+    with pytest.warns(ForcefitWarning):
+        track = load_track(write("run.csv", text))
+    text = inspect_track(track).to_text()
+    assert "1 row left out for empty cells: row 6" in text
+    assert 'not used  "Kommentar" (not recognised)' in text
+    assert "units     length mm (header), time s (header)" in text

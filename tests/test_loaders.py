@@ -239,7 +239,7 @@ def test_sigma_in_its_own_unit_is_converted_even_when_the_length_unit_is_given(w
     track = load_track(write("sig.csv", text), length_unit="m")
     np.testing.assert_allclose(track.sigma, 0.001)
     with pytest.raises(InputError, match=r'column "sigma \[mm\]".*calibration'):
-        load_track(write("sig2.csv", text), length_unit="px")
+        load_track(write("sig2.csv", text), length_unit="px", force_units=True)
 
 
 
@@ -260,3 +260,29 @@ def test_too_few_rows_names_the_emptiest_column(write):
     text = "t [s],x [m],y [m],sigma [m]\n" + "\n".join(f"{t},{np.cos(t)},{np.sin(t)}," for t in range(6))
     with pytest.raises(InputError, match='column "sigma \\[m\\]" has 6 empty cells'):
         load_track(write("empty_sigma.csv", text))
+
+
+# Issue 15, "Units": a unit the header states wins over an option, which fills in where the header
+# is silent, unless force_units says otherwise; the note says which was used.
+
+def test_a_header_unit_wins_over_a_given_one_and_says_so(write):
+    path = write("run_mm.csv", _csv(",", header=("t [s]", "x [mm]", "y [mm]")))
+    with pytest.warns(ForcefitWarning, match="header says mm.*so mm is used.*--force-units"):
+        track = load_track(path, length_unit="px")
+    _check(track, length_unit="mm")
+    with pytest.warns(ForcefitWarning, match="using px"):
+        forced = load_track(path, length_unit="px", force_units=True)
+    _check(forced, length_unit="px")
+    assert forced.metadata["units_from"]["length"] == "given (forced over the header)"
+    silent = load_track(write("run_silent.csv", _csv(",", header=("t", "x", "y"))), length_unit="px",
+                        time_unit="ms")
+    _check(silent, length_unit="px", time_unit="ms")
+
+
+def test_rows_left_out_for_empty_cells_are_named_with_their_time(write):
+    lines = _csv(",").splitlines()
+    lines[14] = f"{T[13]},nan,{Y[13]}"
+    with pytest.warns(ForcefitWarning, match=r"1 row left out.*row 15 \(empty: x \[px\]; t \[s\] = 1\.3\)"):
+        track = load_track(write("run.csv", "\n".join(lines)))
+    assert track.metadata["dropped_row_numbers"] == [15]
+    assert 15 not in track.source_rows and track.source_rows[13] == 16

@@ -9,7 +9,7 @@ import pytest
 
 from forcefit.dynamics.propagate import Drag
 from forcefit.dynamics.simulate import simulate_orbit
-from forcefit.errors import NotIdentifiable
+from forcefit.errors import ForcefitWarning, NotIdentifiable
 from forcefit.estimators import fit_orbit
 from forcefit.reading.loaders import load_track
 from forcefit.track import Track
@@ -45,7 +45,23 @@ def test_robust_loss_shrugs_off_tracking_glitches():
     assert abs(robust.exponent + 1.5) < 2 * robust.exponent_stderr
     message = plain.diagnostics["outliers"].message
     assert plain.diagnostics["outliers"].passed is False
-    assert all(str(index) in message for index in sorted(planted)[:5])
+    assert all(f"sample {index + 1} of {track.n_points} (t = " in message for index in sorted(planted)[:5])
+
+
+def test_outliers_are_named_by_the_files_row_and_time(tmp_path):
+    # issue 15: outliers were reported as 0-based "sample N", not as the file's row and time
+    track = simulate_orbit(exponent=1.0, strength=4.0, duration=8.0, rate=40.0, noise=0.001, rng=4)
+    x = track.x.copy()
+    x[57] += 0.08                                                  # a tracking glitch, 80 sigma
+    lines = ["object: puck 7", "t [s],x [m],y [m]"] + [
+        f"{t:.4f},{a:.6f},{b:.6f}" for t, a, b in zip(track.t, x, track.y)]
+    path = tmp_path / "puck_07.csv"
+    path.write_text("\n".join(lines) + "\n")
+    with pytest.warns(ForcefitWarning, match="title"):
+        loaded = load_track(path)
+    message = fit_orbit(loaded).diagnostics["outliers"].message
+    assert "row 60 (t = 1.425 s)" in message                     # title, header, then sample 57
+    assert "sample 57" not in message
 
 
 def test_three_launches_fitted_jointly():

@@ -84,7 +84,7 @@ def test_the_class_page_lists_every_run(tmp_path):
     page = write_class_report(rows, tmp_path, expect=1.0, tolerance=0.05, strength=4.0875,
                               strength_tolerance=0.03, strength_unit="s^-2", title="week 3")
     cells = _cells(page)
-    # two significant digits of the error (format_measurement)
+    # two significant digits of the error (forcefit.formatting.measurement)
     assert "run_a" in cells and "1.010 ± 0.020" in cells and "4.10 ± 0.10 s^-2" in cells
     assert "load error: row 3" in cells and (tmp_path / "exponents.png").exists()
 
@@ -95,12 +95,12 @@ def test_a_failed_fit_is_marked_in_every_output(screened, tmp_path, capsys):
     save_track(track, path)
     fit = fit_orbit(track)
     assert not fit.passed
-    assert "[FAIL]" in fit.to_text()
+    assert "✗ " in fit.to_text() and "[FAIL]" not in fit.to_text()
     assert fit.to_dict()["passed"] is False
     page = write_report(fit, tmp_path / "report", track=track)
     assert "CHECKS FAILED" in page.read_text()
     assert main(["fit", str(path)]) == 1
-    assert "[FAIL]" in capsys.readouterr().out
+    assert "✗ " in capsys.readouterr().out
     assert main(["fit", str(path), "--json"]) == 1
     assert json.loads(capsys.readouterr().out)[0]["passed"] is False
 

@@ -2,7 +2,6 @@ import pytest
 
 from forcefit.errors import InputError
 from forcefit.units import (
-    format_measurement,
     length_factor,
     parse_length_unit,
     parse_time_unit,
@@ -54,8 +53,3 @@ def test_time_unit_aliases():
 def test_strength_unit_is_length_to_one_minus_n_over_time_squared(exponent, expected):
     # Dimensional analysis of F = k r^n (common practice).
     assert strength_unit("m", "s", exponent) == expected
-
-
-def test_format_measurement_rounds_to_the_error():
-    assert format_measurement(-2.000123, 0.00046, "") == "-2.00012 ± 0.00046"
-    assert format_measurement(2.9591e-4, 1.2e-9, "au^3 d^-2") == "(2.959100 ± 0.000012)e-04 au^3 d^-2"

@@ -27,7 +27,8 @@ import pandas as pd
 
 from .._atomic import write_atomic
 from ..errors import FitError, ForcefitError, InputError, NotIdentifiable
-from ..units import format_measurement, strength_unit
+from ..formatting import measurement
+from ..units import strength_unit
 
 RUN_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".json", ".xlsx", ".parquet")
 RESULTS = "results.csv"
@@ -121,14 +122,14 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
         reasons.append(f"too short: covers {turns:.2f} turns, at least {rule.min_turns:g} needed")
     if abs(fit.exponent - rule.expect) > rule.tolerance:
         reasons.append(f"exponent outside tolerance: n = "
-                       f"{format_measurement(fit.exponent, fit.exponent_stderr)}, expected "
+                       f"{measurement(fit.exponent, fit.exponent_stderr)}, expected "
                        f"{rule.expect:g} ± {rule.tolerance:g}")
     k, k_error = fit.strength_at_exponent(rule.expect)
     unit = strength_unit(fit.length_unit, fit.time_unit or "T", rule.expect)
     if rule.strength is not None:
         relative = abs(k / rule.strength - 1.0) if math.isfinite(k) else math.inf
         if relative > (rule.strength_tolerance or 0.0):
-            reasons.append(f"strength outside tolerance: k = {format_measurement(k, k_error, unit)}, "
+            reasons.append(f"strength outside tolerance: k = {measurement(k, k_error, unit)}, "
                            f"expected {rule.strength:.6g} {unit} ± {100 * (rule.strength_tolerance or 0):g}%")
     row = _row(path, name, passed=not reasons, reason="; ".join(reasons), exponent=fit.exponent,
                exponent_stderr=fit.exponent_stderr, strength_at_expected=k,

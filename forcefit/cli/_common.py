@@ -65,8 +65,12 @@ def loading_options() -> argparse.ArgumentParser:
     group = parent.add_argument_group("reading the file")
     group.add_argument("--column", type=column, action="append", default=[], metavar="ROLE=NAME",
                        help="use column NAME for ROLE (t, x, y, z, sigma, frame, id); repeatable")
-    group.add_argument("--length-unit", help="unit of the raw positions (px, mm, m, au, ...)")
-    group.add_argument("--time-unit", help="unit of the times (s, ms, d, ...)")
+    group.add_argument("--length-unit",
+                       help="unit of the raw positions (px, mm, m, au, ...) where the header states none")
+    group.add_argument("--time-unit", help="unit of the times (s, ms, d, ...) where the header states none")
+    group.add_argument("--force-units", action="store_true",
+                       help="use --length-unit and --time-unit even where a header states another "
+                            "unit (by default the header wins and a note says so)")
     group.add_argument("--frame-rate", type=float,
                        help="frames per second, to turn a frame column into times")
     group.add_argument("--track-id", help="with an id column: the one track to use")
@@ -115,7 +119,7 @@ def loading_keywords(args: argparse.Namespace) -> dict[str, object]:
     return {**dict(args.column), "length_unit": args.length_unit, "time_unit": args.time_unit,
             "frame_rate": args.frame_rate, "calibration": _calibration(args), "sheet": sheet,
             "track_id": args.track_id, "plane_mapping": plane_mapping(args),
-            "video": tracking_keywords(args)}
+            "video": tracking_keywords(args), "force_units": args.force_units}
 
 
 def read_tracks(path: str, args: argparse.Namespace) -> list[Track]:
@@ -152,7 +156,7 @@ class Reports:
 def add_centre_option(parser: argparse.ArgumentParser,
                       help: str = "the force centre, if known (default: found from the data)") -> None:
     """``--centre X,Y``."""
-    parser.add_argument("--centre", type=pair, metavar="X,Y", help=help)
+    parser.add_argument("--centre", "--center", dest="centre", type=pair, metavar="X,Y", help=help)
 
 
 def add_orbit_options(parser: argparse.ArgumentParser) -> None:

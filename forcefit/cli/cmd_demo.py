@@ -13,12 +13,12 @@ from ..apps.grading import GradingRule, grade_runs
 from ..errors import ForcefitError, ForcefitWarning
 from ..estimators import fit_curvature, fit_orbit, fit_shape
 from ..estimators.result import LawFit
+from ..formatting import measurement
 from ..geometry.path import describe_path
 from ..inference.posterior import sample_posterior
 from ..reading.inspection import inspect_track
 from ..reading.video import is_video
 from ..track import Track
-from ..units import format_measurement
 from ._camera import camera_lines
 from ._common import EXIT_OK
 
@@ -61,7 +61,7 @@ def _grade_class(dataset: DemoDataset, out: str) -> None:
           f"{100 * (rule.strength_tolerance or 0):g}% of {rule.strength:.5g} {expected['strength_unit']}")
     frame = grade_runs(list(dataset.paths), rule, out, title="pendulum lab (demo class set)")
     for row in frame.to_dict("records"):
-        exponent = (format_measurement(row["exponent"], row["exponent_stderr"])
+        exponent = (measurement(row["exponent"], row["exponent_stderr"])
                     if math.isfinite(row["exponent"]) else "—")
         print(f"   {row['run']:<8} {'pass' if row['passed'] else 'FAIL'}  n = {exponent:<20} "
               f"{row['reason']}")
@@ -87,7 +87,7 @@ def _demo_track(track: Track, options: dict[str, Any]) -> None:
     print("  time-free estimators, for comparison:")
     for method, estimator in (("shape", fit_shape), ("curvature", fit_curvature)):
         other = estimator(track, centre=centre, path=path)
-        print(f"    {method:<10} n = {format_measurement(other.exponent, other.exponent_stderr):<24}"
+        print(f"    {method:<10} n = {measurement(other.exponent, other.exponent_stderr):<24}"
               f" {_failed(other)}")
 
 

@@ -113,7 +113,11 @@ def _leg(
             "give the body more angular momentum or a shorter duration."
         )
     if solution.status != 0:
-        raise InputError(f"the orbit could not be integrated: {solution.message}")
+        reached = float(solution.t[-1]) if solution.t.size else epoch
+        raise InputError(
+            f"the orbit could not be integrated past t = {reached:.6g}: the integrator's step "
+            "shrank to nothing there. Check the law's parameters and the start."
+        )
     return solution.y
 
 

@@ -389,8 +389,20 @@ def _turns(model: OrbitModel, vector: FloatArray) -> float:
     return total
 
 
+def _sample_names(tracks: tuple[Track, ...], indices: np.ndarray) -> str:
+    """The samples at ``indices`` of the stacked tracks, named by their rows in the source file
+    and their times (and the track, when several were fitted together)."""
+    starts = np.cumsum([0] + [track.n_points for track in tracks])
+    names = []
+    for index in indices:
+        j = int(np.searchsorted(starts, index, side="right")) - 1
+        label = tracks[j].sample_label(int(index - starts[j]))
+        names.append(f"{tracks[j].name} {label}" if len(tracks) > 1 else label)
+    return ", ".join(names)
+
+
 def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss,
-                     correlation_time: float) -> dict[str, Diagnostic]:
+                     correlation_time: float, tracks: tuple[Track, ...]) -> dict[str, Diagnostic]:
     checks = {"residuals": runs_diagnostic(radial)}
     normalised = radial / sigma
     centred = normalised - normalised.mean()
@@ -408,12 +420,12 @@ def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss,
     spread = 1.4826 * float(np.median(np.abs(normalised - np.median(normalised))))
     outliers = np.flatnonzero(np.abs(normalised - np.median(normalised)) > OUTLIER_Z * spread)
     if outliers.size:
-        listed = ", ".join(map(str, outliers[:12])) + (" ..." if outliers.size > 12 else "")
+        listed = _sample_names(tracks, outliers[:12]) + (" ..." if outliers.size > 12 else "")
         verdict = None if loss != "linear" else False
         advice = "down-weighted by the robust loss" if loss != "linear" else (
             "refit with a robust loss (--robust) or remove them")
         checks["outliers"] = Diagnostic(verdict, f"{outliers.size} samples lie beyond {OUTLIER_Z:g} "
-                                                 f"robust standard deviations (sample {listed}); {advice}.")
+                                                 f"robust standard deviations: {listed}; {advice}.")
     else:
         checks["outliers"] = Diagnostic(True, f"no sample beyond {OUTLIER_Z:g} robust standard deviations.")
     return checks
@@ -421,9 +433,10 @@ def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss,
 
 def _fit_checks(
     solution: _Solution, radial: FloatArray, sigma: FloatArray, sigma_known: bool, loss: Loss,
-    reduced: float, dof: int, noise: float, turns: float, length_unit: str,
+    reduced: float, dof: int, noise: float, turns: float, tracks: tuple[Track, ...],
 ) -> dict[str, Diagnostic]:
     """The orbit fit's checks: convergence, chi-square (known sigma), residuals, noise, coverage."""
+    length_unit = tracks[0].length_unit
     if solution.success:
         converged = Diagnostic(True, f"the least-squares fit settled after {solution.evaluations} "
                                      "evaluations of the orbit.")
@@ -434,7 +447,7 @@ def _fit_checks(
     diagnostics = {"convergence": converged}
     if sigma_known:
         diagnostics["chi-square"] = chi_square_diagnostic(reduced, dof)
-    diagnostics.update(_residual_checks(radial, sigma, loss, solution.correlation_time))
+    diagnostics.update(_residual_checks(radial, sigma, loss, solution.correlation_time, tracks))
     diagnostics["noise"] = Diagnostic(None, (f"sigma as given (median {noise:.3g} {length_unit})"
                                              if sigma_known else
                                              f"fitted noise level {noise:.3g} {length_unit}"))
@@ -471,7 +484,7 @@ def _law_fit(
     reduced = chi2 / dof
     turns = _turns(model, vector)
     diagnostics = _fit_checks(solution, radial, sigma, sigma_known, loss, reduced, dof, noise, turns,
-                              tracks[0].length_unit)
+                              tracks)
     with np.errstate(all="ignore"):
         derived = (strength, strength * log_k_se, float(np.float64(strength) / h**2),
                    float(np.exp(log_force)))

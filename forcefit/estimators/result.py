@@ -19,7 +19,8 @@ from .._json import json_safe
 from .._types import FloatArray, Row, frozen_array
 from ..dynamics.orbit_model import OrbitModel
 from ..dynamics.sky import ProjectedOrbitModel
-from ..units import format_measurement, strength_per_h2_unit, strength_unit
+from ..formatting import CHECK_MARKS, matched, measurement
+from ..units import strength_per_h2_unit, strength_unit
 
 NAN = float("nan")
 
@@ -155,8 +156,11 @@ class LawFit:
 
     @property
     def strength_unit(self) -> str:
-        """Unit of k for this exponent, e.g. ``"s^-2"`` for n = 1 in any length unit."""
-        return strength_unit(self.length_unit, self.time_unit or "T", self.exponent)
+        """Unit of k for this exponent, e.g. ``"s^-2"`` for n = 1 in any length unit; "" for a
+        shape-only fit, whose k is not determined."""
+        if self.time_unit is None:
+            return ""
+        return strength_unit(self.length_unit, self.time_unit, self.exponent)
 
     def strength_at_exponent(self, exponent: float) -> tuple[float, float]:
         """The strength k0 of a law with exponent n0 giving the fitted force at the reference
@@ -182,30 +186,30 @@ class LawFit:
     def rows(self) -> list[Row]:
         """The fitted law as table rows with units: the brief ones for the text, all for a report."""
         length, time = self.length_unit, self.time_unit or ""
-        strength = (Row("strength k", format_measurement(self.strength, self.strength_stderr),
+        strength = (Row("strength k", measurement(self.strength, self.strength_stderr),
                         self.strength_unit) if math.isfinite(self.strength)
                     else Row("strength k", "not determined (no timestamps)"))
         rows = [
-            Row("exponent n", format_measurement(self.exponent, self.exponent_stderr)),
+            Row("exponent n", measurement(self.exponent, self.exponent_stderr)),
             strength,
-            Row("k / h^2", format_measurement(self.strength_per_h2, self.strength_per_h2_stderr),
+            Row("k / h^2", measurement(self.strength_per_h2, self.strength_per_h2_stderr),
                 strength_per_h2_unit(length, self.exponent)),
-            Row("reference radius r_ref", format_measurement(self.reference_radius), length, brief=False),
-            Row("force |F| at r_ref", format_measurement(self.force_at_reference,
-                                                         self.force_at_reference_stderr),
-                f"{length} {time}^-2", brief=False),
-            Row("centre x", format_measurement(self.centre[0], self.centre_stderr[0]), length),
-            Row("centre y", format_measurement(self.centre[1], self.centre_stderr[1]), length),
+            Row("reference radius r_ref", measurement(self.reference_radius), length, brief=False),
+            Row("force |F| at r_ref", measurement(self.force_at_reference,
+                                                  self.force_at_reference_stderr),
+                f"{length} {time}^-2" if time else "", brief=False),
+            Row("centre x", measurement(self.centre[0], self.centre_stderr[0]), length),
+            Row("centre y", measurement(self.centre[1], self.centre_stderr[1]), length),
             Row("chi-square", f"{self.chi2:.6g}", brief=False),
             Row("points used", str(self.n_points)),
             Row("reduced chi2", f"{self.reduced_chi2:.3g}"),
         ]
-        nominal = round(self.exponent)
-        if math.isfinite(self.force_at_reference) and abs(self.exponent - nominal) > 1e-12:
+        nominal = round(self.exponent) if math.isfinite(self.exponent) else 0
+        if self.time_unit and math.isfinite(self.force_at_reference) and abs(self.exponent - nominal) > 1e-12:
             value, error = self.strength_at_exponent(nominal)
             rows.insert(2, Row(f"k for n = {nominal} (same force at r_ref)",
-                               format_measurement(value, error),
-                               strength_unit(length, self.time_unit or "T", nominal), brief=False))
+                               measurement(value, error),
+                               strength_unit(length, self.time_unit, nominal), brief=False))
         return rows + self._extra_rows()
 
     def _extra_rows(self) -> list[Row]:
@@ -218,13 +222,18 @@ class LawFit:
         width = max(len(row.label) for row in rows)
         lines = [f"{self.track_name} — {self.method} fit of F = -k r^n"]
         lines += [f"  {row.label:<{width}}  {row.text}" for row in rows]
-        for name, check in self.diagnostics.items():
-            mark = {True: "ok  ", False: "FAIL", None: "note"}[check.passed]
-            lines.append(f"  [{mark}] {name}: {check.message}")
+        if self.diagnostics:
+            lines.append(f"  checks ({CHECK_MARKS[True]} holds, {CHECK_MARKS[False]} fails, "
+                         f"{CHECK_MARKS[None]} note):")
+            name_width = max(len(name) for name in self.diagnostics)
+            lines += [f"    {CHECK_MARKS[check.passed]} {name:<{name_width}}  {check.message}"
+                      for name, check in self.diagnostics.items()]
         for other in self.alternatives:
+            centre = ", ".join(matched(value, error)
+                               for value, error in zip(other.centre, other.centre_stderr))
             lines.append(
-                f"  also consistent: n = {format_measurement(other.exponent, other.exponent_stderr)}"
-                f" about ({other.centre[0]:.6g}, {other.centre[1]:.6g}) {self.length_unit}"
+                f"  also consistent: n = {measurement(other.exponent, other.exponent_stderr)}"
+                f" about ({centre}) {self.length_unit}"
             )
         return "\n".join(lines)
 
@@ -479,7 +488,7 @@ class OrbitFit(LawFit):
             if self.model.extra.yukawa is not None:
                 label = f"Yukawa strength alpha (range {self.model.extra.yukawa.length:.6g} {length})"
                 rows.append(Row(label, _measurement(self.yukawa_strength, self.yukawa_strength_stderr)))
-        rows.append(Row("noise", format_measurement(self.noise), length, brief=False))
+        rows.append(Row("noise", measurement(self.noise), length, brief=False))
         if self.correlation_time > 1.0:
             white = self.white_stderrs.get("exponent", NAN)
             rows.append(Row("errors widened", f"x{math.sqrt(self.correlation_time):.3g}: the residuals stay "
@@ -506,7 +515,7 @@ class OrbitFit(LawFit):
 
 
 def _measurement(value: float, stderr: float) -> str:
-    return format_measurement(value, stderr if math.isfinite(stderr) else None)
+    return measurement(value, stderr if math.isfinite(stderr) else None)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -628,7 +637,7 @@ class ProjectedFit(LawFit):
             if math.isfinite(self.elements.get(name, NAN)):
                 rows.append(Row(name.replace("_", " "),
                                 _measurement(self.elements[name], self.elements_stderr.get(name, NAN)), unit))
-        rows.append(Row("noise", format_measurement(self.noise), length, brief=False))
+        rows.append(Row("noise", measurement(self.noise), length, brief=False))
         if self.correlation_time > 1.0:
             white = self.white_stderrs.get("exponent", NAN)
             rows.append(Row("errors widened", f"x{math.sqrt(self.correlation_time):.3g}: the residuals stay "

@@ -25,9 +25,9 @@ from .._atomic import write_atomic
 from .._version import __version__
 from ..analysis.apsides import Apsides
 from ..estimators.result import LawFit, OrbitFit
+from ..formatting import measurement
 from ..inference.posterior import Posterior
 from ..track import Track
-from ..units import format_measurement
 from .figures import (
     apsides_figure,
     corner_figure,
@@ -180,8 +180,8 @@ def write_class_report(
         runs.append({
             "name": row["run"], "report": row.get("report") or "",
             "grade": "pass" if row["passed"] else "fail", "mark": "pass" if row["passed"] else "fail",
-            "exponent": format_measurement(exponent, error) if math.isfinite(exponent) else "—",
-            "strength": format_measurement(k, k_error, strength_unit) if math.isfinite(k) else "—",
+            "exponent": measurement(exponent, error) if math.isfinite(exponent) else "—",
+            "strength": measurement(k, k_error, strength_unit) if math.isfinite(k) else "—",
             "reason": row.get("reason", ""),
         })
     html = _environment().get_template("class.html.j2").render(

@@ -10,6 +10,7 @@ import numpy as np
 
 from .._json import json_safe
 from .._types import FloatArray, Row
+from ..formatting import plain
 from ..track import Track
 
 GAP_FACTOR = 1.5
@@ -45,6 +46,11 @@ class TrackSummary:
     plane_normal: tuple[float, ...] | None = None
     calibration: dict[str, Any] | None = None
     warnings: tuple[str, ...] = ()
+    units_from: dict[str, str] = field(default_factory=dict)
+    unused_columns: tuple[str, ...] = ()
+    unrecognised_columns: tuple[str, ...] = ()
+    dropped_row_numbers: tuple[int, ...] = ()
+    time_origin: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe form (nan becomes None)."""
@@ -53,23 +59,25 @@ class TrackSummary:
     def rows(self) -> list[Row]:
         """The facts as labelled text with units."""
         length, time = self.length_unit, self.time_unit or ""
-        rows = [("points", f"{self.n_points}" + (f"  ({self.dropped_rows} rows dropped: "
-                                                  "empty cells)" if self.dropped_rows else ""))]
+        rows = [("points", f"{self.n_points}" + (f"  ({self._dropped()})" if self.dropped_rows else ""))]
         if self.time_unit is None:
             rows.append(("times", "none (shape-only path)"))
         else:
+            if self.time_origin:
+                rows.append(("first time", self.time_origin))
             rows += [
-                ("duration", f"{self.duration:.6g} {time}"),
-                ("sampling", f"{self.sample_rate:.6g} per {time} "
-                             f"(median interval {self.sampling_interval:.4g} {time})"),
-                ("gaps", f"{self.n_gaps}" + (f" (largest {self.largest_gap:.4g} {time})"
+                ("duration", f"{plain(self.duration)} {time}"),
+                ("sampling", f"{plain(self.sample_rate)} per {time} "
+                             f"(median interval {plain(self.sampling_interval, 4)} {time})"),
+                ("gaps", f"{self.n_gaps}" + (f" (largest {plain(self.largest_gap, 4)} {time})"
                                              if self.n_gaps else "")),
             ]
         rows += [
             ("x range", f"{self.x_range[0]:.6g} to {self.x_range[1]:.6g} {length}"),
             ("y range", f"{self.y_range[0]:.6g} to {self.y_range[1]:.6g} {length}"),
             ("turns", f"{self.turns_about_middle:.2f} about the middle of the path"),
-            ("noise", f"{self.noise_estimate:.3g} {length} (estimated from the path)"),
+            ("noise", f"{plain(self.noise_estimate, 3)} {length} (estimated from the path)"
+                       if math.isfinite(self.noise_estimate) else "not estimated (fewer than 5 points)"),
         ]
         if math.isfinite(self.median_sigma):
             rows.append(("sigma", f"{self.median_sigma:.3g} {length} median, as given"))
@@ -82,7 +90,24 @@ class TrackSummary:
                                         f"{self.calibration['unit']} per raw unit"))
         rows.append(("columns", ", ".join(f"{role}: {header}" for role, header in
                                           self.columns.items()) or "given as arrays"))
+        if self.units_from:
+            rows.append(("units", f"length {length} ({self.units_from.get('length', '?')}), "
+                                  + (f"time {time} ({self.units_from.get('time', '?')})"
+                                     if self.time_unit else "no times")))
+        if self.unused_columns:
+            unknown = set(self.unrecognised_columns)
+            rows.append(("not used", ", ".join(
+                f'"{name}"' + (" (not recognised)" if name in unknown else "")
+                for name in self.unused_columns)))
         return [Row(label, value) for label, value in rows]
+
+    def _dropped(self) -> str:
+        """How many rows were left out for empty cells, and which."""
+        word = "row" if self.dropped_rows == 1 else "rows"
+        listed = ", ".join(map(str, self.dropped_row_numbers[:10]))
+        more = " ..." if self.dropped_rows > min(10, len(self.dropped_row_numbers)) else ""
+        where = f": {word} {listed}{more}" if listed else ""
+        return f"{self.dropped_rows} {word} left out for empty cells{where}"
 
     def to_text(self) -> str:
         """A short, unit-labelled table for the terminal."""
@@ -168,4 +193,20 @@ def inspect_track(track: Track) -> TrackSummary:
         plane_normal=tuple(plane["normal"]) if plane else None,
         calibration=meta.get("calibration"),
         warnings=tuple(meta.get("warnings", ())),
+        units_from=dict(meta.get("units_from", {})),
+        unused_columns=tuple(meta.get("unused_columns", ())),
+        unrecognised_columns=tuple(meta.get("unrecognised_columns", ())),
+        dropped_row_numbers=tuple(int(row) for row in meta.get("dropped_row_numbers", ())),
+        time_origin=_time_origin(track),
     )
+
+
+def _time_origin(track: Track) -> str | None:
+    """Where the times start, when they count from a date: a date-time column's first reading,
+    or a Julian date's first epoch."""
+    origin = track.metadata.get("time_origin")
+    if origin:
+        return f"{origin} (times count seconds from it)"
+    if track.t is not None and "Julian" in str(track.metadata.get("units_from", {}).get("time", "")):
+        return f"{float(track.t[0]):.12g} {track.time_unit} (Julian date of the first sample)"
+    return None

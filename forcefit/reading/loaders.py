@@ -21,7 +21,19 @@ from .._types import FloatArray
 from ..errors import ForcefitWarning, InputError
 from ..track import ABSURD, MIN_POINTS, Track
 from ..units import PIXEL, length_factor, parse_length_unit, parse_time_unit
-from .columns import DAY_COLUMNS, NUMERIC_ROLES, Column, map_columns, normalise, numbers, track_ids
+from .columns import (
+    DAY_COLUMNS,
+    NUMERIC_ROLES,
+    Column,
+    date_time_origin,
+    header_unit,
+    holds_clock_readings,
+    map_columns,
+    normalise,
+    numbers,
+    track_ids,
+    unused_columns,
+)
 from .coordinates import Calibration, project_to_plane
 from .inspection import second_difference_noise
 from .perspective import PlaneMapping
@@ -51,6 +63,7 @@ class _Options:
     calibration: Calibration | None
     name: str | None
     plane_mapping: PlaneMapping | None = None
+    force_units: bool = False
 
 
 def _unit_of(table: RawTable, column: Column, parse: Callable[[str], str]) -> str:
@@ -64,7 +77,11 @@ def _unit_of(table: RawTable, column: Column, parse: Callable[[str], str]) -> st
 def _units(
     table: RawTable, chosen: Mapping[str, Column], options: _Options, notes: list[str]
 ) -> dict[str, str]:
-    """Length and time units with where each came from ("given", "header", "default")."""
+    """Length and time units with where each came from ("header", "given", "default", ...).
+
+    A unit the header states wins over one given as an option, which only fills in where the
+    header is silent, unless ``force_units`` says the option wins; a note says which was used.
+    """
     header_units = {
         _unit_of(table, chosen[r], parse_length_unit) for r in ("x", "y", "z")
         if r in chosen and chosen[r].unit
@@ -74,26 +91,51 @@ def _units(
             f"{table.source}: the position columns are in different units "
             f"({', '.join(sorted(header_units))}). Convert them to one unit first."
         )
-    if options.length_unit is not None:
-        length, length_from = parse_length_unit(options.length_unit), "given"
-        if header_units and length not in header_units:
-            notes.append(f"the header says {header_units.pop()} but {length} was given; using {length}.")
-    elif header_units:
-        length, length_from = header_units.pop(), "header"
-    else:
-        length, length_from = "m", "default"
+    header_length = header_units.pop() if header_units else None
+    given_length = parse_length_unit(options.length_unit) if options.length_unit is not None else None
+    length, length_from = _choose("length", header_length, given_length, options.force_units, notes)
     time_column = chosen.get("t")
+    header_time: str | None = None
+    time_from_header = "header"
+    if time_column is not None and options.frame_rate is None:
+        name = header_unit(time_column.header)[0]
+        if time_column.unit:
+            header_time = _unit_of(table, time_column, parse_time_unit)
+        elif normalise(name) in DAY_COLUMNS:
+            header_time, time_from_header = "d", "header (Julian date)"
+        elif date_time_origin(table, time_column) is not None:
+            header_time, time_from_header = "s", "date-times"
+        elif holds_clock_readings(table, time_column):
+            header_time, time_from_header = "s", "clock readings"
+    given_time = parse_time_unit(options.time_unit) if options.time_unit is not None else None
     if options.frame_rate is not None:
         time, time_from = "s", "frame rate"
-    elif options.time_unit is not None:
-        time, time_from = parse_time_unit(options.time_unit), "given"
-    elif time_column is not None and time_column.unit:
-        time, time_from = _unit_of(table, time_column, parse_time_unit), "header"
-    elif time_column is not None and normalise(time_column.header) in DAY_COLUMNS:
-        time, time_from = "d", "header"
     else:
-        time, time_from = "s", "default"
+        time, time_from = _choose("time", header_time, given_time, options.force_units, notes)
+        if time_from == "header":
+            time_from = time_from_header
     return {"length": length, "length_from": length_from, "time": time, "time_from": time_from}
+
+
+def _choose(
+    kind: str, header: str | None, given: str | None, force: bool, notes: list[str]
+) -> tuple[str, str]:
+    """The unit to use and where it came from: the header's, else the given one, else the default."""
+    option = f"--{kind}-unit"
+    if header is not None and given is not None and header != given:
+        if force:
+            notes.append(f"the header says {header} but {given} was given with force_units "
+                         f"({option} with --force-units); using {given}.")
+            return given, "given (forced over the header)"
+        notes.append(f"the header says {header}; the {kind} unit given ({given}, {option}) fills in "
+                     f"only where a header is silent, so {header} is used. Give --force-units "
+                     f"(force_units=True) to use {given} instead.")
+        return header, "header"
+    if header is not None:
+        return header, "header"
+    if given is not None:
+        return given, "given"
+    return ("m" if kind == "length" else "s"), "default"
 
 
 def _times(
@@ -229,8 +271,12 @@ def _make_track(
     if not table.has_header:
         notes.append("no header: the columns were read by position as "
                      f"{', '.join(str(c) for c in table.frame.columns)}.")
+    if table.title_lines:
+        notes.append(f"the header is the line below the title ({'; '.join(table.title_lines)}); "
+                     "the title was skipped.")
     for note in notes:
         warnings.warn(f"{source}{label}: {note}", ForcefitWarning, stacklevel=4)
+    recognised, unknown = unused_columns(table, chosen)
     metadata.update(
         source=source,
         layout=table.layout,
@@ -239,13 +285,50 @@ def _make_track(
         units_from={"length": units["length_from"], "time": units["time_from"]},
         first_row=int(rows[0]),
         last_row=int(rows[-1]),
+        unused_columns=recognised + unknown,
+        unrecognised_columns=unknown,
+        title_lines=list(table.title_lines),
         warnings=notes,
     )
+    if units["time_from"] == "date-times" and "t" in chosen:
+        metadata["time_origin"] = date_time_origin(table, chosen["t"])
     name = options.name or (Path(source).stem if source != "<DataFrame>" else "track")
     return Track(
         t=t, x=x, y=y, sigma=sigma, length_unit=length_unit, time_unit=units["time"],
-        name=f"{name}{label}", metadata=metadata,
+        name=f"{name}{label}", metadata=metadata, source_rows=rows,
     )
+
+
+def _column_notes(table: RawTable, chosen: Mapping[str, Column], options: _Options) -> list[str]:
+    """Notes on the columns: those not recognised (and so not used), and a path left without
+    times when one of them may hold the times."""
+    _, unknown = unused_columns(table, chosen)
+    if not unknown:
+        return []
+    listed = ", ".join(f'"{header}"' for header in unknown)
+    if "t" not in chosen and "frame" not in chosen and options.frame_rate is None:
+        return [f"no time column was recognised, so the path is read without times (shape only); "
+                f"the columns {listed} were not recognised. If one holds the times, name it: "
+                f'--column t="{unknown[0]}" (t="{unknown[0]}" in Python).']
+    return [f"columns not recognised and not used: {listed}. If one holds t, x, y or sigma, name it "
+            f'with --column ROLE=NAME (e.g. --column sigma="{unknown[0]}").']
+
+
+def _dropped_note(table: RawTable, chosen: Mapping[str, Column],
+                  numeric: Mapping[str, tuple[FloatArray, np.ndarray]], index: np.ndarray) -> str:
+    """Which rows were left out for an empty cell: their row numbers, the empty columns and,
+    where known, their times."""
+    time_role = "t" if "t" in numeric else "frame" if "frame" in numeric else None
+    named = []
+    for position in index[:8]:
+        empty = [chosen[role].header for role, (_, missing) in numeric.items() if missing[position]]
+        text = f"{table.row_word} {table.rows[position]} (empty: {', '.join(empty)}"
+        if time_role is not None and not numeric[time_role][1][position]:
+            text += f"; {chosen[time_role].header} = {numeric[time_role][0][position]:.12g}"
+        named.append(text + ")")
+    more = f" and {index.size - 8} more" if index.size > 8 else ""
+    return (f"{index.size} {_plural(index.size, table.row_word)} left out for empty cells (lost "
+            f"frames): {', '.join(named)}{more}.")
 
 
 def load_tracks(
@@ -267,6 +350,7 @@ def load_tracks(
     track_id: str | None = None,
     plane_mapping: PlaneMapping | None = None,
     video: Mapping[str, Any] | None = None,
+    force_units: bool = False,
 ) -> list[Track]:
     """Read every track in a file or DataFrame (one per value of the id column).
 
@@ -279,7 +363,7 @@ def load_tracks(
     t, x, y, z, sigma, frame, id : str, optional
         Column names to use, overriding detection (case-insensitive).
     length_unit, time_unit : str, optional
-        Units of the raw positions and times, overriding the header.
+        Units of the raw positions and times where the header states none.
     frame_rate : float, optional
         Frames per second, to turn a frame-number column into times in s.
     calibration : Calibration, optional
@@ -295,6 +379,9 @@ def load_tracks(
         angle); instead of ``calibration``.
     video : mapping, optional
         Keyword options of `forcefit.track_video` for a video source.
+    force_units : bool
+        Use ``length_unit`` and ``time_unit`` even where a header states another unit
+        (by default the header wins, with a note).
 
     Returns
     -------
@@ -314,9 +401,9 @@ def load_tracks(
     chosen = map_columns(table, explicit)
     options = _Options(
         length_unit=length_unit, time_unit=time_unit, frame_rate=frame_rate,
-        calibration=calibration, name=name, plane_mapping=plane_mapping,
+        calibration=calibration, name=name, plane_mapping=plane_mapping, force_units=force_units,
     )
-    notes: list[str] = []
+    notes: list[str] = _column_notes(table, chosen, options)
     units = _units(table, chosen, options, notes)
     used = [role for role in NUMERIC_ROLES if role in chosen and _is_used(role, chosen, options)]
     numeric = {role: numbers(table, chosen[role]) for role in used}
@@ -341,7 +428,9 @@ def load_tracks(
         for role, array in values.items():
             _refuse_bad_values(table, chosen[role], array, rows)
         label = f"[{value}]" if "id" in chosen else ""
-        track = _make_track(table, chosen, values, rows, units, options, label, notes, emptiest)
+        lost = np.flatnonzero((ids == value) & missing)
+        own = notes + ([_dropped_note(table, chosen, numeric, lost)] if lost.size else [])
+        track = _make_track(table, chosen, values, rows, units, options, label, own, emptiest)
         dropped = table.rows[(ids == value) & missing]
         tracks.append(track.with_metadata(
             n_rows_read=int(member.sum() + dropped.size),

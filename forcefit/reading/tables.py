@@ -49,6 +49,8 @@ class RawTable:
         True when numbers were written with decimal commas (converted on reading).
     has_header : bool
         False when the file starts with numbers and columns were named by position.
+    title_lines : tuple of str
+        Lines above the header that were skipped as a title ("row 1: object: bob 1").
     """
 
     frame: pd.DataFrame
@@ -57,6 +59,7 @@ class RawTable:
     layout: str
     decimal_comma: bool = False
     has_header: bool = True
+    title_lines: tuple[str, ...] = ()
 
     @property
     def row_word(self) -> str:
@@ -240,6 +243,8 @@ def _read_text(path: Path) -> RawTable:
     kept = [i for i, line in enumerate(lines) if line.strip() and not line.lstrip().startswith("#")]
     if not kept:
         raise InputError(f"{path}: holds no rows, only comments or blank lines. Add the samples.")
+    titles = _title_lines(lines, kept)
+    kept = kept[len(titles):]
     delimiter = _delimiter(lines[kept[0]])
     comma_header = delimiter == "," and len(kept) > 1 and _delimiter(lines[kept[1]]) is None
     if comma_header:
@@ -270,8 +275,32 @@ def _read_text(path: Path) -> RawTable:
         decimal="," if decimal_comma else ".", skipinitialspace=True, index_col=False,
     )
     return RawTable(
-        frame, numbers, str(path), _DELIMITER_NAMES[delimiter], decimal_comma, has_header
+        frame, numbers, str(path), _DELIMITER_NAMES[delimiter], decimal_comma, has_header,
+        tuple(f"row {i + 1}: {lines[i].strip()}" for i in titles),
     )
+
+
+def _numeric_line(line: str) -> bool:
+    cells = _split([line], _delimiter(line))[0]
+    return bool(cells) and all(_is_number(cell) for cell in cells if cell)
+
+
+def _title_lines(lines: list[str], kept: list[int]) -> list[int]:
+    """Lines above the header that are not part of the table ("object: bob 1", an export's
+    title): the header is the last text line above the first row of numbers, when it has as
+    many cells as that row and the first line does not."""
+    first_data = next((j for j, i in enumerate(kept[:50]) if _numeric_line(lines[i])), None)
+    if first_data is None or first_data < 2:
+        return []
+    delimiter = _delimiter(lines[kept[first_data]])
+    width = len(_split([lines[kept[first_data]]], delimiter)[0])
+    header = _split([lines[kept[first_data - 1]]], delimiter)[0]
+    first = _split([lines[kept[0]]], delimiter)[0]
+    if delimiter is None:
+        header, first = _join_unit_tokens(header), _join_unit_tokens(first)
+    if len(header) == width and len(first) != width:
+        return kept[: first_data - 1]
+    return []
 
 
 def _consistent_whitespace(lines: list[str]) -> bool:
