@@ -14,7 +14,7 @@ from numpy.typing import NDArray
 
 from ._types import FloatArray
 from .errors import InputError
-from .units import parse_length_unit, parse_time_unit
+from .units import length_factor, parse_length_unit, parse_time_unit, time_factor
 
 MIN_POINTS = 3
 """Fewest samples a track may hold: curvature needs three points."""
@@ -231,6 +231,23 @@ class Track:
     def with_metadata(self, **items: Any) -> Track:
         """A copy whose metadata has ``items`` added or replaced."""
         return replace(self, metadata={**self.metadata, **items})
+
+    def in_units(self, *, length_unit: str | None = None, time_unit: str | None = None) -> Track:
+        """The same track with positions (and sigma) in ``length_unit`` and times in ``time_unit``.
+
+        Examples
+        --------
+        >>> track = Track(t=[0.0, 0.5, 1.0], x=[0.0, 0.1, 0.2], y=[0.0, 0.1, 0.0])
+        >>> converted = track.in_units(length_unit="mm", time_unit="ms")
+        >>> converted.x.tolist(), converted.t.tolist(), converted.length_unit
+        ([0.0, 100.0, 200.0], [0.0, 500.0, 1000.0], 'mm')
+        """
+        length = self.length_unit if length_unit is None else parse_length_unit(length_unit)
+        time = self.time_unit if time_unit is None else parse_time_unit(time_unit)
+        scale, pace = length_factor(self.length_unit, length), time_factor(self.time_unit, time)
+        return replace(self, x=self.x * scale, y=self.y * scale,
+                       sigma=None if self.sigma is None else self.sigma * scale,
+                       t=None if self.t is None else self.t * pace, length_unit=length, time_unit=time)
 
     def to_frame(self) -> pd.DataFrame:
         """The samples as a DataFrame whose column names carry the units.

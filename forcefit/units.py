@@ -8,6 +8,7 @@ length of their own that converts to nothing until a calibration gives the scale
 from __future__ import annotations
 
 import math
+import re
 from functools import lru_cache
 
 import pint
@@ -220,3 +221,99 @@ def strength_per_h2_unit(length_unit: str, exponent: float) -> str:
     if not math.isfinite(exponent):
         return f"{length_unit}^(-3-n)"
     return _power(length_unit, -3.0 - exponent) or "1"
+
+
+_POWER = re.compile(r"^(?P<name>[A-Za-z_µμ]+)(?:(?:\^|\*\*)(?P<power>[-+]?\d+(?:\.\d+)?))?$")
+
+
+def _unit_powers(text: str) -> list[tuple[str, float]]:
+    """``"m^3 s^-2"``, ``"m**3/s**2"``, ``"1/s^2"`` as (symbol, power) pairs."""
+    powers: list[tuple[str, float]] = []
+    cleaned = re.sub(r"\s*\^\s*", "^", text.replace("·", " ").replace("**", "^"))
+    cleaned = re.sub(r"\s*\*\s*", " ", cleaned)
+    numerator, *denominators = cleaned.split("/")
+    for sign, part in [(1.0, numerator)] + [(-1.0, d) for d in denominators]:
+        for token in part.split():
+            if token == "1":
+                continue
+            match = _POWER.match(token)
+            if match is None:
+                raise InputError(f'"{token}" in the unit "{text}" is not a unit with a power such as m^3 or '
+                                 "s^-2.")
+            powers.append((match["name"], sign * float(match["power"] or 1.0)))
+    return powers
+
+
+def parse_strength_unit(text: str, exponent: float) -> tuple[str | None, str]:
+    """The length and time units of a strength unit written for the exponent n.
+
+    Parameters
+    ----------
+    text : str
+        A unit of k, length**(1 - n) time**-2: ``"s^-2"`` (n = 1), ``"m^3 s^-2"`` or
+        ``"au^3/d^2"`` (n = -2), ``"1/s^2"``.
+    exponent : float
+        The exponent n the strength belongs to.
+
+    Returns
+    -------
+    (str or None, str)
+        The length unit (None when n = 1, where k has none) and the time unit.
+
+    Examples
+    --------
+    >>> parse_strength_unit("s^-2", 1.0), parse_strength_unit("au^3/d^2", -2.0)
+    ((None, 's'), ('au', 'd'))
+    """
+    length: str | None = None
+    time: str | None = None
+    length_power = time_power = 0.0
+    for symbol, power in _unit_powers(text):
+        try:
+            unit, is_time = parse_time_unit(symbol), True
+        except InputError:
+            unit, is_time = parse_length_unit(symbol), False
+        if is_time:
+            if time not in (None, unit):
+                raise InputError(f'the strength unit "{text}" mixes two time units; write one, such as s^-2.')
+            time, time_power = unit, time_power + power
+        else:
+            if length not in (None, unit):
+                raise InputError(f'the strength unit "{text}" mixes two length units; write one.')
+            length, length_power = unit, length_power + power
+    wanted = strength_unit("L", "T", exponent)
+    if time is None or abs(time_power + 2.0) > 1e-9 or abs(length_power - (1.0 - exponent)) > 1e-9:
+        raise InputError(f'"{text}" is not a unit of the strength k at n = {exponent:g}, which is {wanted} '
+                         "(length^(1-n) time^-2). Write it in that form, e.g. "
+                         f'"{strength_unit("m", "s", exponent)}".')
+    return (None if abs(1.0 - exponent) < 1e-12 else length), time
+
+
+def strength_factor(
+    from_units: tuple[str, str], to_units: tuple[str | None, str], exponent: float
+) -> float:
+    """Multiply a strength k at exponent n in ``from_units`` by this to express it in ``to_units``.
+
+    Parameters
+    ----------
+    from_units, to_units : (str, str)
+        (length unit, time unit) of each side; the target's length may be None when n = 1.
+    exponent : float
+        n: k is in length**(1 - n) time**-2, so at n = 1 the length unit drops out (pixels
+        included).
+
+    Examples
+    --------
+    >>> strength_factor(("mm", "ms"), (None, "s"), 1.0)     # per ms^2 to per s^2
+    1000000.0
+    >>> round(strength_factor(("au", "d"), ("m", "s"), -2.0) / 1e23, 4)   # au^3/d^2 in m^3/s^2
+    4.4849
+    """
+    factor = time_factor(to_units[1], from_units[1]) ** 2
+    power = 1.0 - exponent
+    if abs(power) > 1e-12:
+        target = to_units[0]
+        if target is None:
+            raise InputError(f"a strength at n = {exponent:g} needs a length unit (length^(1-n) time^-2).")
+        factor *= length_factor(from_units[0], target) ** power
+    return factor

@@ -6,11 +6,13 @@ import shutil
 from html.parser import HTMLParser
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
 
 import forcefit.apps.grading as grading
 from forcefit.apps.grading import GradingRule, grade_runs, read_results
+from forcefit.dynamics.simulate import simulate_pendulum
 from forcefit.outputs.report import safe_name
 
 from .conftest import DEMO
@@ -165,3 +167,61 @@ def test_an_interrupted_batch_keeps_every_finished_row(tmp_path, monkeypatch):
     with pytest.raises(KeyboardInterrupt):
         grade_runs(runs, rule, tmp_path, workers=1, progress=False)
     assert sorted(read_results(tmp_path / "results.csv")["run"]) == ["run_01", "run_02"]
+
+
+# Issue 15, "Units": a class with one run in ms and mm. Each run's strength is converted into the
+# rule's unit (s^-2) before comparing; the table and the class page state one unit per column.
+
+def _pendulum_run(folder, name, *, length_unit="px", time_unit="s", scale=1000.0, time_scale=1.0,
+                  seed=1, duration=9.0, header=None):
+    """A 2.00 m pendulum (g = 9.81 m/s^2, so k = g/L = 4.905 s^-2) filmed from above at 30 fps,
+    written with positions times ``scale`` and times times ``time_scale``."""
+    track = simulate_pendulum(length=2.0, gravity=9.81, start=(0.12, 0.0), velocity=(0.0, 0.1),
+                              duration=duration, rate=30.0, noise=0.0005, rng=seed)
+    names = header or (f"t [{time_unit}]", f"x [{length_unit}]", f"y [{length_unit}]")
+    lines = [",".join(names)] + [f"{t * time_scale:.6f},{x * scale:.5f},{y * scale:.5f}"
+                                 for t, x, y in zip(track.t, track.x, track.y)]
+    path = folder / name
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def test_a_run_in_ms_and_mm_is_graded_in_the_rules_units(tmp_path):
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    _pendulum_run(runs, "anna.csv", seed=1)                                        # px and s
+    _pendulum_run(runs, "bruno.csv", length_unit="mm", time_unit="ms", time_scale=1000.0, seed=2)
+    rule = GradingRule(expect=1.0, tolerance=0.05, strength=4.905, strength_tolerance=0.03,
+                       load_options={"length_unit": "px"})              # k in s^-2 unless said
+    out = tmp_path / "out"
+    frame = grade_runs(runs, rule, out, workers=1, progress=False)
+    assert frame["passed"].all(), frame["reason"].tolist()
+    table = pd.read_csv(out / "results.csv")
+    assert "strength_at_expected [s^-2]" in table.columns and "duration [s]" in table.columns
+    np.testing.assert_allclose(table["strength_at_expected [s^-2]"], 4.905, rtol=0.03)
+    np.testing.assert_allclose(table["duration [s]"], 9.0, rtol=0.01)
+    page = (out / "index.html").read_text()
+    assert page.count(" s^-2</td>") == 2 and "e-06" not in page
+    assert "ms^-2" not in page
+
+
+def test_a_strength_given_in_another_unit_is_converted(tmp_path):
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    _pendulum_run(runs, "carla.csv", length_unit="mm", time_unit="ms", time_scale=1000.0)
+    rule = GradingRule(expect=1.0, tolerance=0.05, strength=4.905e-6, strength_unit="ms^-2",
+                       strength_tolerance=0.03)
+    frame = grade_runs(runs, rule, tmp_path / "out", workers=1, progress=False)
+    assert frame["passed"].all(), frame["reason"].tolist()
+    assert pd.read_csv(tmp_path / "out" / "results.csv").columns.str.contains(r"\[ms\^-2\]").any()
+
+
+def test_a_run_without_times_says_its_strength_is_not_determined(tmp_path):
+    # issue 15: a placeholder unit leaked out as "k = nan T^-2"
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    _pendulum_run(runs, "dora.csv", header=("Stempel", "x [px]", "y [px]"))       # time not found
+    rule = GradingRule(expect=1.0, tolerance=0.05, strength=4.905, strength_tolerance=0.03)
+    reason = grade_runs(runs, rule, tmp_path / "out", workers=1, progress=False)["reason"][0]
+    assert "strength not checked: not determined without timestamps" in reason
+    assert "nan" not in reason and "T^-2" not in reason

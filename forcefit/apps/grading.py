@@ -27,8 +27,10 @@ import pandas as pd
 
 from .._atomic import write_atomic
 from ..errors import FitError, ForcefitError, InputError, NotIdentifiable
+from ..estimators.result import LawFit
 from ..formatting import measurement
-from ..units import strength_unit
+from ..track import Track
+from ..units import parse_strength_unit, strength_factor, strength_unit, time_factor
 
 RUN_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".json", ".xlsx", ".parquet")
 RESULTS = "results.csv"
@@ -43,12 +45,17 @@ class GradingRule:
     expect, tolerance : float
         The expected exponent and the largest |n - expect| that passes.
     strength, strength_tolerance : float, optional
-        The expected strength k at the expected exponent (in the runs' units; for n = 1 in
-        1/time**2 whatever the length unit) and the largest relative deviation that passes.
+        The expected strength k at the expected exponent, in ``strength_unit``, and the largest
+        relative deviation that passes.
     min_turns : float
         The least number of turns about the centre a run must cover.
     load_options : dict
         Passed to `load_tracks` (units, calibration, column names).
+    strength_unit : str, optional
+        The unit of ``strength`` and of the class's table, length**(1 - n) time**-2 at the
+        expected n (``"s^-2"`` for n = 1, ``"m^3 s^-2"`` for n = -2); default metres and
+        seconds. Each run's strength is converted into it before comparing, whatever units
+        the run was read in.
     """
 
     expect: float
@@ -57,6 +64,21 @@ class GradingRule:
     strength_tolerance: float | None = None
     min_turns: float = 1.0
     load_options: dict[str, Any] = field(default_factory=dict)
+    strength_unit: str | None = None
+
+    @property
+    def units(self) -> tuple[str | None, str]:
+        """The class's (length, time) units: those of ``strength_unit``, else metres and seconds
+        (length None at n = 1, where the strength has none)."""
+        if self.strength_unit is not None:
+            return parse_strength_unit(self.strength_unit, self.expect)
+        return (None if abs(self.expect - 1.0) < 1e-12 else "m"), "s"
+
+    @property
+    def unit(self) -> str:
+        """The unit of the expected strength and of the class table's strength column."""
+        length, time = self.units
+        return strength_unit(length or "m", time, self.expect)
 
 
 def find_runs(source: str | os.PathLike[str] | Sequence[str | os.PathLike[str]]) -> list[Path]:
@@ -77,7 +99,7 @@ def _row(path: Path, name: str, **values: Any) -> dict[str, Any]:
             "exponent_stderr": math.nan, "strength_at_expected": math.nan,
             "strength_at_expected_stderr": math.nan, "strength_unit": "", "duration": math.nan,
             "time_unit": "", "turns": math.nan, "reduced_chi2": math.nan, "n_points": 0,
-            "method": "", "report": ""}
+            "method": "", "run_units": "", "report": ""}
     base.update(values)
     return base
 
@@ -124,18 +146,21 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
         reasons.append(f"exponent outside tolerance: n = "
                        f"{measurement(fit.exponent, fit.exponent_stderr)}, expected "
                        f"{rule.expect:g} ± {rule.tolerance:g}")
-    k, k_error = fit.strength_at_exponent(rule.expect)
-    unit = strength_unit(fit.length_unit, fit.time_unit or "T", rule.expect)
+    k, k_error, problem = _class_strength(fit, track, rule)
     if rule.strength is not None:
-        relative = abs(k / rule.strength - 1.0) if math.isfinite(k) else math.inf
-        if relative > (rule.strength_tolerance or 0.0):
+        unit = rule.unit
+        if problem:
+            reasons.append(f"strength not checked: {problem}")
+        elif abs(k / rule.strength - 1.0) > (rule.strength_tolerance or 0.0):
             reasons.append(f"strength outside tolerance: k = {measurement(k, k_error, unit)}, "
                            f"expected {rule.strength:.6g} {unit} ± {100 * (rule.strength_tolerance or 0):g}%")
+    duration = track.duration * time_factor(track.time_unit, rule.units[1]) if track.has_times else math.nan
     row = _row(path, name, passed=not reasons, reason="; ".join(reasons), exponent=fit.exponent,
                exponent_stderr=fit.exponent_stderr, strength_at_expected=k,
-               strength_at_expected_stderr=k_error, strength_unit=unit, duration=track.duration,
-               time_unit=track.time_unit if track.has_times else "", turns=turns,
-               reduced_chi2=fit.reduced_chi2, n_points=track.n_points, method=fit.method)
+               strength_at_expected_stderr=k_error, strength_unit=rule.unit, duration=duration,
+               time_unit=rule.units[1], turns=turns, reduced_chi2=fit.reduced_chi2,
+               n_points=track.n_points, method=fit.method,
+               run_units=f"{track.length_unit}, {track.time_unit if track.has_times else 'no times'}")
     if out_dir is not None:
         folder = Path(out_dir) / "runs"
         verdict = Verdict("PASS" if not reasons else "FAIL", not reasons, tuple(reasons))
@@ -144,14 +169,25 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
     return row
 
 
-def _write_table(rows: Iterable[dict[str, Any]], path: Path) -> pd.DataFrame:
+def _class_strength(fit: LawFit, track: Track, rule: GradingRule) -> tuple[float, float, str]:
+    """The run's strength at the expected exponent in the class's unit, its error, and why it
+    could not be found ("" when it was)."""
+    if not track.has_times:
+        return math.nan, math.nan, "not determined without timestamps."
+    k, k_error = fit.strength_at_exponent(rule.expect)
+    try:
+        factor = strength_factor((track.length_unit, track.time_unit), rule.units, rule.expect)
+    except InputError as exc:
+        return math.nan, math.nan, (f"the run is in {track.length_unit} and k at n = {rule.expect:g} depends "
+                                    f"on the length scale ({exc}) Give the scale (--scale or a calibration).")
+    return k * factor, k_error * factor, ""
+
+
+def _write_table(rows: Iterable[dict[str, Any]], path: Path, rule: GradingRule) -> pd.DataFrame:
+    """Write the results table, one unit per column stated in its header (the class's units)."""
     frame = pd.DataFrame(list(rows)).sort_values("run", kind="stable").reset_index(drop=True)
-    units = {}
-    for key in ("strength_unit", "time_unit"):
-        values = [v for v in frame[key].unique() if v]
-        units[key] = values[0] if len(values) == 1 else f"see {key}"
-    strength, time = units["strength_unit"], units["time_unit"]
-    renamed = frame.rename(columns={
+    strength, time = rule.unit, rule.units[1]
+    renamed = frame.drop(columns=["strength_unit", "time_unit"]).rename(columns={
         "strength_at_expected": f"strength_at_expected [{strength}]",
         "strength_at_expected_stderr": f"strength_at_expected_stderr [{strength}]",
         "duration": f"duration [{time}]", "exponent": "exponent [1]",
@@ -164,7 +200,11 @@ def _write_table(rows: Iterable[dict[str, Any]], path: Path) -> pd.DataFrame:
 def read_results(path: str | os.PathLike[str]) -> pd.DataFrame:
     """A results table written by `grade_runs`, with the units taken back out of the headers."""
     frame = pd.read_csv(path, keep_default_na=False, na_values=[""])
+    units = {column.split(" [")[0]: column.split(" [")[1].rstrip("]") for column in frame.columns
+             if " [" in column}
     frame.columns = [column.split(" [")[0] for column in frame.columns]
+    frame["strength_unit"] = units.get("strength_at_expected", "")
+    frame["time_unit"] = units.get("duration", "")
     frame["reason"] = frame["reason"].fillna("")
     frame["report"] = frame["report"].fillna("")
     return frame
@@ -267,14 +307,13 @@ def grade_runs(
     with tqdm(total=len(paths), disable=not progress, unit="run", desc="grading") as bar:
         for row in _graded(paths, rule, folder, workers, scheduler):
             rows[row["file"]] = row
-            _write_table(rows.values(), table)          # whole, after every run
+            _write_table(rows.values(), table, rule)          # whole, after every run
             bar.update(1)
             bar.set_postfix_str(f"{row['run']}: {'pass' if row['passed'] else 'fail'}")
-    frame = _write_table(rows.values(), table) if rows else pd.DataFrame()
-    unit = next((u for u in frame.get("strength_unit", []) if u), "")
+    frame = _write_table(rows.values(), table, rule) if rows else pd.DataFrame()
     write_class_report(frame.to_dict("records"), folder, expect=rule.expect, tolerance=rule.tolerance,
                        strength=rule.strength, strength_tolerance=rule.strength_tolerance,
-                       strength_unit=unit, csv_name=RESULTS, title=title)
+                       strength_unit=rule.unit, csv_name=RESULTS, title=title)
     return frame
 
 

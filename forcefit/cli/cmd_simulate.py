@@ -69,6 +69,7 @@ def _cmd_simulate(args: argparse.Namespace) -> int:
         track = simulate_pendulum(length=args.pendulum, gravity=args.gravity, start=args.start,
                                   velocity=args.velocity, duration=args.duration, rate=args.rate,
                                   latitude=args.latitude, **common)
+        track = track.in_units(length_unit=args.length_unit, time_unit=args.time_unit)
     else:
         if args.exponent is None:
             raise InputError("give --exponent N (or --pendulum L for a spherical pendulum).")
@@ -104,7 +105,9 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     law.add_argument("--centre", type=pair, default=(0.0, 0.0), metavar="X,Y", help="force centre")
     law.add_argument("--drag", type=drag, metavar="KIND:C",
                      help="linear:C (1/time) or quadratic:C (1/length)")
-    pendulum = simulate.add_argument_group("a spherical pendulum instead (SI units)")
+    pendulum = simulate.add_argument_group(
+        "a spherical pendulum instead (give these in m, s and m/s; the file is written in "
+        "--length-unit and --time-unit)")
     pendulum.add_argument("--pendulum", type=float, metavar="L", help="pendulum length, m")
     pendulum.add_argument("--gravity", type=float, default=9.81, help="local g, m/s^2 (default 9.81)")
     pendulum.add_argument("--latitude", type=float, metavar="DEG",
@@ -124,7 +127,8 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     sampling = simulate.add_argument_group("sampling and noise")
     sampling.add_argument("--duration", type=float, help="time span (default: 3 circular periods)")
     sampling.add_argument("--rate", type=float, help="samples per time unit (default: 200 per period)")
-    sampling.add_argument("--noise", type=float, default=0.0, help="position noise per coordinate, length")
+    sampling.add_argument("--noise", type=float, default=0.0,
+                          help="position noise per coordinate (m for a pendulum, else --length-unit)")
     sampling.add_argument("--dropped", type=float, default=0.0, help="fraction of dropped frames")
     sampling.add_argument("--outliers", type=float, default=0.0, help="fraction of gross glitches")
     sampling.add_argument("--outlier-size", type=float, default=40.0, help="glitch size in noise units")

@@ -147,7 +147,7 @@ def simulate_orbit(
         "start": [float(v) for v in start_vector], "velocity": [float(v) for v in velocity],
         "centre": [float(c) for c in centre],
         "drag": None if drag is None else {"kind": drag.kind, "coefficient": drag.coefficient},
-        "noise": float(np.max(noise)), **record,
+        "noise": float(np.max(noise)), "units": {"length": length_unit, "time": time_unit}, **record,
     }
     return Track(
         t=None if shape_only else samples["t"], x=samples["x"], y=samples["y"],
@@ -267,7 +267,7 @@ def simulate_pendulum(
         "exponent": 1.0, "strength": gravity / length, "pendulum_length": length,
         "gravity": gravity, "latitude": latitude, "damping": damping,
         "start": [float(v) for v in start], "velocity": [float(v) for v in velocity],
-        "centre": [0.0, 0.0], "noise": float(noise), **record,
+        "centre": [0.0, 0.0], "noise": float(noise), "units": {"length": "m", "time": "s"}, **record,
     }
     return Track(
         t=samples["t"], x=samples["x"], y=samples["y"], sigma=samples["sigma"],
