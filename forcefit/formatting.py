@@ -181,6 +181,18 @@ def p_value(p: float) -> str:
     return f"{p:.1e}"
 
 
+def p_phrase(p: float) -> str:
+    """A p-value for a sentence: ``"p = 0.43"``, ``"p < 1e-300"``.
+
+    Examples
+    --------
+    >>> p_phrase(0.43), p_phrase(0.0)
+    ('p = 0.43', 'p < 1e-300')
+    """
+    text = p_value(p)
+    return f"p {text}" if text[0] in "<>" else f"p = {text}"
+
+
 def significance(deviation: float, stderr: float) -> str:
     """How many standard errors a deviation is, in words fit for a sentence.
 

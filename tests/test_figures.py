@@ -10,14 +10,18 @@ from matplotlib.figure import Figure
 from forcefit.analysis.apsides import measure_apsides
 from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.estimators import fit_curvature, fit_orbit
+from forcefit.formatting import estimate, measurement
 from forcefit.outputs.figures import (
     apsides_figure,
+    corner_figure,
     figure_png,
     grade_histogram,
     path_figure,
     relation_figure,
     residual_figure,
+    trace_figure,
 )
+from forcefit.track import Track
 
 
 @pytest.fixture(scope="module")
@@ -84,3 +88,46 @@ def test_histogram_counts_every_finite_exponent_and_png_bytes():
     assert sum(bar.get_height() for bar in bars) == 3
     # A PNG file starts with its eight-byte signature (W3C 2003, PNG specification, §5.2).
     assert figure_png(figure).startswith(b"\x89PNG\r\n\x1a\n")
+
+
+def _texts(figure):
+    legends = [axis.get_legend() for axis in figure.axes if axis.get_legend() is not None]
+    return [axis.get_title(loc="left") for axis in figure.axes] + [
+        text.get_text() for legend in legends for text in legend.get_texts()]
+
+
+def test_corner_and_trace_titles_show_the_median_and_interval_to_their_digits(sharp_posterior):
+    # issue 15: corner titles printed n = -2 and kept the plotting library's default look
+    median, bounds = estimate(float(np.median(sharp_posterior.samples["exponent"])),
+                              *sharp_posterior.interval("exponent", 0.68))
+    for figure in (corner_figure(sharp_posterior), trace_figure(sharp_posterior)):
+        titles = [title for title in _texts(figure) if title.startswith("n = ")]
+        assert titles and median in titles[0] and bounds in titles[0]
+        assert not any("^{+" in title for title in _texts(figure))     # no default title markup
+
+
+def test_legends_show_the_exponent_to_its_error(track, orbit):
+    # issue 15: figure legends printed n = -2 for n = -2.0004 (four significant digits)
+    label = path_figure(track, orbit).axes[0].lines[1].get_label()
+    assert measurement(orbit.exponent, orbit.exponent_stderr) in label
+
+
+def test_the_fitted_path_is_broken_at_a_gap_and_julian_times_start_from_the_first(orbit):
+    keep = np.r_[0:300, 400:orbit.n_points]
+    track = simulate_orbit(exponent=-1.5, noise=2e-3, rng=4).select(keep)
+    gapped = Track(t=track.t + 2460000.5, x=track.x, y=track.y, sigma=track.sigma, time_unit="d")
+    fit = fit_orbit(gapped)
+    line = path_figure(gapped, fit).axes[0].lines[1]
+    assert np.isnan(line.get_xdata()[300]) and np.isfinite(line.get_xdata()).sum() == gapped.n_points
+    axis = residual_figure(gapped, fit).axes[0]
+    assert axis.get_xlabel() == "t - t0 [d], t0 = 2460000.5 d (the first sample)"
+    assert axis.lines[0].get_xdata()[0] == 0.0
+
+
+def test_the_class_histogram_counts_whole_runs():
+    # issue 15: the class histogram's axis showed fractions of runs
+    figure = grade_histogram([1.01, 0.99, 1.2], 1.0, 0.05)
+    axis = figure.axes[0]
+    figure_png(figure)                                             # lay the ticks out
+    ticks = [tick for tick in axis.get_yticks() if axis.get_ylim()[0] <= tick <= axis.get_ylim()[1]]
+    assert ticks and all(float(tick).is_integer() for tick in ticks)

@@ -1,6 +1,7 @@
 """Posterior sampling: exact on a linear-Gaussian toy, honest on orbits, resumable."""
 
 import math
+import re
 
 import numpy as np
 import pytest
@@ -141,3 +142,24 @@ def test_the_posterior_widens_with_correlated_residuals():
     ratio = widened.samples["exponent"].std() / independent.samples["exponent"].std()
     assert ratio == pytest.approx(math.sqrt(fit.correlation_time), rel=0.25)
     assert widened.samples["exponent"].std() == pytest.approx(fit.exponent_stderr, rel=0.25)
+def test_a_sharp_posterior_prints_distinct_interval_ends(sharp_posterior):
+    # issue 15, "Done when": a posterior of a -2.0004 orbit printed [-2.0004, -2.0004]
+    row = next(row for row in sharp_posterior.rows() if row.name == "exponent")
+    for text in (row.interval_68, row.interval_95):
+        low, high = text.strip("[]").split(", ")
+        assert low != high and float(low) < float(high)
+    assert abs(float(row.median) + 2.0004) < 1e-7 and len(row.median) > len("-2.0004")
+    assert f"{row.median:>14} {row.interval_68:>32}" in sharp_posterior.to_text()
+
+
+def test_the_progress_bar_estimates_against_the_expected_length(capsys):
+    # issue 15, item 7: the bar's estimate ran against the step cap (20 000), not the chain's
+    # expected length (50 autocorrelation times)
+    def log_probability(theta):
+        return -0.5 * np.sum(theta**2, axis=1)
+
+    sampler, converged, _ = run_ensemble(log_probability, np.zeros(2), np.eye(2), rng=1,
+                                         max_steps=20_000, progress=True)
+    totals = [int(total) for total in re.findall(r"\d+/(\d+)", capsys.readouterr().err)]
+    assert converged and totals and totals[-1] < 20_000
+    assert totals[-1] >= sampler.iteration

@@ -113,3 +113,24 @@ def test_run_names_cannot_escape_the_output_folder(tmp_path):
     assert all(p.resolve().is_relative_to((tmp_path / "out").resolve()) for p in tmp_path.rglob("*")
                if p.is_file())
     assert not re.search(r"\.\./", page.name)
+
+
+def test_the_page_records_calibration_latitude_and_every_option(tmp_path):
+    # issue 15, item 7: the report records the calibration, the latitude and every option used
+    track = simulate_orbit(exponent=1.0, noise=1e-3, rng=2).with_metadata(
+        source="bob.csv", columns={"t": "t [s]", "x": "x [px]", "y": "y [px]"},
+        units_from={"length": "header", "time": "header"},
+        calibration={"scale": 1.6, "unit": "mm", "origin": [958.3, 541.7], "rotation": 0.0, "flip_y": True})
+    page = write_report(fit_orbit(track), tmp_path, track=track,
+                        options={"latitude": 52.0, "drag": "linear", "robust": False})
+    cells = _cells(page)
+    assert "calibration" in cells and any("scale 1.6" in cell and "flip_y True" in cell for cell in cells)
+    assert "option latitude" in cells and "52" in cells and "option drag" in cells
+    assert "option robust" not in cells                                   # an option not set
+    assert "length m (header), time s (header)" in cells
+
+
+def test_the_checks_on_the_page_carry_our_marks_and_words(tmp_path):
+    track = simulate_orbit(exponent=1.0, noise=1e-3, rng=2)
+    cells = _cells(write_report(fit_orbit(track), tmp_path, track=track))
+    assert "✓ holds" in cells and "✔" not in "".join(cells)

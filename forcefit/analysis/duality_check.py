@@ -24,6 +24,7 @@ from .._json import json_safe
 from ..dynamics.duality import dual_exponent, dual_strength, dual_track, specific_energy_at
 from ..estimators.registry import ESTIMATORS
 from ..estimators.result import LawFit, OrbitFit
+from ..formatting import measurement
 from ..track import Track
 from ..units import strength_unit
 
@@ -71,15 +72,16 @@ class DualityCheck:
     def to_text(self) -> str:
         """Predicted and fitted dual exponent (and strength), and the verdict."""
         verdict = "consistent" if self.passed else "INCONSISTENT"
-        predicted = _value(self.predicted_exponent, self.predicted_exponent_stderr)
+        predicted = measurement(self.predicted_exponent, self.predicted_exponent_stderr)
         line = (f"duality check: {verdict} (each within {LIMIT:g} standard errors)\n"
                 f"    dual exponent  predicted {predicted}, fitted "
-                f"{_value(self.fitted.exponent, self.fitted.exponent_stderr)} ({self.z_score:+.1f} sigma)")
+                f"{measurement(self.fitted.exponent, self.fitted.exponent_stderr)} "
+                f"({self.z_score:+.1f} sigma)")
         if math.isfinite(self.strength_z_score):
             unit = self.strength_unit
             line += (f"\n    dual strength  predicted "
-                     f"{_value(self.predicted_strength, self.predicted_strength_stderr)} {unit}, "
-                     f"fitted {_value(self.fitted.strength, self.fitted.strength_stderr)} {unit} "
+                     f"{measurement(self.predicted_strength, self.predicted_strength_stderr)} {unit}, "
+                     f"fitted {measurement(self.fitted.strength, self.fitted.strength_stderr)} {unit} "
                      f"({self.strength_z_score:+.1f} sigma)")
         return line
 
@@ -102,14 +104,6 @@ def _z(fitted: float, fitted_stderr: float, predicted: float, predicted_stderr: 
     if not math.isfinite(spread):
         return math.nan
     return (fitted - predicted) / spread if spread > 0 else math.inf
-
-
-def _value(value: float, stderr: float) -> str:
-    """A value with its error, to the error's second significant digit."""
-    if not (math.isfinite(stderr) and stderr > 0):
-        return f"{value:.6g}"
-    digits = max(0, 1 - math.floor(math.log10(stderr)) + math.floor(math.log10(abs(value)))) if value else 2
-    return f"{value:.{max(digits, 2)}g} ± {stderr:.2g}"
 
 
 def check_duality(track: Track, fit: LawFit, refit: Callable[..., LawFit] | None = None) -> DualityCheck:

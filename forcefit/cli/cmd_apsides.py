@@ -7,6 +7,7 @@ import math
 from typing import Any
 
 from ..analysis.apsides import measure_apsides, precession_budget
+from ..formatting import measurement
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, Reports, add_centre_option, read_tracks
 
 _EXAMPLES = """\
@@ -27,9 +28,10 @@ def _budget_lines(rates: dict[str, float]) -> list[str]:
     for key, label in _BUDGET.items():
         if key in rates:
             error = rates.get(f"{key}_stderr")
-            spread = f" ± {error:.2g}" if error is not None else ""
-            lines.append(f"    {label:<32} {rates[key]:+.4e}{spread}   "
-                         f"({math.degrees(rates[key]) * 3600:+.3f} deg/h)")
+            per_hour = math.degrees(3600.0)
+            lines.append(f"    {label:<32} {measurement(rates[key], error)}   "
+                         f"({measurement(rates[key] * per_hour, None if error is None else error * per_hour)}"
+                         " deg/h)")
     return lines
 
 

@@ -13,7 +13,7 @@ from ..apps.grading import GradingRule, grade_runs
 from ..errors import ForcefitError, ForcefitWarning
 from ..estimators import fit_curvature, fit_orbit, fit_shape
 from ..estimators.result import LawFit
-from ..formatting import measurement
+from ..formatting import CHECK_MARKS, measurement
 from ..geometry.path import describe_path
 from ..inference.posterior import sample_posterior
 from ..reading.inspection import inspect_track
@@ -63,8 +63,7 @@ def _grade_class(dataset: DemoDataset, out: str) -> None:
     for row in frame.to_dict("records"):
         exponent = (measurement(row["exponent"], row["exponent_stderr"])
                     if math.isfinite(row["exponent"]) else "—")
-        print(f"   {row['run']:<8} {'pass' if row['passed'] else 'FAIL'}  n = {exponent:<20} "
-              f"{row['reason']}")
+        print(f"   {CHECK_MARKS[bool(row['passed'])]} {row['run']:<8} n = {exponent:<20} {row['reason']}")
     print(f"   class report: {Path(out) / 'index.html'}  (results table {Path(out) / 'results.csv'})")
     first = dataset.paths[0]
     track = dataset.load(first)[0]
@@ -82,7 +81,7 @@ def _demo_track(track: Track, options: dict[str, Any]) -> None:
     for name, value, error in (("drag", fit.drag, fit.drag_stderr),
                                ("rotation_rate", fit.rotation_rate, fit.rotation_rate_stderr)):
         if math.isfinite(value):
-            print(f"  fitted {name.replace('_', ' ')}: {value:.4g} ± {error:.2g} per {track.time_unit}")
+            print(f"  fitted {name.replace('_', ' ')}: {measurement(value, error)} per {track.time_unit}")
     path = describe_path(track, centre=centre)
     print("  time-free estimators, for comparison:")
     for method, estimator in (("shape", fit_shape), ("curvature", fit_curvature)):

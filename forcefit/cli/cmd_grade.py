@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from ..apps.grading import GradingRule, grade_runs
+from ..formatting import CHECK_MARKS
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, loading_keywords
 
 _EXAMPLES = """\
@@ -28,9 +29,8 @@ def _cmd_grade(args: argparse.Namespace) -> int:
     passed = int(frame["passed"].sum()) if len(frame) else 0
     if not args.quiet:
         for row in frame.to_dict("records"):
-            mark = "pass" if row["passed"] else "FAIL"
-            print(f"  {row['run']:<24} {mark}  {row['reason']}")
-    print(f"{passed} of {len(frame)} runs passed; report: {Path(args.out) / 'index.html'}, "
+            print(f"  {CHECK_MARKS[bool(row['passed'])]} {row['run']:<24} {row['reason']}")
+    print(f"{passed} of {len(frame)} runs meet the rule; report: {Path(args.out) / 'index.html'}, "
           f"table: {Path(args.out) / 'results.csv'}")
     return EXIT_OK if passed == len(frame) else EXIT_FAILED_CHECKS
 

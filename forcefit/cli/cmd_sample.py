@@ -8,6 +8,7 @@ from typing import Any
 
 from ..errors import InputError
 from ..estimators import fit_orbit
+from ..formatting import measurement
 from ..inference.posterior import sample_posterior
 from ..outputs.figures import corner_figure, save_figure, trace_figure
 from ..outputs.report import write_report
@@ -65,7 +66,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
             save_figure(corner_figure(posterior), folder / f"{track.name}_corner.png")
             save_figure(trace_figure(posterior), folder / f"{track.name}_trace.png")
         page = write_report(fit, args.report, track=track, posterior=posterior) if args.report else None
-        lines = [f"{track.name} — orbit fit: n = {fit.exponent:.6g} ± {fit.exponent_stderr:.2g}",
+        lines = [f"{track.name} — orbit fit: n = {measurement(fit.exponent, fit.exponent_stderr)}",
                  posterior.to_text()]
         if page is not None:
             lines.append(f"report: {page}")

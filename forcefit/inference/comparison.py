@@ -16,9 +16,10 @@ from scipy import stats
 
 from .._json import json_safe
 from ..estimators.orbit import fit_orbit
+from ..formatting import measurement, p_value
 from ..track import Track
 
-COLUMNS = ("exponent", "chi2", "reduced_chi2", "aic", "bic", "delta_bic", "p_value")
+HEADINGS = ("law", "exponent n", "chi2", "reduced chi2", "AIC", "BIC", "delta BIC", "p-value")
 """The columns the text shows."""
 
 
@@ -36,9 +37,26 @@ class LawComparison:
 
     table: pd.DataFrame
 
+    def rows(self) -> list[tuple[str, ...]]:
+        """Each law as text: n to its error's digits (a fixed law's n as given), chi-square and the
+        information criteria to a tenth, the p-value in two digits ("—" for the free fit itself)."""
+        rows: list[tuple[str, ...]] = []
+        for law, record in self.table.iterrows():
+            free = law == "free"
+            exponent = (measurement(record["exponent"], record["exponent_stderr"]) if free
+                        else f"{record['exponent']:g} (held)")
+            rows.append((str(law), exponent, f"{record['chi2']:.1f}", f"{record['reduced_chi2']:.3g}",
+                         f"{record['aic']:.1f}", f"{record['bic']:.1f}", f"{record['delta_bic']:.1f}",
+                         "—" if free else p_value(float(record["p_value"]))))
+        return rows
+
     def to_text(self) -> str:
-        """The table, five significant digits."""
-        return self.table[list(COLUMNS)].to_string(float_format=lambda v: f"{v:.5g}")
+        """The table in aligned columns, every number to the digits it supports."""
+        table: list[tuple[str, ...]] = [HEADINGS, *self.rows()]
+        widths = [max(len(row[i]) for row in table) for i in range(len(HEADINGS))]
+        return "\n".join("  ".join(cell.ljust(width) if i == 0 else cell.rjust(width)
+                                    for i, (cell, width) in enumerate(zip(row, widths))).rstrip()
+                         for row in table)
 
     def to_dict(self) -> list[dict[str, Any]]:
         """JSON-safe form: one record per law."""

@@ -32,6 +32,7 @@ from .._types import FloatArray
 from ..dynamics.orbit_model import OrbitModel, observed
 from ..errors import FitError, InputError
 from ..estimators.result import LawFit, OrbitFit
+from ..formatting import estimate, interval
 from ..units import strength_unit
 
 TAU_FACTOR = 50.0
@@ -42,6 +43,9 @@ TAU_SETTLED = 0.05
 
 CHECK_EVERY = 250
 """Steps between convergence checks."""
+
+FIRST_GUESS = 2000
+"""The progress bar's length until the first check estimates the autocorrelation time."""
 
 SAMPLING_RTOL = 1e-10
 """Integration tolerance while sampling: orbit errors near 1e-8 of the size, far below any
@@ -127,14 +131,14 @@ class Posterior:
         return arviz.from_emcee(self.sampler, var_names=names).sel(draw=slice(self.burn_in, None, self.thin))
 
     def rows(self) -> list[IntervalRow]:
-        """Median, 68% and 95% intervals of each column, as text, with units."""
+        """Median, 68% and 95% intervals of each column, as text, with units: the median and the
+        68% interval to two digits of its narrower side, the 95% interval to its own; the ends of
+        an interval always distinct."""
         rows = []
         for name in self.samples:
-            low68, high68 = self.interval(name, 0.68)
-            low95, high95 = self.interval(name, 0.95)
-            rows.append(IntervalRow(name=name, median=f"{float(np.median(self.samples[name])):.7g}",
-                                    interval_68=f"[{low68:.7g}, {high68:.7g}]",
-                                    interval_95=f"[{low95:.7g}, {high95:.7g}]",
+            median, interval_68 = estimate(float(np.median(self.samples[name])), *self.interval(name, 0.68))
+            rows.append(IntervalRow(name=name, median=median, interval_68=interval_68,
+                                    interval_95=interval(*self.interval(name, 0.95)),
                                     unit=self.units.get(name, "")))
         return rows
 
@@ -451,7 +455,8 @@ def _run(sampler: emcee.EnsembleSampler, state: Any, steps: int, min_total: int,
     previous: FloatArray | None = None
     change = math.inf
     if steps > 0:
-        with tqdm(total=steps, disable=not progress, unit="step", desc="sampling",
+        start = sampler.iteration
+        with tqdm(total=min(steps, FIRST_GUESS), disable=not progress, unit="step", desc="sampling",
                   leave=False, mininterval=0.5) as bar:
             for _ in sampler.sample(state, iterations=steps, store=True):
                 bar.update(1)
@@ -461,7 +466,9 @@ def _run(sampler: emcee.EnsembleSampler, state: Any, steps: int, min_total: int,
                 if previous is not None:
                     change = float(np.max(np.abs(previous - tau) / tau))
                 previous = tau
-                bar.set_postfix_str(f"tau {np.max(tau):.0f} steps")
+                bar.total = expected_steps(float(np.max(tau)), sampler.iteration, start + steps) - start
+                bar.set_postfix_str(f"tau {np.max(tau):.0f} steps, about {bar.total} in all")
+                bar.refresh()
                 if (sampler.iteration >= min_total and sampler.iteration > TAU_FACTOR * np.max(tau)
                         and change < TAU_SETTLED):
                     break
@@ -475,6 +482,19 @@ def _run(sampler: emcee.EnsembleSampler, state: Any, steps: int, min_total: int,
                        f"times long ({TAU_FACTOR:.0f} needed; tau up to {np.max(tau):.0f} steps). Run "
                        "longer (raise max_steps, or resume the saved chain).")
     return False, (f"tau is still changing ({100 * change:.0f}% between checks); run longer.")
+
+
+def expected_steps(tau: float, done: int, cap: int) -> int:
+    """How long the chain is expected to run: `TAU_FACTOR` autocorrelation times (with a tenth
+    more for tau to settle), at least one more check than done, at most the cap.
+
+    Examples
+    --------
+    >>> expected_steps(40.0, 500, 20_000), expected_steps(900.0, 500, 20_000)
+    (2250, 20000)
+    """
+    wanted = math.ceil(1.1 * TAU_FACTOR * tau / CHECK_EVERY) * CHECK_EVERY
+    return int(min(cap, max(wanted, done + CHECK_EVERY)))
 
 
 def _collect(sampler: emcee.EnsembleSampler, problem: _Problem, fit: OrbitFit, converged: bool,

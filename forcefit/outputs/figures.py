@@ -18,11 +18,15 @@ import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.patches import Ellipse
+from matplotlib.ticker import MaxNLocator
 
 from .._atomic import write_atomic
+from .._types import FloatArray
 from ..analysis.apsides import Apsides
 from ..estimators.result import LawFit, OrbitFit
+from ..formatting import estimate, measurement
 from ..inference.posterior import Posterior
+from ..reading.inspection import GAP_FACTOR
 from ..track import Track
 
 PALETTE = {"ink": "#1b2631", "data": "#0072B2", "model": "#D55E00", "accent": "#009E73",
@@ -40,8 +44,18 @@ def _label(posterior: Posterior, name: str) -> str:
     return f"{text} [{unit}]" if unit else text
 
 
+def _summary(posterior: Posterior, name: str) -> str:
+    """A parameter's name, median and 68% interval with its unit, to the digits the interval needs."""
+    median, bounds = estimate(float(np.median(posterior.samples[name])), *posterior.interval(name, 0.68),
+                              posterior.units.get(name, ""))
+    return f"{LABELS.get(name, name)} = {median}\n68%: {bounds}"
+
+
 def corner_figure(posterior: Posterior, names: list[str] | None = None) -> Figure:
     """Pairwise marginals of the posterior (``corner`` package), law parameters first.
+
+    Each diagonal panel is titled with the parameter, its median and its 68% interval (with
+    units, to the digits the interval needs) and shades that interval.
 
     Parameters
     ----------
@@ -54,23 +68,33 @@ def corner_figure(posterior: Posterior, names: list[str] | None = None) -> Figur
     names = names or [name for name in ("exponent", "strength", "centre_x", "centre_y", "drag",
                                         "rotation_rate", "noise_scale") if name in posterior.samples]
     values = posterior.samples[names].to_numpy()
-    side = 1.0 + 2.0 * len(names) + 0.1 * (len(names) - 1) + 0.4      # corner's own panel layout
+    side = 1.0 + 2.2 * len(names) + 0.1 * (len(names) - 1) + 0.4      # corner's own panel layout
     figure = corner.corner(values, fig=Figure(figsize=(side, side)),
-                           labels=[_label(posterior, n) for n in names],
-                           quantiles=[0.16, 0.5, 0.84], show_titles=True, title_fmt=".4g",
-                           color=PALETTE["data"], hist_kwargs={"color": PALETTE["data"]},
-                           label_kwargs={"fontsize": 9}, title_kwargs={"fontsize": 8})
-    figure.suptitle("posterior (median and 68% interval in each title)", color=PALETTE["ink"], y=1.03)
+                           labels=[_label(posterior, n) for n in names], show_titles=False,
+                           color=PALETTE["data"],
+                           hist_kwargs={"color": PALETTE["data"], "histtype": "stepfilled", "alpha": 0.35},
+                           label_kwargs={"fontsize": 9, "color": PALETTE["ink"]}, plot_datapoints=False,
+                           fill_contours=True, levels=(0.393, 0.865),
+                           contour_kwargs={"colors": PALETTE["ink"], "linewidths": 0.6})
+    diagonal = [figure.axes[i * (len(names) + 1)] for i in range(len(names))]
+    for axis, name in zip(diagonal, names):
+        low, high = posterior.interval(name, 0.68)
+        axis.axvspan(low, high, color=PALETTE["band"], alpha=0.3, linewidth=0)
+        axis.axvline(float(np.median(posterior.samples[name])), color=PALETTE["model"], linewidth=1.2)
+        axis.set_title(_summary(posterior, name), fontsize=8, loc="left", color=PALETTE["ink"])
+    figure.suptitle("posterior: median (line) and 68% interval (band) of each parameter; "
+                    "contours hold 39% and 86%", color=PALETTE["ink"], fontsize=10, y=1.04)
     return figure
 
 
 def trace_figure(posterior: Posterior, names: list[str] | None = None, walkers: int = 12) -> Figure:
-    """The chains of a few walkers against step number, burn-in shaded."""
+    """The chains of a few walkers against step number, burn-in shaded; each panel titled with
+    the parameter's median and 68% interval."""
     names = names or [name for name in ("exponent", "log_force", "centre_x", "centre_y")
                       if name in posterior.autocorr_time]
     chain = posterior.sampler.get_chain()
     columns = list(posterior.autocorr_time)
-    figure = Figure(figsize=(7.5, 1.7 * len(names) + 0.6))
+    figure = Figure(figsize=(7.5, 2.0 * len(names) + 0.6))
     axes = figure.subplots(len(names), 1, sharex=True, squeeze=False)
     steps = np.arange(chain.shape[0])
     for axis, name in zip(axes[:, 0], names):
@@ -78,10 +102,12 @@ def trace_figure(posterior: Posterior, names: list[str] | None = None, walkers: 
         axis.plot(steps, chain[:, :walkers, index], color=PALETTE["data"], alpha=0.35, linewidth=0.6)
         axis.axvspan(0, posterior.burn_in, color=PALETTE["muted"], alpha=0.2, linewidth=0)
         axis.set_ylabel(_label(posterior, name), fontsize=8)
+        axis.set_title(_summary(posterior, name).replace("\n", "   "), fontsize=8, loc="left",
+                       color=PALETTE["ink"])
         axis.tick_params(labelsize=7)
     axes[-1, 0].set_xlabel("step (grey: burn-in, discarded)")
-    verdict = "converged" if posterior.converged else "NOT converged"
-    figure.suptitle(f"chains of {min(walkers, chain.shape[1])} walkers — {verdict}", fontsize=10)
+    verdict = "converged" if posterior.converged else "not converged"
+    figure.suptitle(f"chains of {min(walkers, chain.shape[1])} walkers: {verdict}", fontsize=10)
     figure.tight_layout()
     return figure
 
@@ -106,9 +132,9 @@ def path_figure(track: Track, fit: LawFit) -> Figure:
     axis.plot(track.x, track.y, ".", color=PALETTE["data"], markersize=2.5, alpha=0.6,
               label="measured")
     if isinstance(fit, OrbitFit) and np.all(np.isfinite(fit.fitted_positions)):
-        predicted = fit.fitted_positions
+        predicted = _broken_at_gaps(fit.fitted_positions, track)
         axis.plot(predicted[:, 0], predicted[:, 1], "-", color=PALETTE["model"], linewidth=1.0,
-                  label=f"fitted orbit, n = {fit.exponent:.4g}")
+                  label=f"fitted orbit, n = {measurement(fit.exponent, fit.exponent_stderr)}")
     cx, cy = fit.centre
     axis.plot([cx], [cy], "+", color=PALETTE["ink"], markersize=12, markeredgewidth=2, label="centre")
     sx, sy = fit.centre_stderr
@@ -131,9 +157,10 @@ def residual_figure(track: Track, fit: LawFit) -> Figure:
     axis = figure.subplots()
     if fit.method == "orbit" and residuals.size == 2 * track.n_points and track.t is not None:
         pairs = residuals.reshape(-1, 2)
-        axis.plot(track.t, pairs[:, 0], ".", markersize=2, color=PALETTE["data"], label="x")
-        axis.plot(track.t, pairs[:, 1], ".", markersize=2, color=PALETTE["band"], label="y")
-        axis.set_xlabel(f"t [{track.time_unit}]", fontsize=9)
+        times, label = time_axis(track.t, track.time_unit, track.metadata.get("time_origin"))
+        axis.plot(times, pairs[:, 0], ".", markersize=2, color=PALETTE["data"], label="x")
+        axis.plot(times, pairs[:, 1], ".", markersize=2, color=PALETTE["band"], label="y")
+        axis.set_xlabel(label, fontsize=9)
         axis.legend(fontsize=8, frameon=False, markerscale=4)
     else:
         axis.plot(np.arange(residuals.size), residuals, ".", markersize=2, color=PALETTE["data"])
@@ -163,7 +190,8 @@ def relation_figure(fit: LawFit) -> Figure:
         line = np.log(fit.force_at_reference) + fit.exponent * (x - np.log(fit.reference_radius))
     else:
         line = np.log(fit.strength_per_h2) + fit.exponent * x
-    axis.plot(x, line, "-", color=PALETTE["model"], label=f"{fit.method} fit: slope n = {fit.exponent:.4g}")
+    axis.plot(x, line, "-", color=PALETTE["model"],
+              label=f"{fit.method} fit: slope n = {measurement(fit.exponent, fit.exponent_stderr)}")
     axis.set_xlabel(f"ln r [r in {length}]", fontsize=9)
     axis.set_ylabel(label, fontsize=9)
     axis.legend(fontsize=8, frameon=False)
@@ -178,20 +206,21 @@ def apsides_figure(apsides: Apsides) -> Figure:
     drift = np.degrees(turn)
     errors = np.degrees([apse.angle_stderr for apse in apsides.apses])
     where = np.array([apse.time for apse in apsides.apses])
-    use_time = bool(np.all(np.isfinite(where)))
-    x = where if use_time else count
+    use_time = bool(np.all(np.isfinite(where))) and apsides.time_unit is not None
+    x, time_label = time_axis(where, apsides.time_unit or "") if use_time else (count, "apse number")
     figure = Figure(figsize=(6.5, 3.0))
     axis = figure.subplots()
     for kind, colour in (("pericentre", PALETTE["data"]), ("apocentre", PALETTE["band"])):
         chosen = np.array([apse.kind == kind for apse in apsides.apses])
         axis.errorbar(x[chosen], drift[chosen], yerr=errors[chosen], fmt="o", markersize=3,
                       color=colour, label=kind)
-    axis.set_xlabel(f"t [{apsides.time_unit}]" if use_time else "apse number", fontsize=9)
+    axis.set_xlabel(time_label, fontsize=9)
     axis.set_ylabel("turn of the apse [deg]", fontsize=9)
     axis.legend(fontsize=8, frameon=False)
     _style(axis)
-    axis.set_title(f"precession {np.degrees(apsides.precession_per_revolution):+.4g} deg per "
-                   "revolution", fontsize=10)
+    precession = measurement(float(np.degrees(apsides.precession_per_revolution)),
+                             float(np.degrees(apsides.precession_per_revolution_stderr)))
+    axis.set_title(f"precession {precession} deg per revolution", fontsize=10)
     return figure
 
 
@@ -210,10 +239,41 @@ def grade_histogram(exponents: Sequence[float], expected: float, tolerance: floa
     axis.axvline(expected, color=PALETTE["ink"], linewidth=1.0)
     axis.set_xlabel("fitted exponent n", fontsize=9)
     axis.set_ylabel("runs", fontsize=9)
+    axis.yaxis.set_major_locator(MaxNLocator(integer=True))
     axis.legend(fontsize=8, frameon=False)
     _style(axis)
     axis.set_title("exponents of the class against the tolerance band", fontsize=10)
     return figure
+
+
+def time_axis(times: FloatArray, unit: str, origin: str | None = None) -> tuple[FloatArray, str]:
+    """Times to plot and the axis label: counted from the first sample, whose time is stated,
+    when the times start far from zero (a Julian date, a clock), else as they are.
+
+    Examples
+    --------
+    >>> values, label = time_axis(np.array([2460000.5, 2460004.5]), "d")
+    >>> values.tolist(), label
+    ([0.0, 4.0], 't - t0 [d], t0 = 2460000.5 d (the first sample)')
+    """
+    times = np.asarray(times, dtype=float)
+    first = float(times[0]) if times.size else 0.0
+    if origin:
+        return times, f"t [{unit}] from {origin}"
+    span = float(np.ptp(times)) if times.size else 0.0
+    if first == 0.0 or abs(first) < 10.0 * span:
+        return times, f"t [{unit}]"
+    return times - first, f"t - t0 [{unit}], t0 = {first:.12g} {unit} (the first sample)"
+
+
+def _broken_at_gaps(points: FloatArray, track: Track) -> FloatArray:
+    """Points of a curve along the samples with a nan row at each gap in the times (dropped frames,
+    a season without observations), so that a line is broken there instead of drawn as a chord."""
+    if track.t is None or track.n_points < 3 or points.shape[0] != track.n_points:
+        return points
+    steps = np.diff(track.t)
+    gaps = np.flatnonzero(steps > GAP_FACTOR * np.median(steps)) + 1
+    return np.insert(np.asarray(points, dtype=float), gaps, np.nan, axis=0)
 
 
 def figure_png(figure: Figure, *, dpi: int = 110) -> bytes:

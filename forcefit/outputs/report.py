@@ -13,7 +13,7 @@ import datetime as _dt
 import math
 import os
 import re
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -22,10 +22,11 @@ from jinja2 import Environment, PackageLoader, select_autoescape
 from matplotlib.figure import Figure
 
 from .._atomic import write_atomic
+from .._types import Row
 from .._version import __version__
 from ..analysis.apsides import Apsides
 from ..estimators.result import LawFit, OrbitFit
-from ..formatting import measurement
+from ..formatting import CHECK_MARKS, CHECK_WORDS, measurement
 from ..inference.posterior import Posterior
 from ..track import Track
 from .figures import (
@@ -68,9 +69,48 @@ class Verdict:
 
 
 def _diagnostics(fit: LawFit) -> list[dict[str, str]]:
-    symbols = {True: ("✔", "pass"), False: ("✘", "fail"), None: ("·", "note")}
-    return [{"symbol": symbols[check.passed][0], "mark": symbols[check.passed][1], "name": name,
-             "message": check.message} for name, check in fit.diagnostics.items()]
+    classes = {True: "pass", False: "fail", None: "note"}
+    return [{"symbol": CHECK_MARKS[check.passed], "word": CHECK_WORDS[check.passed],
+             "mark": classes[check.passed], "name": name, "message": check.message}
+            for name, check in fit.diagnostics.items()]
+
+
+def _record(track: Track | None, options: Mapping[str, Any] | None) -> list[tuple[str, str]]:
+    """How the run was read and fitted: its source, columns, units and where they came from, the
+    calibration or plane mapping, the rows left out, the notes, and every option used."""
+    record: list[tuple[str, str]] = []
+    if track is not None:
+        meta = track.metadata
+        units_from = meta.get("units_from", {})
+        record += [("source", str(meta.get("source", "arrays"))),
+                   ("columns", ", ".join(f"{role}: {header}" for role, header in
+                                         meta.get("columns", {}).items()) or "given as arrays"),
+                   ("units", f"length {track.length_unit} ({units_from.get('length', 'as given')})"
+                             + (f", time {track.time_unit} ({units_from.get('time', 'as given')})"
+                                if track.has_times else ", no times"))]
+        for key, label in (("calibration", "calibration"), ("plane_mapping", "plane mapping"),
+                           ("plane", "plane of a 3-D track")):
+            if meta.get(key):
+                record.append((label, _describe(meta[key])))
+        if meta.get("dropped_rows"):
+            record.append(("rows left out", f"{meta['dropped_rows']} (empty cells): rows "
+                                            + ", ".join(map(str, meta.get("dropped_row_numbers", [])))))
+        record += [("note", str(note)) for note in meta.get("warnings", ())]
+    for name, value in (options or {}).items():
+        if value not in (None, False, (), [], {}):
+            record.append((f"option {name}", _describe(value)))
+    return record
+
+
+def _describe(value: Any) -> str:
+    """A recorded value as one line of text."""
+    if isinstance(value, Mapping):
+        return ", ".join(f"{key} {_describe(item)}" for key, item in value.items())
+    if isinstance(value, (list, tuple)):
+        return "(" + ", ".join(_describe(item) for item in value) + ")"
+    if isinstance(value, float):
+        return f"{value:.10g}"
+    return str(value)
 
 
 def _track_of(fit: LawFit, track: Track | None) -> Track | None:
@@ -87,6 +127,8 @@ def write_report(
     posterior: Posterior | None = None,
     apsides: Apsides | None = None,
     verdict: Verdict | None = None,
+    options: Mapping[str, Any] | None = None,
+    extras: Sequence[tuple[str, Sequence[Row]]] = (),
 ) -> Path:
     """Write one run's report: an HTML page with every number and figure, and the PNGs.
 
@@ -102,6 +144,11 @@ def write_report(
         Shown when given.
     verdict : Verdict, optional
         A grade to show at the top; default the fit's own checks.
+    options : mapping, optional
+        The options the run was read and fitted with (units, calibration, latitude, ...); the
+        page records every one that was set, beside what the track itself records.
+    extras : sequence of (title, rows)
+        Further results to show beside the fit (the nominal law, a correction), each a section.
 
     Returns
     -------
@@ -143,6 +190,7 @@ def write_report(
         verdict=verdict.label, verdict_class={True: "pass", False: "fail", None: "note"}[verdict.passed],
         reasons=verdict.reasons, quantities=fit.rows(), diagnostics=_diagnostics(fit),
         posterior=posterior, apsides=apsides.rows() if apsides is not None else None, figures=figures,
+        record=_record(track, options), extras=[(title, list(rows)) for title, rows in extras],
         version=__version__, written=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
     )
     return write_atomic(folder / f"{slug}.html", html)
@@ -179,7 +227,8 @@ def write_class_report(
         k_error = _number(row.get("strength_at_expected_stderr"))
         runs.append({
             "name": row["run"], "report": row.get("report") or "",
-            "grade": "pass" if row["passed"] else "fail", "mark": "pass" if row["passed"] else "fail",
+            "grade": "meets the rule" if row["passed"] else "does not meet it",
+            "symbol": CHECK_MARKS[bool(row["passed"])], "mark": "pass" if row["passed"] else "fail",
             "exponent": measurement(exponent, error) if math.isfinite(exponent) else "—",
             "strength": measurement(k, k_error, strength_unit) if math.isfinite(k) else "—",
             "reason": row.get("reason", ""),

@@ -306,11 +306,12 @@ def _column_notes(table: RawTable, chosen: Mapping[str, Column], options: _Optio
     if not unknown:
         return []
     listed = ", ".join(f'"{header}"' for header in unknown)
+    which = f"the column {listed} was" if len(unknown) == 1 else f"the columns {listed} were"
     if "t" not in chosen and "frame" not in chosen and options.frame_rate is None:
         return [f"no time column was recognised, so the path is read without times (shape only); "
-                f"the columns {listed} were not recognised. If one holds the times, name it: "
+                f"{which} not recognised. If one holds the times, name it: "
                 f'--column t="{unknown[0]}" (t="{unknown[0]}" in Python).']
-    return [f"columns not recognised and not used: {listed}. If one holds t, x, y or sigma, name it "
+    return [f"{which[4:]} not recognised and not used. If one holds t, x, y or sigma, name it "
             f'with --column ROLE=NAME (e.g. --column sigma="{unknown[0]}").']
 
 
