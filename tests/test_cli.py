@@ -1,13 +1,14 @@
 """The forcefit command: help with examples, inspect, simulate, demo, exit codes."""
 
 import json
+import re
 import subprocess
 import sys
 
 import numpy as np
 import pytest
 
-from forcefit.cli import main
+from forcefit.cli import build_parser, main
 from forcefit.estimators import ESTIMATORS
 from forcefit.reading.loaders import load_track
 
@@ -217,3 +218,45 @@ def test_inspect_finds_t_x_y_and_their_units_in_french_and_german_headers(tmp_pa
     assert main(["inspect", str(path)]) == 0
     out = capsys.readouterr().out
     assert expected[0] in out and expected[1] in out
+
+
+def test_fit_prints_k_at_the_nominal_exponent_g_and_the_deviation(tmp_path, capsys):
+    # issue 15, item 6: the strength at n = 1 (omega^2 in s^-2), g with --pendulum-length, and the
+    # deviation from the nominal law with its significance
+    path = tmp_path / "bob.csv"
+    assert main(["simulate", "--pendulum", "2.0", "--start", "0.06,0", "--velocity", "0,0.05",
+                 "--duration", "20", "--rate", "30", "--noise", "0.0002", "--seed", "2",
+                 "--out", str(path)]) == 0
+    capsys.readouterr()
+    main(["fit", str(path), "--pendulum-length", "2.000+-0.002 m", "--center", "0,0"])
+    out = capsys.readouterr().out
+    assert "against Hooke's law (a linear restoring force), n = 1:" in out
+    k = re.search(r"k at n = 1 +([0-9.]+) ± ([0-9.]+) s\^-2", out)
+    g = re.search(r"g = k L +([0-9.]+) ± ([0-9.]+) m/s\^2", out)
+    assert k and g and float(k[1]) == pytest.approx(4.905, rel=2e-3)
+    assert float(g[1]) == pytest.approx(9.81, rel=2e-3) and float(g[2]) == pytest.approx(0.0098, rel=0.1)
+    assert re.search(r"deviation from n = 1 +-?[0-9.]+ ± [0-9.]+ .* standard errors? \(p", out)
+    # beside the raw values, the same with the finite swing taken off (an ideal pendulum of this swing)
+    corrected = re.search(r"exponent, finite amplitude removed +([-0-9.]+) ± ([0-9.]+)", out)
+    assert corrected and abs(float(corrected[1]) - 1.0) < 3 * float(corrected[2])
+    assert main(["fit", str(path), "--json", "--nominal", "1"]) in (0, 1)
+    report = json.loads(capsys.readouterr().out)[0]
+    assert report["deviation"]["nominal"] == 1.0 and report["deviation"]["strength_unit"] == "s^-2"
+    assert "pendulum" not in report                                   # no length, no correction
+
+
+def test_simulate_pendulum_writes_the_units_asked_for(tmp_path, capsys):
+    # issue 15: simulate --pendulum ... --length-unit mm still wrote metres
+    out = tmp_path / "bob.csv"
+    assert main(["simulate", "--pendulum", "2.4", "--start", "0.2,0", "--velocity", "0,0.1",
+                 "--duration", "3", "--rate", "10", "--length-unit", "mm", "--time-unit", "ms",
+                 "--out", str(out)]) == 0
+    track = load_track(out)
+    assert (track.length_unit, track.time_unit) == ("mm", "ms")
+    assert track.x[0] == pytest.approx(200.0) and track.t[-1] == pytest.approx(3000.0)
+    assert "'units': {'length': 'm', 'time': 's'}" in out.read_text().splitlines()[1]
+
+
+def test_center_is_accepted_as_centre(capsys):
+    args = build_parser().parse_args(["fit", "run.csv", "--center", "1.5,-2"])
+    assert args.centre == (1.5, -2.0)

@@ -1,4 +1,5 @@
-"""The deviation from a nominal law, and the precession it implies, against measured apses."""
+"""The deviation from a nominal law: the strength there (omega, g = k L), the significance, and the
+precession it implies, against measured apses."""
 
 import math
 
@@ -8,8 +9,8 @@ import pytest
 from forcefit.analysis.apsides import measure_apsides
 from forcefit.analysis.deviation import deviation_from
 from forcefit.cli import main
-from forcefit.dynamics.simulate import simulate_orbit
-from forcefit.estimators import fit_orbit
+from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum
+from forcefit.estimators import fit_orbit, fit_shape
 
 
 @pytest.fixture(scope="module")
@@ -64,3 +65,42 @@ def test_fit_states_the_deviation_from_the_nearer_nominal_law(tmp_path, capsys):
     assert report["deviation"]["nominal"] == -1.9
     assert report["deviation"]["delta"] == pytest.approx(report["exponent"] + 1.9)
     assert np.isnan(report["deviation"]["precession_per_orbit"] or np.nan)
+
+
+@pytest.fixture(scope="module")
+def pendulum_fit():
+    track = simulate_pendulum(length=2.0, gravity=9.81, start=(0.05, 0.0), velocity=(0.0, 0.05),
+                              duration=20.0, rate=30.0, noise=2e-4, rng=3)
+    return fit_orbit(track)
+
+
+def test_a_small_swing_gives_g_over_l_and_g(pendulum_fit):
+    # A pendulum of small amplitude a obeys Hooke's law with k = omega^2 = g/L (common practice);
+    # the finite amplitude changes omega^2 by a fraction of order (a/L)^2 ~ 6e-4 here.
+    law = deviation_from(pendulum_fit, 1.0, pendulum_length=(2.0, "m"), pendulum_length_stderr=0.002)
+    assert law.nominal == 1.0 and law.strength_unit == "s^-2"
+    assert law.strength == pytest.approx(9.81 / 2.0, rel=2e-3)
+    assert law.angular_frequency == pytest.approx(math.sqrt(9.81 / 2.0), rel=1e-3)
+    assert law.gravity == pytest.approx(9.81, rel=2e-3) and law.gravity_unit == "m/s^2"
+    assert law.gravity_stderr == pytest.approx(law.strength * 0.002, rel=0.05)   # L's error dominates
+    labels = [row.label for row in law.rows()]
+    assert labels == ["k at n = 1", "angular frequency", "g = k L", "with L", "deviation from n = 1"]
+
+
+def test_the_deviation_its_significance_and_p_value():
+    fit = fit_orbit(simulate_orbit(exponent=-1.9, noise=1e-3, rng=5))
+    law = deviation_from(fit, -2.0)
+    assert law.delta == pytest.approx(fit.exponent + 2.0)
+    assert law.significance == pytest.approx(abs(law.delta) / fit.exponent_stderr)
+    assert not law.consistent and "differs from the inverse-square law" in law.verdict()
+    assert law.strength_unit == "m^3 s^-2" and math.isnan(law.gravity)
+    # two-sided normal tail: p = 2 (1 - Phi(|z|)) (common practice)
+    assert deviation_from(fit, fit.exponent + 1.96 * fit.exponent_stderr).p_value \
+        == pytest.approx(0.05, rel=1e-3)
+
+
+def test_without_timestamps_only_the_deviation_is_given():
+    fit = fit_shape(simulate_orbit(exponent=1.0, noise=1e-3, rng=1).shape_only(), centre=(0.0, 0.0))
+    law = deviation_from(fit, 1.0, pendulum_length=(2.0, "m"))
+    assert math.isnan(law.strength) and law.strength_unit == "" and math.isnan(law.gravity)
+    assert law.rows()[0].text == "not determined (no timestamps)"

@@ -23,9 +23,10 @@ from .._types import FloatArray, Row
 from ..dynamics.laws import exponent_from_apsidal_angle, lab_rotation_rate, pendulum_precession_rate
 from ..errors import InputError, NotIdentifiable
 from ..estimators.result import Diagnostic
+from ..formatting import CHECK_MARKS, measurement
 from ..geometry.path import PathGeometry, describe_path
 from ..track import Track
-from ..units import format_measurement, length_factor, time_factor
+from ..units import length_factor, time_factor
 
 WINDOW = 0.3
 """Half-width of the local fit around an apse, as a fraction of the apsidal angle."""
@@ -125,21 +126,21 @@ class Apsides:
         per_orbit_se = math.degrees(self.precession_per_revolution_stderr)
         rows = [
             Row("apses found", f"{len(self.apses)} over {self.orbits:.3g} orbits", brief=False),
-            Row("apsidal angle", format_measurement(math.degrees(self.apsidal_angle),
+            Row("apsidal angle", measurement(math.degrees(self.apsidal_angle),
                                                     math.degrees(self.apsidal_angle_stderr)),
                 f"deg (closed orbit: {180 / self.closure:g} deg)"),
-            Row("precession", format_measurement(per_orbit, per_orbit_se),
+            Row("precession", measurement(per_orbit, per_orbit_se),
                 "deg per orbit, in the sense of the motion"),
         ]
         if math.isfinite(self.precession_rate):
-            rows.append(Row("", format_measurement(self.precession_rate, self.precession_rate_stderr),
+            rows.append(Row("", measurement(self.precession_rate, self.precession_rate_stderr),
                             f"rad/{self.time_unit or ''}"))
             century, century_se = self.precession_per_century
             if math.isfinite(century):
-                rows.append(Row("", format_measurement(century, century_se), "arcsec per century"))
+                rows.append(Row("", measurement(century, century_se), "arcsec per century"))
         rows += [
             Row("r_max / r_min", f"{self.radius_ratio:.6g}"),
-            Row("exponent", format_measurement(self.exponent, self.exponent_stderr),
+            Row("exponent", measurement(self.exponent, self.exponent_stderr),
                 f"(exact apsidal integral); near-circular formula gives {self.exponent_near_circular:.8g}"),
         ]
         return rows
@@ -150,14 +151,13 @@ class Apsides:
         lines = [f"  {'apse':<11} {'angle [deg]':>18} {'radius [' + length + ']':>24} "
                  f"{'time [' + time + ']':>20}"]
         for apse in self.apses:
-            angle = format_measurement(math.degrees(apse.angle), math.degrees(apse.angle_stderr))
+            angle = measurement(math.degrees(apse.angle), math.degrees(apse.angle_stderr))
             lines.append(f"  {apse.kind:<11} {angle:>18} "
-                         f"{format_measurement(apse.radius, apse.radius_stderr):>24} "
+                         f"{measurement(apse.radius, apse.radius_stderr):>24} "
                          f"{_epoch_text(apse.time, apse.time_stderr, time):>20}")
         lines += [f"  {row.label:<18} {row.text}" for row in self.rows() if row.brief]
-        for name, check in self.diagnostics.items():
-            mark = {True: "ok  ", False: "FAIL", None: "note"}[check.passed]
-            lines.append(f"  [{mark}] {name}: {check.message}")
+        lines += [f"  {CHECK_MARKS[check.passed]} {name}: {check.message}"
+                  for name, check in self.diagnostics.items()]
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:

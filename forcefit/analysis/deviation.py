@@ -1,4 +1,10 @@
-"""How far a fitted law is from a nominal one, and what that deviation means for an orbit.
+"""How far a fitted law is from a nominal one: its strength there, and what the deviation means.
+
+A lab expects a nominal law (Hooke's n = 1 for a pendulum or a tethered puck, the inverse square
+n = -2 for an orbit about a star). The fitted k belongs to the fitted n, so its unit carries a
+stray power of length (px**0.0095 s**-2 at n = 0.9905); the strength at the nominal exponent,
+k0 = |F(r_ref)| / r_ref**n0, is the number to compare with the nominal one: at n0 = 1 it is
+omega**2 (1/time**2, whatever the length unit), and for a pendulum of length L it gives g = k0 L.
 
 An astronomer's question: does the orbit deviate from inverse-square? A small change of the
 exponent, n = -2 - delta, turns the orbit: the apses advance by 2 pi delta / (1 + sqrt(1 - e**2))
@@ -13,17 +19,26 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from scipy import stats
 
 from .._json import json_safe
 from .._types import Row
 from ..errors import InputError
 from ..estimators.result import LawFit, OrbitFit
-from ..units import format_measurement, time_factor
+from ..formatting import measurement, p_phrase, significance
+from ..units import length_factor, strength_unit, time_factor
 
 ARCSEC = 180.0 * 3600.0 / math.pi
 """Seconds of arc per radian."""
 
 NEWTON = -2.0
+
+AGREEMENT = 3.0
+"""A deviation within this many standard errors is consistent with the nominal law."""
+
+NOMINAL_NAMES = {1.0: "Hooke's law (a linear restoring force)", -2.0: "the inverse-square law",
+                 0.0: "a constant pull", -1.0: "an inverse-distance force"}
+"""Names of the nominal laws the trade uses (common practice)."""
 
 
 @dataclass(frozen=True)
@@ -39,6 +54,19 @@ class Deviation:
         residuals where the fit did so).
     significance : float
         |delta| / delta_stderr.
+    p_value : float
+        The two-sided normal probability of a deviation at least this large if the nominal law
+        held.
+    strength, strength_stderr : float
+        k0 = |F(r_ref)| / r_ref**nominal in ``strength_unit`` (length**(1 - nominal) time**-2);
+        nan without timestamps.
+    strength_unit : str
+    angular_frequency, angular_frequency_stderr : float
+        sqrt(k0) in rad per time unit (nominal 1 only; nan otherwise).
+    pendulum_length, pendulum_length_stderr : float
+        L as given, in ``pendulum_length_unit``; nan when not given.
+    gravity, gravity_stderr : float
+        g = k0 L in ``gravity_unit`` (nominal 1 and a length given; nan otherwise).
     eccentricity : float
         (r_max - r_min) / (r_max + r_min) of the fitted orbit (nan without one).
     period : float
@@ -56,6 +84,18 @@ class Deviation:
     delta: float
     delta_stderr: float
     significance: float
+    p_value: float = math.nan
+    strength: float = math.nan
+    strength_stderr: float = math.nan
+    strength_unit: str = ""
+    angular_frequency: float = math.nan
+    angular_frequency_stderr: float = math.nan
+    pendulum_length: float = math.nan
+    pendulum_length_stderr: float = math.nan
+    pendulum_length_unit: str = ""
+    gravity: float = math.nan
+    gravity_stderr: float = math.nan
+    gravity_unit: str = ""
     eccentricity: float = math.nan
     period: float = math.nan
     precession_per_orbit: float = math.nan
@@ -64,40 +104,85 @@ class Deviation:
     precession_per_century_stderr: float = math.nan
     time_unit: str | None = None
 
+    @property
+    def name(self) -> str:
+        """The nominal law in words."""
+        return NOMINAL_NAMES.get(self.nominal, f"n = {self.nominal:g}")
+
+    @property
+    def consistent(self) -> bool:
+        """Whether n lies within `AGREEMENT` standard errors of the nominal exponent."""
+        return self.significance <= AGREEMENT
+
+    def verdict(self) -> str:
+        """The deviation's significance in words, with its p-value and what it says of the law."""
+        size = significance(self.delta, self.delta_stderr)
+        if not math.isfinite(self.p_value):
+            return size
+        word = "consistent with" if self.consistent else "differs from"
+        return f"{size} ({p_phrase(self.p_value)}): {word} {self.name}"
+
     def rows(self) -> list[Row]:
-        """The deviation and what it implies, as rows with units."""
-        rows = [Row(f"deviation from n = {self.nominal:g}", format_measurement(self.delta, self.delta_stderr),
-                    f"({self.significance:.2g} standard errors)")]
+        """The strength at the nominal exponent (omega and g where they apply), the deviation and
+        what it implies, as rows with units."""
+        n0 = f"{self.nominal:g}"
+        if math.isfinite(self.strength):
+            rows = [Row(f"k at n = {n0}", measurement(self.strength, self.strength_stderr),
+                        self.strength_unit)]
+        else:
+            rows = [Row(f"k at n = {n0}", "not determined (no timestamps)")]
+        if math.isfinite(self.angular_frequency):
+            rows.append(Row("angular frequency", measurement(self.angular_frequency,
+                                                             self.angular_frequency_stderr),
+                            f"rad/{self.time_unit}"))
+        if math.isfinite(self.gravity):
+            rows.append(Row("g = k L", measurement(self.gravity, self.gravity_stderr), self.gravity_unit))
+            rows.append(Row("with L", measurement(self.pendulum_length, self.pendulum_length_stderr or None),
+                            self.pendulum_length_unit))
+        rows.append(Row(f"deviation from n = {n0}", measurement(self.delta, self.delta_stderr),
+                        self.verdict()))
         if math.isfinite(self.precession_per_orbit):
             rows.append(Row("implied precession",
-                            format_measurement(math.degrees(self.precession_per_orbit),
-                                               math.degrees(self.precession_per_orbit_stderr)),
+                            measurement(math.degrees(self.precession_per_orbit),
+                                        math.degrees(self.precession_per_orbit_stderr)),
                             f"deg per orbit (e = {self.eccentricity:.3g})"))
         if math.isfinite(self.precession_per_century):
-            rows.append(Row("", format_measurement(self.precession_per_century,
-                                                   self.precession_per_century_stderr),
+            rows.append(Row("", measurement(self.precession_per_century, self.precession_per_century_stderr),
                             "arcsec per century"))
         return rows
 
     def to_text(self) -> str:
-        """The rows as indented lines."""
-        return "\n".join(f"  {row.label:<28} {row.text}" for row in self.rows())
+        """A heading naming the law, then the rows as indented lines."""
+        return "\n".join([f"  against {self.name}, n = {self.nominal:g}:"]
+                         + [f"  {row.label:<28} {row.text}" for row in self.rows()])
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-safe form (angles in rad)."""
-        return json_safe(dict(vars(self)))
+        """JSON-safe form (angles in rad), numbers at full precision."""
+        return json_safe({**vars(self), "name": self.name, "consistent": self.consistent})
 
 
-def deviation_from(fit: LawFit, nominal: float = NEWTON) -> Deviation:
-    """The fitted exponent's deviation from ``nominal`` and, against Newton's law, the apsidal
-    precession it implies.
+def deviation_from(
+    fit: LawFit,
+    nominal: float = NEWTON,
+    *,
+    pendulum_length: tuple[float, str] | None = None,
+    pendulum_length_stderr: float = 0.0,
+) -> Deviation:
+    """The fitted exponent's deviation from ``nominal``, the strength at ``nominal`` and, against
+    Newton's law, the apsidal precession the deviation implies.
 
     Parameters
     ----------
     fit : LawFit
-        Any fit; the precession needs an `OrbitFit` (its fitted orbit gives e and a).
+        Any fit; the precession needs an `OrbitFit` (its fitted orbit gives e and a), the
+        strength timestamps.
     nominal : float
         The nominal exponent.
+    pendulum_length : (float, str), optional
+        A pendulum's length and its unit, e.g. ``(2.40, "m")``: against n = 1, g = k0 L is
+        given too (in m/s**2 when the units convert to metres and seconds).
+    pendulum_length_stderr : float
+        Standard error of the length, same unit; added in quadrature to g's error.
 
     Returns
     -------
@@ -112,10 +197,12 @@ def deviation_from(fit: LawFit, nominal: float = NEWTON) -> Deviation:
     True
     """
     delta, error = fit.exponent - nominal, fit.exponent_stderr
-    significance = abs(delta) / error if error > 0 else math.inf
+    size = abs(delta) / error if error > 0 else (math.inf if delta else 0.0)
+    common: dict[str, Any] = {"nominal": nominal, "delta": delta, "delta_stderr": error, "significance": size,
+              "p_value": float(2.0 * stats.norm.sf(size)), "time_unit": fit.time_unit,
+              **_strength_at_nominal(fit, nominal, pendulum_length, pendulum_length_stderr)}
     if not isinstance(fit, OrbitFit) or nominal != NEWTON:
-        return Deviation(nominal=nominal, delta=delta, delta_stderr=error, significance=significance,
-                         time_unit=fit.time_unit)
+        return Deviation(**common)
     positions = fit.fitted_positions - np.asarray(fit.centre)
     radius = np.hypot(positions[:, 0], positions[:, 1])
     low, high = float(np.nanmin(radius)), float(np.nanmax(radius))
@@ -131,7 +218,31 @@ def deviation_from(fit: LawFit, nominal: float = NEWTON) -> Deviation:
         except InputError:                 # a time unit that is no time (frames): no rate per century
             orbits = math.nan
         century, century_se = per_orbit * orbits * ARCSEC, per_orbit_se * orbits * ARCSEC
-    return Deviation(nominal=nominal, delta=delta, delta_stderr=error, significance=significance,
-                     eccentricity=eccentricity, period=period, precession_per_orbit=per_orbit,
+    return Deviation(**common, eccentricity=eccentricity, period=period, precession_per_orbit=per_orbit,
                      precession_per_orbit_stderr=per_orbit_se, precession_per_century=century,
-                     precession_per_century_stderr=century_se, time_unit=fit.time_unit)
+                     precession_per_century_stderr=century_se)
+
+
+def _strength_at_nominal(fit: LawFit, nominal: float, length: tuple[float, str] | None,
+                         length_error: float) -> dict[str, Any]:
+    """k at the nominal exponent, and at n = 1 omega and (with a length) g, as `Deviation` fields."""
+    if not fit.time_unit:
+        return {}
+    k0, k0_error = fit.strength_at_exponent(nominal)
+    fields: dict[str, Any] = {"strength": k0, "strength_stderr": k0_error,
+                              "strength_unit": strength_unit(fit.length_unit, fit.time_unit, nominal)}
+    if nominal != 1.0 or not (math.isfinite(k0) and k0 > 0):
+        return fields
+    omega = math.sqrt(k0)
+    fields.update(angular_frequency=omega, angular_frequency_stderr=0.5 * k0_error / omega)
+    if length is None:
+        return fields
+    value, unit = length
+    try:
+        factor, gravity_unit = length_factor(unit, "m") * time_factor("s", fit.time_unit) ** 2, "m/s^2"
+    except InputError:                              # pixels, or a time unit that is no time
+        factor, gravity_unit = 1.0, f"{unit}/{fit.time_unit}^2"
+    fields.update(pendulum_length=value, pendulum_length_stderr=length_error, pendulum_length_unit=unit,
+                  gravity=k0 * value * factor, gravity_unit=gravity_unit,
+                  gravity_stderr=math.hypot(k0_error * value, k0 * length_error) * factor)
+    return fields

@@ -24,8 +24,9 @@ from ..dynamics.simulate import spherical_pendulum_states
 from ..errors import InputError
 from ..estimators.orbit import fit_orbit
 from ..estimators.result import OrbitFit
+from ..formatting import measurement
 from ..track import Track
-from ..units import PIXEL, format_measurement, strength_unit
+from ..units import PIXEL, strength_unit
 
 
 @dataclass(frozen=True)
@@ -68,10 +69,10 @@ class PendulumCorrection:
                                                 f"omega^2 x {self.ideal_strength_ratio:.6f}",
                 "(what the fit finds on the exact motion)"),
             Row("exponent, finite amplitude removed",
-                format_measurement(self.exponent, self.exponent_stderr)),
-            Row("g / L", format_measurement(self.omega_squared, self.omega_squared_stderr),
+                measurement(self.exponent, self.exponent_stderr)),
+            Row("g / L", measurement(self.omega_squared, self.omega_squared_stderr),
                 strength_unit(self.length_unit, self.time_unit, 1.0)),
-            Row("g", format_measurement(self.gravity, self.gravity_stderr),
+            Row("g", measurement(self.gravity, self.gravity_stderr),
                 f"{self.length_unit} {self.time_unit}^-2 (with L = {self.length:g} {self.length_unit})"),
         ]
 

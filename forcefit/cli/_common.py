@@ -36,10 +36,23 @@ def pair(text: str) -> tuple[float, float]:
 
 def length(text: str) -> tuple[float, str]:
     """Parse a length with its unit, ``"1.6 mm"`` or ``"0.5m"``."""
-    match = re.fullmatch(r"\s*([-+0-9.eE]+)\s*([A-Za-z]+)\s*", text)
+    value, _, unit = measured_length(text)
+    return value, unit
+
+
+def measured_length(text: str) -> tuple[float, float, str]:
+    """Parse a length with an optional standard error and its unit: ``"2.40 m"``,
+    ``"2.400+-0.003 m"`` or ``"2.400 ± 0.003 m"``; the error is 0 when not given."""
+    number = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+    match = re.fullmatch(rf"\s*({number})\s*(?:(?:\+-|±|\+/-)\s*({number}))?\s*([A-Za-z]+)\s*", text)
     if match is None:
-        raise argparse.ArgumentTypeError(f'expected a length with its unit such as "1.6 mm", got "{text}"')
-    return float(match[1]), match[2]
+        raise argparse.ArgumentTypeError(f'expected a length with its unit such as "1.6 mm" (or '
+                                         f'"2.400+-0.003 m" with its error), got "{text}"')
+    try:
+        return float(match[1]), float(match[2] or 0.0), match[3]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f'expected a length with its unit such as "1.6 mm", '
+                                         f'got "{text}"') from None
 
 
 def column(text: str) -> tuple[str, str]:
@@ -125,6 +138,16 @@ def loading_keywords(args: argparse.Namespace) -> dict[str, object]:
 def read_tracks(path: str, args: argparse.Namespace) -> list[Track]:
     """Load the tracks of one file with the reading and calibration options."""
     return load_tracks(path, **loading_keywords(args))  # type: ignore[arg-type]
+
+
+def recorded_options(args: argparse.Namespace) -> dict[str, Any]:
+    """The options of a command that were set (differ from their defaults), for a report's record.
+
+    The command's parser must be in ``args.parser`` (``set_defaults(parser=...)``)."""
+    parser: argparse.ArgumentParser = args.parser
+    skip = {"handler", "parser", "command", "json", "report", "file", "files", "source"}
+    return {name: value for name, value in vars(args).items()
+            if name not in skip and value != parser.get_default(name)}
 
 
 def emit(as_json: bool, report: Mapping[str, Any], text: str) -> None:

@@ -4,20 +4,24 @@ from __future__ import annotations
 
 import argparse
 import math
-from typing import Any
+from dataclasses import dataclass
+from typing import Any, Protocol
 
+from .._types import Row
 from ..analysis.apsides import MIN_SECULAR_ORBITS, measure_apsides
-from ..analysis.deviation import deviation_from
+from ..analysis.deviation import Deviation, deviation_from
 from ..analysis.duality_check import check_duality
+from ..analysis.pendulum import pendulum_correction
 from ..errors import ForcefitError, InputError
 from ..estimators import ESTIMATORS, LawFit, OrbitFit, fit_orbit, force_profile, registry
 from ..estimators.projected import fit_projected
+from ..formatting import measurement
 from ..geometry.path import describe_path
 from ..inference.comparison import compare_laws
 from ..outputs.report import write_report
 from ..reading.astrometry import load_astrometry
 from ..track import Track
-from ..units import format_measurement
+from ..units import length_factor
 from ._camera import camera_lines, camera_record
 from ._common import (
     EXIT_FAILED_CHECKS,
@@ -26,14 +30,17 @@ from ._common import (
     Reports,
     add_centre_option,
     add_orbit_options,
+    measured_length,
     orbit_options,
     read_tracks,
+    recorded_options,
 )
 
 _FIT_EXAMPLES = """\
 examples:
   forcefit fit run_04.csv                       # full-orbit fit (timestamps), centre from the data
   forcefit fit run_04.csv --compare 1,-2        # each nominal law against the free fit
+  forcefit fit bob.csv --pendulum-length "2.40 m"   # k at n = 1 (omega^2) and g = k L
   forcefit fit puck.tsv --drag linear --robust  # with air drag, tracking glitches down-weighted
   forcefit fit bob.csv --length-unit px --scale "1.6 mm" --flip-y --latitude 52
   forcefit fit path.csv --method shape --profile 8   # time-free, with F(r) in 8 radius bins
@@ -46,6 +53,12 @@ ORBIT_ONLY = ("fix_exponent", "drag", "compare", "rotation_rate", "latitude", "e
 
 SMOOTHING_METHODS = ("curvature", "acceleration")
 """The methods that smooth the path before differentiating it (the shape fit smooths nothing)."""
+
+NEAR_HOOKE = 0.1
+"""|n - 1| below which ``--pendulum-length`` also takes the finite swing off an orbit fit."""
+
+TITLES = {"deviation": "Against the nominal law", "pendulum": "The pendulum's finite swing taken off"}
+"""Section titles of the companions on the report page."""
 
 
 def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
@@ -75,7 +88,7 @@ def _fitted_extras(fit: LawFit) -> list[str]:
         if math.isfinite(value):
             per = fit.time_unit if name != "drag" or fit.model.drag == "linear" else fit.length_unit
             unit = f"rad/{per}" if name == "rotation_rate" else f"1/{per}"
-            lines.append(f"  {name.replace('_', ' ')}: {value:.6g} ± {error:.2g} {unit}")
+            lines.append(f"  {name.replace('_', ' ')}: {measurement(value, error, unit)}")
     return lines
 
 
@@ -96,11 +109,56 @@ def _measured_precession(track: Track, fit: OrbitFit, report: dict[str, Any]) ->
     century, error = apsides.precession_per_century
     verdict = "" if apsides.passed else " (the apses cannot separate a secular turn: see apsides)"
     if math.isfinite(century):
-        return [f"  {'measured precession':<28} {format_measurement(century, error)} arcsec per century "
+        return [f"  {'measured precession':<28} {measurement(century, error)} arcsec per century "
                 f"from {len(apsides.apses)} apses{verdict}"]
-    per_orbit = format_measurement(math.degrees(apsides.precession_per_revolution),
-                                   math.degrees(apsides.precession_per_revolution_stderr))
+    per_orbit = measurement(math.degrees(apsides.precession_per_revolution),
+                            math.degrees(apsides.precession_per_revolution_stderr))
     return [f"  {'measured precession':<28} {per_orbit} deg per orbit{verdict}"]
+
+
+class Companion(Protocol):
+    """A result shown beside the fit: the nominal law, and any correction to the fit (such as a
+    pendulum's finite amplitude) added in `companions`."""
+
+    def rows(self) -> list[Row]: ...
+
+    def to_text(self) -> str: ...
+
+    def to_dict(self) -> dict[str, Any]: ...
+
+
+@dataclass(frozen=True)
+class NotApplied:
+    """A companion that could not be computed, and why."""
+
+    reason: str
+
+    def rows(self) -> list[Row]:
+        return [Row("not applied", self.reason)]
+
+    def to_text(self) -> str:
+        return f"  {self.reason}"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"applied": False, "reason": self.reason}
+
+
+def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tuple[str, Companion]]:
+    """The results shown beside the fit, by their JSON key: the strength at the nominal exponent and
+    the deviation from it, and with --pendulum-length an orbit fit near n = 1 with its finite
+    swing taken off."""
+    length = args.pendulum_length
+    deviation = deviation_from(fit, _nominal(args, fit),
+                               pendulum_length=None if length is None else (length[0], length[2]),
+                               pendulum_length_stderr=0.0 if length is None else length[1])
+    beside: list[tuple[str, Companion]] = [("deviation", deviation)]
+    if length is not None and isinstance(fit, OrbitFit) and abs(fit.exponent - 1.0) < NEAR_HOOKE:
+        try:
+            scale = length_factor(length[2], track.length_unit)
+            beside.append(("pendulum", pendulum_correction(fit, track, length=length[0] * scale)))
+        except ForcefitError as exc:
+            beside.append(("pendulum", NotApplied(f"finite swing not taken off: {exc}")))
+    return beside
 
 
 def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, Any], str]:
@@ -115,19 +173,20 @@ def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, An
         comparison = compare_laws(track, args.compare, **options)
     duality = check_duality(track, fit) if args.check_duality else None
     passed = fit.passed and (duality is None or duality.passed)
-    page = write_report(fit, args.report, track=track) if args.report else None
-    report = {**fit.to_dict(), **camera_record(track)}
+    beside = companions(fit, track, args)
+    page = (write_report(fit, args.report, track=track, options=recorded_options(args),
+                         extras=[(TITLES.get(key, key), result.rows()) for key, result in beside])
+            if args.report else None)
+    report = {**fit.to_dict(), **camera_record(track), **{key: result.to_dict() for key, result in beside}}
     lines = [fit.to_text(), *camera_lines(track)]
     if duality is not None:
         report["duality"] = duality.to_dict()
         lines.append("  " + duality.to_text())
-    lines += _fitted_extras(fit)
-    if isinstance(fit, OrbitFit):
-        deviation = deviation_from(fit, _nominal(args, fit))
-        report["deviation"] = deviation.to_dict()
-        lines.append(deviation.to_text())
-        if math.isfinite(deviation.precession_per_orbit) and fit.turns >= MIN_SECULAR_ORBITS:
-            lines += _measured_precession(track, fit, report)
+    lines += _fitted_extras(fit) + [result.to_text() for _, result in beside]
+    deviation = beside[0][1]
+    if (isinstance(fit, OrbitFit) and isinstance(deviation, Deviation)
+            and math.isfinite(deviation.precession_per_orbit) and fit.turns >= MIN_SECULAR_ORBITS):
+        lines += _measured_precession(track, fit, report)
     if page is not None:
         report["report"] = str(page)
     if profile is not None:
@@ -204,15 +263,21 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     fit.add_argument("--method", choices=sorted(ESTIMATORS),
                      help="estimator (default: orbit with timestamps, shape without)")
     add_centre_option(fit)
-    fit.add_argument("--nominal", type=float, metavar="N",
-                     help="the nominal exponent to state the deviation from (default: the nearer of "
-                          "1 and -2); against -2 the implied apsidal precession is printed too")
     fit.add_argument("--json", action="store_true", help="print JSON instead of a table")
     fit.add_argument("--projected", action="store_true",
                      help="positions on the sky (rho/theta or ddec/dra, at epochs): fit the law with "
                           "the orbit's inclination and node")
     fit.add_argument("--report", metavar="DIR", help="write an HTML report with figures into DIR")
     add_orbit_options(fit)
+    nominal = fit.add_argument_group("the nominal law")
+    nominal.add_argument("--nominal", type=float, metavar="N0",
+                         help="the nominal exponent (default: the nearer of 1 and -2): prints k at N0 "
+                              "(omega^2 at N0 = 1) and n - N0 with its significance; against -2 the "
+                              "implied apsidal precession too")
+    nominal.add_argument("--pendulum-length", type=measured_length, metavar="LENGTH",
+                         help='a pendulum\'s length, e.g. "2.40 m" or "2.400+-0.003 m": also print g = k L '
+                              "at n = 1 and, for an orbit fit near n = 1, the exponent and g with the "
+                              "finite swing taken off")
     fit.add_argument("--compare", type=_exponents, metavar="N1,N2",
                      help="compare fixed laws with the free fit (e.g. 1,-2)")
     fit.add_argument("--joint", action="store_true",
@@ -226,6 +291,6 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
                           help="how to smooth before differentiating (default spline, GCV level)")
     timefree.add_argument("--profile", type=int, nargs="?", const=8, default=0, metavar="BINS",
                           help="also print F(r) in BINS radius bins with the local exponent")
-    fit.set_defaults(handler=_cmd_fit)
+    fit.set_defaults(handler=_cmd_fit, parser=fit)
     defaults = vars(fit.parse_args(["FILE"]))
     fit.set_defaults(defaults={name: value for name, value in defaults.items() if name != "defaults"})
