@@ -163,3 +163,30 @@ def test_the_progress_bar_estimates_against_the_expected_length(capsys):
     totals = [int(total) for total in re.findall(r"\d+/(\d+)", capsys.readouterr().err)]
     assert converged and totals and totals[-1] < 20_000
     assert totals[-1] >= sampler.iteration
+
+
+def test_resume_refuses_another_runs_chain(tmp_path):
+    # issue 16: sample --resume chain.h5 silently continued another run's chain
+    def log_probability(theta):
+        return -0.5 * np.sum(theta**2, axis=1)
+
+    chain = tmp_path / "chain.h5"
+    run_ensemble(log_probability, np.zeros(2), np.eye(2), rng=1, max_steps=20, save=chain,
+                 fingerprint="run A")
+    sampler, _, _ = run_ensemble(log_probability, np.zeros(2), np.eye(2), rng=1, max_steps=40, save=chain,
+                                 resume=True, fingerprint="run A")
+    assert sampler.iteration == 40                                       # the same run continues
+    with pytest.raises(InputError, match="belongs to another run"):
+        run_ensemble(log_probability, np.zeros(2), np.eye(2), rng=1, max_steps=60, save=chain,
+                     resume=True, fingerprint="run B")
+    with pytest.raises(InputError, match="no chain to resume"):
+        run_ensemble(log_probability, np.zeros(2), np.eye(2), max_steps=60, save=tmp_path / "none.h5",
+                     resume=True, fingerprint="run A")
+
+
+def test_a_chain_knows_its_track_model_and_priors(rosette_fit, tmp_path):
+    chain = tmp_path / "chain.h5"
+    sample_posterior(rosette_fit, rng=5, progress=False, max_steps=10, min_steps=10, save=chain)
+    with pytest.raises(InputError, match="belongs to another run"):
+        sample_posterior(rosette_fit, rng=5, progress=False, max_steps=20, min_steps=20, save=chain,
+                         resume=True, priors={"exponent": ("uniform", -3.0, 0.0)})

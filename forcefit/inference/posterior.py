@@ -17,11 +17,13 @@ Differential evolution Markov chain with snooker updater, Stat. Comput. 18, 435.
 
 from __future__ import annotations
 
+import hashlib
 import math
 import os
 import warnings
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 from typing import Any, Literal
 
 import emcee
@@ -376,8 +378,20 @@ def sample_posterior(
 
     sampler, converged, reason = run_ensemble(
         problem, best, covariance, in_prior=in_prior, walkers=walkers, max_steps=max_steps,
-        min_steps=min_steps, moves=moves, progress=progress, rng=rng, save=save, resume=resume)
+        min_steps=min_steps, moves=moves, progress=progress, rng=rng, save=save, resume=resume,
+        fingerprint=_fingerprint(problem))
     return _collect(sampler, problem, fit, converged, reason)
+
+
+def _fingerprint(problem: _Problem) -> str:
+    """A digest of what a chain samples: the data and their sigma, the model's parameters and the
+    values held fixed, the priors and the noise model."""
+    digest = hashlib.sha256()
+    for array in (problem.data, problem.sigma, problem.template):
+        digest.update(np.ascontiguousarray(array, dtype=float).tobytes())
+    digest.update(repr((problem.names, problem.model.names, sorted(problem.priors.items()),
+                        problem.fit_noise, problem.correlation_time)).encode("utf-8"))
+    return digest.hexdigest()[:32]
 
 
 def run_ensemble(
@@ -394,6 +408,7 @@ def run_ensemble(
     rng: np.random.Generator | int | None = None,
     save: str | os.PathLike[str] | None = None,
     resume: bool = False,
+    fingerprint: str | None = None,
 ) -> tuple[emcee.EnsembleSampler, bool, str]:
     """Run emcee on a vectorised log-probability until converged; the engine behind
     `sample_posterior`, usable on any problem.
@@ -408,6 +423,9 @@ def run_ensemble(
         Maps positions to a mask of those inside the prior's support.
     walkers, max_steps, min_steps, moves, progress, rng, save, resume
         As in `sample_posterior`.
+    fingerprint : str, optional
+        What the chain samples (the track, model and priors), kept in the saved file; a resumed
+        chain whose file holds another fingerprint is refused.
 
     Returns
     -------
@@ -419,8 +437,12 @@ def run_ensemble(
     backend = None
     if save is not None:
         backend = emcee.backends.HDFBackend(os.fspath(save))
-        if not resume:
+        if resume:
+            _check_chain(backend, save, fingerprint)
+        else:
             backend.reset(walkers, ndim)
+            with backend.open("a") as stored:
+                stored[backend.name].attrs["fingerprint"] = fingerprint or ""
     elif resume:
         raise InputError("resume needs the chain file: give save=... (--resume FILE).")
     sampler = emcee.EnsembleSampler(walkers, ndim, log_probability, vectorize=True,
@@ -435,6 +457,21 @@ def run_ensemble(
     done = backend.iteration if backend is not None and resume else 0
     converged, reason = _run(sampler, state, max_steps - done, min_steps, progress)
     return sampler, converged, reason
+
+
+def _check_chain(backend: emcee.backends.HDFBackend, path: str | os.PathLike[str],
+                 fingerprint: str | None) -> None:
+    """Refuse to resume a chain file that is missing or samples another problem."""
+    if not Path(path).is_file():
+        raise InputError(f"{path}: no chain to resume. Start one with --save {path}.")
+    with backend.open() as stored:
+        group = stored.get(backend.name)
+        kept = None if group is None else group.attrs.get("fingerprint")
+    if fingerprint is not None and kept != fingerprint:
+        raise InputError(f"{path}: this chain belongs to another run (its track, model, priors or noise "
+                         "model differ from this one's), so continuing it would report that run's "
+                         "precision. Start a new chain with --save, or resume with the options the chain "
+                         "was started with.")
 
 
 def _random_sources(
