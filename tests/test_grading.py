@@ -1,5 +1,6 @@
 """Grading the demo class set, locally and on dask; resuming; reports that are safe to open."""
 
+import dataclasses
 import os
 import re
 import shutil
@@ -225,3 +226,153 @@ def test_a_run_without_times_says_its_strength_is_not_determined(tmp_path):
     reason = grade_runs(runs, rule, tmp_path / "out", workers=1, progress=False)["reason"][0]
     assert "strength not checked: not determined without timestamps" in reason
     assert "nan" not in reason and "T^-2" not in reason
+
+
+# Issue 16: grading a class all term.
+
+def _grade(folder, rule, out, **options):
+    return grade_runs(folder, rule, out, workers=1, progress=False, **options)
+
+
+HOOKE = GradingRule(expect=1.0, tolerance=0.05, strength=4.905, strength_tolerance=0.03,
+                    load_options={"length_unit": "mm"})
+
+
+@pytest.mark.slow
+def test_resume_regrades_a_run_whose_rule_or_file_changed(tmp_path):
+    # issue 16: after tightening the tolerance a run still passed on --resume, and a fixed header
+    # kept its old load error
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    _pendulum_run(runs, "anna.csv", length_unit="mm", seed=1)
+    _pendulum_run(runs, "bruno.csv", length_unit="mm", seed=2, header=("t [s]", "x [mm]"))
+    out = tmp_path / "out"
+    first = _grade(runs, HOOKE, out).set_index("run")
+    assert first.loc["anna", "passed"] and "load error" in first.loc["bruno", "reason"]
+    _pendulum_run(runs, "bruno.csv", length_unit="mm", seed=2)                 # the header fixed
+    strict = dataclasses.replace(HOOKE, tolerance=1e-9)
+    again = _grade(runs, strict, out, resume=True).set_index("run")
+    assert not again.loc["anna", "passed"] and "exponent outside tolerance" in again.loc["anna", "reason"]
+    assert "load error" not in again.loc["bruno", "reason"]
+    stamp = (out / "results.csv").read_text()
+    untouched = _grade(runs, strict, out, resume=True)                         # nothing changed
+    assert untouched["fingerprint"].tolist() == again["fingerprint"].tolist()
+    assert (out / "results.csv").read_text() == stamp
+
+
+@pytest.mark.slow
+def test_only_data_files_are_runs(tmp_path):
+    # issue 16: notes.txt and last week's results.csv in the folder counted as failed runs
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    _pendulum_run(runs, "anna.csv", length_unit="mm")
+    (runs / "notes.txt").write_text("Week 3: the long pendulum, 2.00 m. Bring a tape measure.\n")
+    (runs / "photo.jpg").write_bytes(b"\xff\xd8\xff\xe0")
+    _grade(runs, HOOKE, runs)                                 # a grading written into the folder itself
+    frame = _grade(runs, HOOKE, tmp_path / "out")
+    assert frame["run"].tolist() == ["anna"]
+    page = (tmp_path / "out" / "index.html").read_text()
+    assert "notes.txt" in page and "not a table of numbers" in page
+    assert "results.csv" in page and "an earlier grading" in page and "1 of 1 runs" in page
+
+
+def test_the_class_page_is_readable_by_others(tmp_path):
+    # issue 16: every output file was owner-only (0600)
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    _pendulum_run(runs, "anna.csv", length_unit="mm", duration=4.0)
+    old = os.umask(0o022)
+    try:
+        _grade(runs, HOOKE, tmp_path / "out")
+    finally:
+        os.umask(old)
+    for name in ("index.html", "results.csv", "exponents.png", "runs/anna.html"):
+        assert (tmp_path / "out" / name).stat().st_mode & 0o044 == 0o044, name
+
+
+@pytest.mark.slow
+def test_warnings_go_into_the_rows_notes_not_the_terminal(tmp_path, capsys):
+    # issue 16: raw warnings (with the interpreter's path and a source line) leaked even with --quiet
+    import warnings
+
+    from forcefit.cli import main
+
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    _pendulum_run(runs, "anna.csv", length_unit="mm", duration=4.0)            # header mm, option px
+    rule = GradingRule(expect=1.0, tolerance=0.05, load_options={"length_unit": "px"})
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        frame = _grade(runs, rule, tmp_path / "out")
+    assert not caught
+    assert "the header says mm" in frame["notes"][0]
+    main(["grade", str(runs), "--expect", "1", "--tolerance", "0.05", "--length-unit", "px",
+          "--out", str(tmp_path / "cli"), "--workers", "1", "--quiet"])
+    captured = capsys.readouterr()
+    assert "Warning" not in captured.err and "warnings.warn" not in captured.err
+
+
+def test_a_run_named_like_a_formula_is_escaped_in_the_table(tmp_path):
+    # issue 16: a run named =HYPERLINK(...) or +1+1 went into results.csv as a formula. OWASP,
+    # "CSV Injection": prefix cells beginning with = + - @ tab or CR with an apostrophe.
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    for name in ('=HYPERLINK("http:__example.invalid").csv', "+1+1.csv", "@SUM(A1).csv"):
+        (runs / name).write_text("t,x,y\n0,1,0\n1,0,1\n2,-1,0\n3,0,-1\n")
+    frame = _grade(runs, HOOKE, tmp_path / "out")
+    cells = pd.read_csv(tmp_path / "out" / "results.csv", dtype=str)["run"].tolist()
+    assert sorted(cells) == ["'+1+1", "'=HYPERLINK(\"http:__example.invalid\")", "'@SUM(A1)"]
+    assert sorted(read_results(tmp_path / "out" / "results.csv")["run"]) == sorted(frame["run"])
+    assert any(run.startswith("=HYPERLINK") for run in frame["run"])              # the names as given
+
+
+def test_excel_reading_is_in_the_default_install():
+    # issue 16: .xlsx files failed after a plain install until an extra was added
+    import tomllib
+
+    project = tomllib.loads((Path(__file__).parents[1] / "pyproject.toml").read_text())["project"]
+    assert any(requirement.startswith("openpyxl") for requirement in project["dependencies"])
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("case, expected", [
+    ("ms_labelled_s", "milliseconds labelled as s"),
+    ("frame_index", "a frame counter was used as the time"),
+    ("wrong_frame_rate", "(30/25)^2"),
+    ("too_short", "too short"),
+    ("truncated", "cut short"),
+])
+def test_a_failing_run_names_its_likely_mistake(tmp_path, case, expected):
+    # issue 16: failing rows stated the fact but not the likely mistake
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    rule = HOOKE
+    if case == "ms_labelled_s":
+        _pendulum_run(runs, "run.csv", length_unit="mm", time_scale=1000.0, duration=6.0)  # ms written as s
+    elif case == "frame_index":
+        _pendulum_run(runs, "run.csv", length_unit="mm", time_scale=30.0, duration=6.0)    # frame numbers
+    elif case == "wrong_frame_rate":
+        _pendulum_run(runs, "run.csv", length_unit="mm", time_scale=25.0 / 30.0, duration=6.0)
+    elif case == "too_short":
+        _pendulum_run(runs, "run.csv", length_unit="mm", duration=1.8)
+        rule = dataclasses.replace(HOOKE, min_turns=1.0)
+    else:
+        path = _pendulum_run(runs, "run.csv", length_unit="mm", duration=4.0)
+        path.write_text(path.read_text()[:-14])                                 # the last line cut
+    row = _grade(runs, rule, tmp_path / "out").iloc[0]
+    assert not row["passed"] and expected in row["advice"], row["advice"]
+    assert expected in (tmp_path / "out" / "index.html").read_text()
+
+
+def test_a_runs_warnings_are_kept_in_its_row(tmp_path):
+    # issue 16 (fast form): grade_run records the loader's warnings in the row and lets none out
+    import warnings
+
+    path = tmp_path / "anna.csv"
+    path.write_text("t [s],x [mm],y [mm]\n0,1,0\n1,0,1\n2,-1,0\n3,0,-1\n")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        row = grading.grade_run(path, GradingRule(expect=1.0, tolerance=0.05,
+                                                   load_options={"length_unit": "px"}))
+    assert not caught and "the header says mm" in row["notes"]
+    assert len(row["fingerprint"]) == 32

@@ -11,14 +11,14 @@ one skips it.
 
 from __future__ import annotations
 
-import glob
 import math
 import os
 import traceback
+import warnings
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import asdict, dataclass, field
 from multiprocessing import get_context
 from pathlib import Path
 from typing import Any
@@ -31,9 +31,12 @@ from ..estimators.result import LawFit
 from ..formatting import measurement
 from ..track import Track
 from ..units import parse_strength_unit, strength_factor, strength_unit, time_factor
+from .feedback import RunFacts, likely_mistakes
+from .run_files import fingerprint, guard_cell, sort_runs, unguard_cell
 
-RUN_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".json", ".xlsx", ".parquet")
 RESULTS = "results.csv"
+TEXT_COLUMNS = ("run", "file", "reason", "advice", "notes", "method", "run_units", "report")
+"""Columns of the results table that hold text (guarded against spreadsheet formulas)."""
 
 
 @dataclass(frozen=True)
@@ -82,16 +85,14 @@ class GradingRule:
 
 
 def find_runs(source: str | os.PathLike[str] | Sequence[str | os.PathLike[str]]) -> list[Path]:
-    """The run files of a folder, a glob pattern, or a list of paths, sorted by name."""
-    if isinstance(source, (list, tuple)):
-        return sorted(Path(p) for p in source)
-    text = os.fspath(source)  # type: ignore[arg-type]
-    if Path(text).is_dir():
-        return sorted(p for p in Path(text).iterdir() if p.suffix.lower() in RUN_SUFFIXES and p.is_file())
-    matches = sorted(Path(p) for p in glob.glob(text))
-    if not matches:
-        raise InputError(f"{text}: no such folder, and no file matches it as a pattern.")
-    return matches
+    """The run files of a folder, a glob pattern, or a list of paths, sorted by name (files that
+    are not runs left out; `sort_runs` says why)."""
+    return list(sort_runs(source).runs)
+
+
+def rule_settings(rule: GradingRule) -> dict[str, Any]:
+    """Everything of the rule a grade depends on, for the run's fingerprint."""
+    return asdict(rule)
 
 
 def _row(path: Path, name: str, **values: Any) -> dict[str, Any]:
@@ -99,24 +100,38 @@ def _row(path: Path, name: str, **values: Any) -> dict[str, Any]:
             "exponent_stderr": math.nan, "strength_at_expected": math.nan,
             "strength_at_expected_stderr": math.nan, "strength_unit": "", "duration": math.nan,
             "time_unit": "", "turns": math.nan, "reduced_chi2": math.nan, "n_points": 0,
-            "method": "", "run_units": "", "report": ""}
+            "method": "", "run_units": "", "advice": "", "notes": "", "fingerprint": "", "report": ""}
     base.update(values)
     return base
 
 
 def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | None = None) -> dict[str, Any]:
-    """Load, fit and grade one run file; never raises (a failure is a failing row).
+    """Load, fit and grade one run file; never raises (a failure is a failing row) and never
+    prints: warnings go into the row's notes.
 
     Returns
     -------
     dict
-        One row of the results table.
+        One row of the results table, with the likely mistake behind a failure (``advice``) and
+        the fingerprint of the file and the rule it was graded with.
     """
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        row = _grade(Path(path), rule, out_dir)
+    notes = dict.fromkeys(str(warning.message) for warning in caught)          # once each, in order
+    row["notes"] = "; ".join(notes)
+    try:
+        row["fingerprint"] = fingerprint(path, rule_settings(rule))
+    except OSError:
+        row["fingerprint"] = ""
+    return row
+
+
+def _grade(path: Path, rule: GradingRule, out_dir: str | None) -> dict[str, Any]:
     from ..estimators import OrbitFit, registry
     from ..outputs.report import Verdict, write_report
     from ..reading.loaders import load_tracks
 
-    path = Path(path)
     name = path.stem
     try:
         tracks = load_tracks(path, **rule.load_options)
@@ -128,7 +143,8 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
     except NotIdentifiable as exc:
         return _row(path, name, reason=f"not identifiable: {exc}")
     except InputError as exc:
-        return _row(path, name, reason=f"load error: {exc}")
+        return _row(path, name, reason=f"load error: {exc}",
+                    advice=" ".join(likely_mistakes(_facts(rule, load_error=str(exc)))))
     except (FitError, ForcefitError) as exc:
         return _row(path, name, reason=f"fit failed: {exc}")
     except Exception as exc:  # one bad run never stops a batch
@@ -154,19 +170,34 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
         elif abs(k / rule.strength - 1.0) > (rule.strength_tolerance or 0.0):
             reasons.append(f"strength outside tolerance: k = {measurement(k, k_error, unit)}, "
                            f"expected {rule.strength:.6g} {unit} ± {100 * (rule.strength_tolerance or 0):g}%")
+    advice = " ".join(likely_mistakes(_facts(
+        rule, track=track, fit=fit, turns=turns, fit_checks_passed=not failed,
+        strength_ratio=k / rule.strength if rule.strength and not problem else math.nan))) if reasons else ""
     duration = track.duration * time_factor(track.time_unit, rule.units[1]) if track.has_times else math.nan
     row = _row(path, name, passed=not reasons, reason="; ".join(reasons), exponent=fit.exponent,
                exponent_stderr=fit.exponent_stderr, strength_at_expected=k,
                strength_at_expected_stderr=k_error, strength_unit=rule.unit, duration=duration,
                time_unit=rule.units[1], turns=turns, reduced_chi2=fit.reduced_chi2,
-               n_points=track.n_points, method=fit.method,
+               n_points=track.n_points, method=fit.method, advice=advice,
                run_units=f"{track.length_unit}, {track.time_unit if track.has_times else 'no times'}")
     if out_dir is not None:
         folder = Path(out_dir) / "runs"
-        verdict = Verdict("PASS" if not reasons else "FAIL", not reasons, tuple(reasons))
+        shown = tuple(reasons) + ((f"likely cause: {advice}",) if advice else ())
+        verdict = Verdict("PASS" if not reasons else "FAIL", not reasons, shown)
         page = write_report(fit, folder, track=track, verdict=verdict)   # named by safe_name
         row["report"] = f"runs/{page.name}"
     return row
+
+
+def _facts(rule: GradingRule, *, track: Track | None = None, fit: LawFit | None = None,
+           load_error: str = "", turns: float = math.nan, fit_checks_passed: bool = False,
+           strength_ratio: float = math.nan) -> RunFacts:
+    """What `likely_mistakes` needs to know of a run."""
+    return RunFacts(track=track, load_error=load_error,
+                    exponent=math.nan if fit is None else fit.exponent,
+                    exponent_stderr=math.nan if fit is None else fit.exponent_stderr,
+                    strength_ratio=strength_ratio, expected_exponent=rule.expect, tolerance=rule.tolerance,
+                    turns=turns, min_turns=rule.min_turns, fit_checks_passed=fit_checks_passed)
 
 
 def _class_strength(fit: LawFit, track: Track, rule: GradingRule) -> tuple[float, float, str]:
@@ -187,7 +218,11 @@ def _write_table(rows: Iterable[dict[str, Any]], path: Path, rule: GradingRule) 
     """Write the results table, one unit per column stated in its header (the class's units)."""
     frame = pd.DataFrame(list(rows)).sort_values("run", kind="stable").reset_index(drop=True)
     strength, time = rule.unit, rule.units[1]
-    renamed = frame.drop(columns=["strength_unit", "time_unit"]).rename(columns={
+    guarded = frame.copy()
+    for column in TEXT_COLUMNS:
+        if column in guarded:
+            guarded[column] = [guard_cell(str(value)) for value in guarded[column].fillna("")]
+    renamed = guarded.drop(columns=["strength_unit", "time_unit"]).rename(columns={
         "strength_at_expected": f"strength_at_expected [{strength}]",
         "strength_at_expected_stderr": f"strength_at_expected_stderr [{strength}]",
         "duration": f"duration [{time}]", "exponent": "exponent [1]",
@@ -199,14 +234,16 @@ def _write_table(rows: Iterable[dict[str, Any]], path: Path, rule: GradingRule) 
 
 def read_results(path: str | os.PathLike[str]) -> pd.DataFrame:
     """A results table written by `grade_runs`, with the units taken back out of the headers."""
-    frame = pd.read_csv(path, keep_default_na=False, na_values=[""])
+    frame = pd.read_csv(path, keep_default_na=False, na_values=[""],
+                        dtype={column: str for column in TEXT_COLUMNS})
     units = {column.split(" [")[0]: column.split(" [")[1].rstrip("]") for column in frame.columns
              if " [" in column}
     frame.columns = [column.split(" [")[0] for column in frame.columns]
     frame["strength_unit"] = units.get("strength_at_expected", "")
     frame["time_unit"] = units.get("duration", "")
-    frame["reason"] = frame["reason"].fillna("")
-    frame["report"] = frame["report"].fillna("")
+    for column in TEXT_COLUMNS:
+        if column in frame:
+            frame[column] = [unguard_cell(str(value)) for value in frame[column].astype(object).fillna("")]
     return frame
 
 
@@ -284,7 +321,8 @@ def grade_runs(
     scheduler : str, optional
         Address of a dask.distributed scheduler to run on instead.
     resume : bool
-        Keep the rows of an earlier, interrupted batch in ``out_dir`` and skip those runs.
+        Keep the rows of an earlier batch in ``out_dir`` whose file, rule and reading options are
+        unchanged (the row's fingerprint), and skip those runs; every other run is graded again.
     progress : bool
         Show a progress bar.
 
@@ -301,9 +339,13 @@ def grade_runs(
     folder.mkdir(parents=True, exist_ok=True)
     table = folder / RESULTS
     rows: dict[str, dict[str, Any]] = {}
+    found = sort_runs(source)
     if resume and table.exists():
-        rows = {row["file"]: row for row in read_results(table).to_dict("records")}
-    paths = [p for p in find_runs(source) if str(p) not in rows]
+        settings = rule_settings(rule)
+        earlier = {row["file"]: row for row in read_results(table).to_dict("records")}
+        rows = {str(p): earlier[str(p)] for p in found.runs
+                if str(p) in earlier and earlier[str(p)].get("fingerprint") == fingerprint(p, settings)}
+    paths = [p for p in found.runs if str(p) not in rows]
     with tqdm(total=len(paths), disable=not progress, unit="run", desc="grading") as bar:
         for row in _graded(paths, rule, folder, workers, scheduler):
             rows[row["file"]] = row
@@ -313,7 +355,8 @@ def grade_runs(
     frame = _write_table(rows.values(), table, rule) if rows else pd.DataFrame()
     write_class_report(frame.to_dict("records"), folder, expect=rule.expect, tolerance=rule.tolerance,
                        strength=rule.strength, strength_tolerance=rule.strength_tolerance,
-                       strength_unit=rule.unit, csv_name=RESULTS, title=title)
+                       strength_unit=rule.unit, csv_name=RESULTS, title=title,
+                       skipped=[(path.name, reason) for path, reason in found.skipped])
     return frame
 
 

@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from ..apps.grading import GradingRule, grade_runs
+from ..apps.run_files import sort_runs
 from ..formatting import CHECK_MARKS
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, loading_keywords
 
@@ -23,13 +24,17 @@ examples:
 def _cmd_grade(args: argparse.Namespace) -> int:
     rule = GradingRule(expect=args.expect, tolerance=args.tolerance, strength=args.expect_strength,
                        strength_tolerance=args.strength_tolerance, min_turns=args.min_turns,
-                       load_options=loading_keywords(args))
+                       load_options=loading_keywords(args), strength_unit=args.strength_unit)
     frame = grade_runs(args.source, rule, args.out, workers=args.workers, scheduler=args.scheduler,
                        resume=args.resume, progress=not args.quiet, title=args.title or Path(args.out).name)
     passed = int(frame["passed"].sum()) if len(frame) else 0
     if not args.quiet:
         for row in frame.to_dict("records"):
             print(f"  {CHECK_MARKS[bool(row['passed'])]} {row['run']:<24} {row['reason']}")
+            if row.get("advice"):
+                print(f"    likely cause: {row['advice']}")
+        for path, reason in sort_runs(args.source).skipped:
+            print(f"  skipped {path.name}: {reason}")
     print(f"{passed} of {len(frame)} runs meet the rule; report: {Path(args.out) / 'index.html'}, "
           f"table: {Path(args.out) / 'results.csv'}")
     return EXIT_OK if passed == len(frame) else EXIT_FAILED_CHECKS
@@ -48,6 +53,9 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
                       help="largest |n - N| that passes")
     rule.add_argument("--expect-strength", type=float, metavar="K",
                       help="expected strength at the expected exponent (e.g. g/L in s^-2 for n = 1)")
+    rule.add_argument("--strength-unit", metavar="UNIT",
+                      help='unit of --expect-strength and of the table, e.g. "s^-2" or "au^3/d^2" '
+                           "(default: metres and seconds); each run is converted into it")
     rule.add_argument("--strength-tolerance", type=float, default=0.05, metavar="R",
                       help="largest relative strength deviation that passes (default 0.05)")
     rule.add_argument("--min-turns", type=float, default=1.0, help="least turns a run must cover (default 1)")

@@ -207,11 +207,13 @@ def write_class_report(
     strength_unit: str = "",
     csv_name: str = "results.csv",
     title: str = "class report",
+    skipped: Sequence[tuple[str, str]] = (),
 ) -> Path:
-    """Write the class's index page: every run with its grade and reason, and the histogram.
+    """Write the class's index page: every run with its grade, reason and likely mistake, the
+    files skipped as not runs, and the histogram.
 
     ``rows`` are the grading rows (see `forcefit.apps.grading`); a row's ``report`` is the
-    run's page relative to ``out_dir``.
+    run's page relative to ``out_dir``; ``skipped`` holds (file name, reason) pairs.
     """
     folder = Path(out_dir)
     folder.mkdir(parents=True, exist_ok=True)
@@ -231,7 +233,7 @@ def write_class_report(
             "symbol": CHECK_MARKS[bool(row["passed"])], "mark": "pass" if row["passed"] else "fail",
             "exponent": measurement(exponent, error) if math.isfinite(exponent) else "—",
             "strength": measurement(k, k_error, strength_unit) if math.isfinite(k) else "—",
-            "reason": row.get("reason", ""),
+            "reason": row.get("reason", ""), "advice": row.get("advice") or "",
         })
     html = _environment().get_template("class.html.j2").render(
         title=title, runs=runs, expect=f"{expect:g}", tolerance=f"{tolerance:g}",
@@ -240,7 +242,8 @@ def write_class_report(
         strength_unit=strength_unit, passed=sum(1 for row in rows if row["passed"]),
         failed=sum(1 for row in rows if not row["passed"]),
         histogram=base64.b64encode(histogram).decode("ascii"), histogram_file="exponents.png",
-        csv=csv_name, version=__version__, written=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
+        csv=csv_name, skipped=list(skipped), version=__version__,
+        written=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
     )
     return write_atomic(folder / "index.html", html)
 
