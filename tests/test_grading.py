@@ -376,3 +376,36 @@ def test_a_runs_warnings_are_kept_in_its_row(tmp_path):
                                                    load_options={"length_unit": "px"}))
     assert not caught and "the header says mm" in row["notes"]
     assert len(row["fingerprint"]) == 32
+
+
+@pytest.mark.slow
+def test_a_mixed_class_grades_in_one_command_with_its_settings_file(tmp_path, capsys):
+    # issue 16: a class whose files differ (px, ms without a unit, a 25 fps frame column among
+    # 30 fps runs) is graded in one batch with one settings file beside the runs
+    from forcefit.cli import main
+
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    _pendulum_run(runs, "anna.csv", scale=1000.0 / 1.6, header=("t", "x", "y"))     # px, s
+    _pendulum_run(runs, "bruno.csv", time_scale=1000.0, header=("t", "x", "y"), seed=2)   # ms, no unit
+    swing = simulate_pendulum(length=2.0, gravity=9.81, start=(0.12, 0.0), velocity=(0.0, 0.1),
+                              duration=9.0, rate=25.0, noise=0.0005, rng=3)
+    (runs / "carla.csv").write_text("frame,x,y\n" + "".join(
+        f"{i},{x * 625:.4f},{y * 625:.4f}\n" for i, (x, y) in enumerate(zip(swing.x, swing.y))))
+    (runs / "forcefit-class.toml").write_text(
+        '[rule]\nexpect = 1\ntolerance = 0.05\nstrength = 4.905\nstrength_tolerance = 0.03\n'
+        '[reading]\nlength_unit = "px"\n'
+        '[[file]]\nmatch = "bruno.csv"\ntime_unit = "ms"\n'
+        '[[file]]\nmatch = "carla.csv"\nframe_rate = 25\n')
+    out = tmp_path / "out"
+    assert main(["grade", str(runs), "--out", str(out), "--workers", "1", "--quiet"]) == 0
+    assert "3 of 3 runs meet the rule" in capsys.readouterr().out
+    assert "frame_rate 25" in (out / "runs" / "carla.html").read_text()
+    # with the class's usual 30 fps for carla and nothing for bruno, both fail, their mistakes named
+    (runs / "forcefit-class.toml").write_text(
+        '[rule]\nexpect = 1\ntolerance = 0.05\nstrength = 4.905\nstrength_tolerance = 0.03\n'
+        '[reading]\nlength_unit = "px"\n[[file]]\nmatch = "carla.csv"\nframe_rate = 30\n')
+    assert main(["grade", str(runs), "--out", str(out), "--workers", "1", "--quiet", "--resume"]) == 1
+    table = read_results(out / "results.csv").set_index("run")
+    assert table.loc["anna", "passed"] and not table.loc["bruno", "passed"]
+    assert "milliseconds" in table.loc["bruno", "advice"] and "(30/25)^2" in table.loc["carla", "advice"]

@@ -15,7 +15,7 @@ import math
 import os
 import traceback
 import warnings
-from collections.abc import Callable, Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from contextlib import contextmanager
 from dataclasses import asdict, dataclass, field
@@ -31,6 +31,7 @@ from ..estimators.result import LawFit
 from ..formatting import measurement
 from ..track import Track
 from ..units import parse_strength_unit, strength_factor, strength_unit, time_factor
+from .class_settings import ClassSettings, merged_options
 from .feedback import RunFacts, likely_mistakes
 from .run_files import fingerprint, guard_cell, sort_runs, unguard_cell
 
@@ -53,12 +54,17 @@ class GradingRule:
     min_turns : float
         The least number of turns about the centre a run must cover.
     load_options : dict
-        Passed to `load_tracks` (units, calibration, column names).
+        Passed to `load_tracks` (units, calibration, column names) for every run.
     strength_unit : str, optional
         The unit of ``strength`` and of the class's table, length**(1 - n) time**-2 at the
         expected n (``"s^-2"`` for n = 1, ``"m^3 s^-2"`` for n = -2); default metres and
         seconds. Each run's strength is converted into it before comparing, whatever units
         the run was read in.
+    files : tuple of (str, mapping)
+        Reading options for the runs whose file name matches a pattern (a class settings file's
+        ``[[file]]`` tables), applied over ``load_options`` in order.
+    given_options : mapping
+        Reading options given on the command line: they win over the others.
     """
 
     expect: float
@@ -68,6 +74,19 @@ class GradingRule:
     min_turns: float = 1.0
     load_options: dict[str, Any] = field(default_factory=dict)
     strength_unit: str | None = None
+    files: tuple[tuple[str, Mapping[str, Any]], ...] = ()
+    given_options: Mapping[str, Any] = field(default_factory=dict)
+
+    def options_for(self, path: str | os.PathLike[str]) -> dict[str, Any]:
+        """The `load_tracks` keywords for one run: ``load_options``, then the options of every
+        matching ``files`` entry, then ``given_options`` on top."""
+        return merged_options(self.load_options, self.files, Path(path), self.given_options)
+
+    def settings_for(self, path: str | os.PathLike[str]) -> dict[str, Any]:
+        """Everything one run's grade depends on besides its file: the rule and its reading options."""
+        rule = {key: value for key, value in asdict(self).items()
+                if key not in ("load_options", "files", "given_options")}
+        return {**rule, "reading": self.options_for(path)}
 
     @property
     def units(self) -> tuple[str | None, str]:
@@ -90,9 +109,19 @@ def find_runs(source: str | os.PathLike[str] | Sequence[str | os.PathLike[str]])
     return list(sort_runs(source).runs)
 
 
-def rule_settings(rule: GradingRule) -> dict[str, Any]:
-    """Everything of the rule a grade depends on, for the run's fingerprint."""
-    return asdict(rule)
+def rule_with_settings(settings: ClassSettings | None, *, rule: Mapping[str, Any],
+                       options: Mapping[str, Any]) -> GradingRule:
+    """The grading rule of a class settings file (or none) with the command line's rule values
+    (``rule``) and reading options (``options``) on top of the file's."""
+    values = {**(settings.rule if settings is not None else {}), **rule}
+    for key in ("expect", "tolerance"):
+        if key not in values:
+            where = f"{settings.source}: [rule] has no {key}" if settings else f"no {key} given"
+            raise InputError(f"{where}; give --{key} or write {key} = ... under [rule] in the settings.")
+    if values.get("strength") is not None:
+        values.setdefault("strength_tolerance", 0.05)
+    return GradingRule(**values, load_options=dict(settings.reading) if settings else {},
+                       files=settings.files if settings else (), given_options=dict(options))
 
 
 def _row(path: Path, name: str, **values: Any) -> dict[str, Any]:
@@ -121,7 +150,7 @@ def grade_run(path: str | os.PathLike[str], rule: GradingRule, out_dir: str | No
     notes = dict.fromkeys(str(warning.message) for warning in caught)          # once each, in order
     row["notes"] = "; ".join(notes)
     try:
-        row["fingerprint"] = fingerprint(path, rule_settings(rule))
+        row["fingerprint"] = fingerprint(path, rule.settings_for(path))
     except OSError:
         row["fingerprint"] = ""
     return row
@@ -134,7 +163,7 @@ def _grade(path: Path, rule: GradingRule, out_dir: str | None) -> dict[str, Any]
 
     name = path.stem
     try:
-        tracks = load_tracks(path, **rule.load_options)
+        tracks = load_tracks(path, **rule.options_for(path))
         if len(tracks) != 1:
             return _row(path, name, reason=f"load error: the file holds {len(tracks)} tracks; grade "
                                            "one run per file.")
@@ -184,7 +213,8 @@ def _grade(path: Path, rule: GradingRule, out_dir: str | None) -> dict[str, Any]
         folder = Path(out_dir) / "runs"
         shown = tuple(reasons) + ((f"likely cause: {advice}",) if advice else ())
         verdict = Verdict("PASS" if not reasons else "FAIL", not reasons, shown)
-        page = write_report(fit, folder, track=track, verdict=verdict)   # named by safe_name
+        page = write_report(fit, folder, track=track, verdict=verdict,   # named by safe_name
+                            options=rule.settings_for(path))
         row["report"] = f"runs/{page.name}"
     return row
 
@@ -341,10 +371,9 @@ def grade_runs(
     rows: dict[str, dict[str, Any]] = {}
     found = sort_runs(source)
     if resume and table.exists():
-        settings = rule_settings(rule)
         earlier = {row["file"]: row for row in read_results(table).to_dict("records")}
-        rows = {str(p): earlier[str(p)] for p in found.runs
-                if str(p) in earlier and earlier[str(p)].get("fingerprint") == fingerprint(p, settings)}
+        rows = {str(p): earlier[str(p)] for p in found.runs if str(p) in earlier
+                and earlier[str(p)].get("fingerprint") == fingerprint(p, rule.settings_for(p))}
     paths = [p for p in found.runs if str(p) not in rows]
     with tqdm(total=len(paths), disable=not progress, unit="run", desc="grading") as bar:
         for row in _graded(paths, rule, folder, workers, scheduler):

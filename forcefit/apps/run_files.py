@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import InputError
+from .class_settings import SETTINGS_NAME
 
 RUN_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".json", ".xlsx", ".parquet")
 """Extensions of the files that may hold a run."""
@@ -81,6 +82,8 @@ def sort_runs(source: str | os.PathLike[str] | Sequence[str | os.PathLike[str]])
 
 def _not_a_run(path: Path) -> str:
     """Why ``path`` is not a run ("" when it may be one)."""
+    if path.name == SETTINGS_NAME:
+        return "the class settings"
     if path.suffix.lower() not in RUN_SUFFIXES:
         kind = path.suffix or "file without extension"
         return f"not a data file (a {kind}; runs are {', '.join(RUN_SUFFIXES)})"

@@ -6,8 +6,10 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from ..apps.grading import GradingRule, grade_runs
+from ..apps.class_settings import SETTINGS_NAME, STARTING_FILE, ClassSettings, read_settings
+from ..apps.grading import grade_runs, rule_with_settings
 from ..apps.run_files import sort_runs
+from ..errors import InputError
 from ..formatting import CHECK_MARKS
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, loading_keywords
 
@@ -17,14 +19,50 @@ examples:
   forcefit grade "runs/*.csv" --expect 1 --tolerance 0.05 --expect-strength 4.0875 \\
       --strength-tolerance 0.03 --out week3 --workers 2
   forcefit grade runs/ --expect -2 --tolerance 0.01 --scheduler tcp://10.0.0.5:8786
-  forcefit grade runs/ --expect 1 --tolerance 0.05 --out week3 --resume   # after an interruption
+  forcefit grade runs/ --expect 1 --tolerance 0.05 --out week3 --resume   # regrades what changed
+  forcefit grade --write-settings runs/forcefit-class.toml    # a commented settings file to edit
+  forcefit grade runs/ --out week3            # rule and reading options from runs/forcefit-class.toml
 """
 
 
+def _settings(args: argparse.Namespace) -> ClassSettings | None:
+    """The class settings named with --settings, else the file beside the runs, if any."""
+    if args.settings is not None:
+        return read_settings(args.settings)
+    beside = Path(args.source) / SETTINGS_NAME
+    return read_settings(beside) if beside.is_file() else None
+
+
+def _given(args: argparse.Namespace) -> tuple[dict[str, Any], dict[str, Any]]:
+    """The rule values and the reading options set on the command line (those left at their
+    defaults are not given, so that a settings file's hold)."""
+    rule = {key: value for key, value in (
+        ("expect", args.expect), ("tolerance", args.tolerance), ("strength", args.expect_strength),
+        ("strength_tolerance", args.strength_tolerance), ("min_turns", args.min_turns),
+        ("strength_unit", args.strength_unit)) if value is not None}
+    defaults = {"sheet": args.parser.get_default("sheet")}
+    options = {key: value for key, value in loading_keywords(args).items()
+               if value not in (None, False, {}) and value != defaults.get(key, ...)}
+    return rule, options
+
+
+def _write_settings(target: str) -> int:
+    path = Path(target)
+    if path.exists():
+        raise InputError(f"{path}: exists already; forcefit does not overwrite it. Name another file.")
+    path.write_text(STARTING_FILE, encoding="utf-8")
+    print(f"wrote {path}: edit the rule and reading options, then run "
+          f"forcefit grade FOLDER --settings {path} (or save it as FOLDER/{SETTINGS_NAME})")
+    return EXIT_OK
+
+
 def _cmd_grade(args: argparse.Namespace) -> int:
-    rule = GradingRule(expect=args.expect, tolerance=args.tolerance, strength=args.expect_strength,
-                       strength_tolerance=args.strength_tolerance, min_turns=args.min_turns,
-                       load_options=loading_keywords(args), strength_unit=args.strength_unit)
+    if args.write_settings is not None:
+        return _write_settings(args.write_settings)
+    if args.source is None:
+        raise InputError("give the folder (or a pattern) of the runs to grade.")
+    rule_values, options = _given(args)
+    rule = rule_with_settings(_settings(args), rule=rule_values, options=options)
     frame = grade_runs(args.source, rule, args.out, workers=args.workers, scheduler=args.scheduler,
                        resume=args.resume, progress=not args.quiet, title=args.title or Path(args.out).name)
     passed = int(frame["passed"].sum()) if len(frame) else 0
@@ -46,19 +84,24 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
         "grade", parents=[loading], formatter_class=FORMATTER, epilog=_EXAMPLES,
         help="grade many runs against an expected law; results table and a report per run",
         description="Grade every run in DIR (or matching GLOB) against the expected law.")
-    parser.add_argument("source", metavar="DIR|GLOB")
+    parser.add_argument("source", metavar="DIR|GLOB", nargs="?")
+    settings = parser.add_argument_group("the class settings file (TOML)")
+    settings.add_argument("--settings", metavar="FILE",
+                          help=f"the rule, reading defaults and per-file options (default: {SETTINGS_NAME} "
+                               "beside the runs, if there is one); options given here win over it")
+    settings.add_argument("--write-settings", metavar="FILE",
+                          help="write a commented starting settings file and stop")
     rule = parser.add_argument_group("the grading rule")
-    rule.add_argument("--expect", type=float, required=True, metavar="N", help="expected exponent")
-    rule.add_argument("--tolerance", type=float, required=True, metavar="T",
-                      help="largest |n - N| that passes")
+    rule.add_argument("--expect", type=float, metavar="N", help="expected exponent")
+    rule.add_argument("--tolerance", type=float, metavar="T", help="largest |n - N| that passes")
     rule.add_argument("--expect-strength", type=float, metavar="K",
                       help="expected strength at the expected exponent (e.g. g/L in s^-2 for n = 1)")
     rule.add_argument("--strength-unit", metavar="UNIT",
                       help='unit of --expect-strength and of the table, e.g. "s^-2" or "au^3/d^2" '
                            "(default: metres and seconds); each run is converted into it")
-    rule.add_argument("--strength-tolerance", type=float, default=0.05, metavar="R",
+    rule.add_argument("--strength-tolerance", type=float, metavar="R",
                       help="largest relative strength deviation that passes (default 0.05)")
-    rule.add_argument("--min-turns", type=float, default=1.0, help="least turns a run must cover (default 1)")
+    rule.add_argument("--min-turns", type=float, help="least turns a run must cover (default 1)")
     run = parser.add_argument_group("running")
     run.add_argument("--out", default="forcefit-grade", metavar="DIR",
                      help="output folder (default forcefit-grade)")
@@ -67,4 +110,4 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     run.add_argument("--scheduler", metavar="ADDRESS", help="run on this dask.distributed scheduler instead")
     run.add_argument("--resume", action="store_true", help="keep finished runs in --out and skip them")
     run.add_argument("--quiet", action="store_true", help="no progress bar and no per-run lines")
-    parser.set_defaults(handler=_cmd_grade)
+    parser.set_defaults(handler=_cmd_grade, parser=parser)
