@@ -41,6 +41,10 @@ def test_demo_class_set_is_graded_with_reasons(graded):
     assert not result["run_11"][0] and "too short" in result["run_11"][1]
     assert not result["run_12"][0]
     assert "load error" in result["run_12"][1] and "row 904" in result["run_12"][1]
+    # issue 16: the card's stated causes are what the feedback names
+    advice = dict(zip(frame["run"], frame["advice"]))
+    assert "(30/25)^2" in advice["run_09"] and "too short" in advice["run_11"]
+    assert all(not advice[f"run_{i:02d}"] for i in range(1, 9))
     table = pd.read_csv(out / "results.csv")
     assert "strength_at_expected [s^-2]" in table.columns and "duration [s]" in table.columns
 
