@@ -207,7 +207,7 @@ def test_a_run_in_ms_and_mm_is_graded_in_the_rules_units(tmp_path):
     np.testing.assert_allclose(table["duration [s]"], 9.0, rtol=0.01)
     page = (out / "index.html").read_text()
     assert page.count(" s^-2</td>") == 2 and "e-06" not in page
-    assert "ms^-2" not in page
+    assert "ms^-2" not in page and "k, class mean" in page                # issue 16: the class's mean
 
 
 def test_a_strength_given_in_another_unit_is_converted(tmp_path):

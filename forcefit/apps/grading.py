@@ -32,6 +32,7 @@ from ..formatting import measurement
 from ..track import Track
 from ..units import parse_strength_unit, strength_factor, strength_unit, time_factor
 from .class_settings import ClassSettings, merged_options
+from .class_summary import summarise_class
 from .feedback import RunFacts, likely_mistakes
 from .run_files import fingerprint, guard_cell, sort_runs, unguard_cell
 
@@ -385,7 +386,8 @@ def grade_runs(
     write_class_report(frame.to_dict("records"), folder, expect=rule.expect, tolerance=rule.tolerance,
                        strength=rule.strength, strength_tolerance=rule.strength_tolerance,
                        strength_unit=rule.unit, csv_name=RESULTS, title=title,
-                       skipped=[(path.name, reason) for path, reason in found.skipped])
+                       skipped=[(path.name, reason) for path, reason in found.skipped],
+                       summary=summarise_class(frame.to_dict("records"), rule.unit).rows() if rows else [])
     return frame
 
 

@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from ..apps.class_settings import SETTINGS_NAME, STARTING_FILE, ClassSettings, read_settings
+from ..apps.class_summary import summarise_class
 from ..apps.grading import grade_runs, rule_with_settings
 from ..apps.run_files import sort_runs
 from ..errors import InputError
@@ -73,6 +74,9 @@ def _cmd_grade(args: argparse.Namespace) -> int:
                 print(f"    likely cause: {row['advice']}")
         for path, reason in sort_runs(args.source).skipped:
             print(f"  skipped {path.name}: {reason}")
+    if len(frame):
+        for row in summarise_class(frame.to_dict("records"), rule.unit).rows():
+            print(f"  {row.label}: {row.text}")
     print(f"{passed} of {len(frame)} runs meet the rule; report: {Path(args.out) / 'index.html'}, "
           f"table: {Path(args.out) / 'results.csv'}")
     return EXIT_OK if passed == len(frame) else EXIT_FAILED_CHECKS

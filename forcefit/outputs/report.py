@@ -208,12 +208,14 @@ def write_class_report(
     csv_name: str = "results.csv",
     title: str = "class report",
     skipped: Sequence[tuple[str, str]] = (),
+    summary: Sequence[Row] = (),
 ) -> Path:
     """Write the class's index page: every run with its grade, reason and likely mistake, the
     files skipped as not runs, and the histogram.
 
     ``rows`` are the grading rows (see `forcefit.apps.grading`); a row's ``report`` is the
-    run's page relative to ``out_dir``; ``skipped`` holds (file name, reason) pairs.
+    run's page relative to ``out_dir``; ``skipped`` holds (file name, reason) pairs; ``summary``
+    the class's means over its passing runs.
     """
     folder = Path(out_dir)
     folder.mkdir(parents=True, exist_ok=True)
@@ -242,7 +244,7 @@ def write_class_report(
         strength_unit=strength_unit, passed=sum(1 for row in rows if row["passed"]),
         failed=sum(1 for row in rows if not row["passed"]),
         histogram=base64.b64encode(histogram).decode("ascii"), histogram_file="exponents.png",
-        csv=csv_name, skipped=list(skipped), version=__version__,
+        csv=csv_name, skipped=list(skipped), summary=list(summary), version=__version__,
         written=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
     )
     return write_atomic(folder / "index.html", html)
