@@ -120,7 +120,7 @@ class Deviation:
         if not math.isfinite(self.p_value):
             return size
         word = "consistent with" if self.consistent else "differs from"
-        return f"{size} ({p_phrase(self.p_value)}): {word} {self.name}"
+        return f"({size}, {p_phrase(self.p_value)}): {word} {self.name}"
 
     def rows(self) -> list[Row]:
         """The strength at the nominal exponent (omega and g where they apply), the deviation and

@@ -46,8 +46,10 @@ class PendulumCorrection:
     omega_squared, omega_squared_stderr : float
         g/L (T**-2): the measured k at n = 1 divided by ``ideal_strength_ratio``.
     gravity, gravity_stderr : float
-        g = omega**2 L (L T**-2).
+        g = omega**2 L (L T**-2); the error includes the length's.
     length_unit, time_unit : str
+    length_stderr : float
+        The standard error of the length as given (0 when exact).
     """
 
     length: float
@@ -61,6 +63,7 @@ class PendulumCorrection:
     gravity_stderr: float
     length_unit: str
     time_unit: str
+    length_stderr: float = 0.0
 
     def rows(self) -> list[Row]:
         """The correction as rows with units."""
@@ -73,7 +76,8 @@ class PendulumCorrection:
             Row("g / L", measurement(self.omega_squared, self.omega_squared_stderr),
                 strength_unit(self.length_unit, self.time_unit, 1.0)),
             Row("g", measurement(self.gravity, self.gravity_stderr),
-                f"{self.length_unit} {self.time_unit}^-2 (with L = {self.length:g} {self.length_unit})"),
+                f"{self.length_unit} {self.time_unit}^-2 (with L = "
+                f"{measurement(self.length, self.length_stderr or None, self.length_unit)})"),
         ]
 
     def to_text(self) -> str:
@@ -85,7 +89,9 @@ class PendulumCorrection:
         return json_safe(dict(vars(self)))
 
 
-def pendulum_correction(fit: OrbitFit, track: Track, *, length: float) -> PendulumCorrection:
+def pendulum_correction(
+    fit: OrbitFit, track: Track, *, length: float, length_stderr: float = 0.0
+) -> PendulumCorrection:
     """Take a finite swing's offsets off an orbit fit of a pendulum bob's path.
 
     Parameters
@@ -96,6 +102,8 @@ def pendulum_correction(fit: OrbitFit, track: Track, *, length: float) -> Pendul
         The bob's positions, in a length unit (not pixels) and a time unit.
     length : float
         Pivot to bob centre, in the track's length unit.
+    length_stderr : float
+        Its standard error, same unit; added in quadrature to g's error (g = omega**2 L).
 
     Returns
     -------
@@ -132,7 +140,8 @@ def pendulum_correction(fit: OrbitFit, track: Track, *, length: float) -> Pendul
     return PendulumCorrection(
         length=float(length), ideal_exponent=model.exponent, ideal_strength_ratio=ratio, exponent=exponent,
         exponent_stderr=fit.exponent_stderr, omega_squared=corrected, omega_squared_stderr=corrected_se,
-        gravity=corrected * length, gravity_stderr=corrected_se * length,
+        gravity=corrected * length, length_stderr=float(length_stderr),
+        gravity_stderr=math.hypot(corrected_se * length, corrected * length_stderr),
         length_unit=track.length_unit, time_unit=track.time_unit)
 
 

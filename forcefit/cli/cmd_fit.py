@@ -155,7 +155,8 @@ def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tupl
     if length is not None and isinstance(fit, OrbitFit) and abs(fit.exponent - 1.0) < NEAR_HOOKE:
         try:
             scale = length_factor(length[2], track.length_unit)
-            beside.append(("pendulum", pendulum_correction(fit, track, length=length[0] * scale)))
+            beside.append(("pendulum", pendulum_correction(fit, track, length=length[0] * scale,
+                                                           length_stderr=length[1] * scale)))
         except ForcefitError as exc:
             beside.append(("pendulum", NotApplied(f"finite swing not taken off: {exc}")))
     return beside
