@@ -136,7 +136,10 @@ class Deviation:
                                                              self.angular_frequency_stderr),
                             f"rad/{self.time_unit}"))
         if math.isfinite(self.gravity):
-            rows.append(Row("g = k L", measurement(self.gravity, self.gravity_stderr), self.gravity_unit))
+            caution = "" if self.consistent else (" (n differs from 1 beyond its errors, so this k and g "
+                                                  "are biased: use g with the finite swing taken off)")
+            rows.append(Row("g = k L", measurement(self.gravity, self.gravity_stderr),
+                            self.gravity_unit + caution))
             rows.append(Row("with L", measurement(self.pendulum_length, self.pendulum_length_stderr or None),
                             self.pendulum_length_unit))
         rows.append(Row(f"deviation from n = {n0}", measurement(self.delta, self.delta_stderr),
