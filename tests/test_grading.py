@@ -208,6 +208,9 @@ def test_a_run_in_ms_and_mm_is_graded_in_the_rules_units(tmp_path):
     page = (out / "index.html").read_text()
     assert page.count(" s^-2</td>") == 2 and "e-06" not in page
     assert "ms^-2" not in page and "k, class mean" in page                # issue 16: the class's mean
+    # issue 16: k against the rule beside n, and a student column for the gradebook
+    assert (out / "strengths.png").read_bytes().startswith(b"\x89PNG") and "<td>bruno</td>" in page
+    assert read_results(out / "results.csv")["student"].tolist() == ["anna", "bruno"]
 
 
 def test_a_strength_given_in_another_unit_is_converted(tmp_path):

@@ -2,7 +2,7 @@
 
 import pytest
 
-from forcefit.apps.run_files import fingerprint, guard_cell, sort_runs, unguard_cell
+from forcefit.apps.run_files import fingerprint, guard_cell, sort_runs, student_of, unguard_cell
 
 
 def test_notes_photos_and_earlier_results_are_skipped_with_the_reason(tmp_path):
@@ -47,3 +47,9 @@ def test_formula_cells_are_guarded_and_come_back_unchanged(text):
 def test_plain_cells_are_left_alone():
     for text in ("anna", "run 03", "it's", "'quoted", ""):
         assert guard_cell(text) == text and unguard_cell(text) == text
+
+
+def test_the_student_is_the_run_name_up_to_its_first_separator():
+    # issue 16: a student-ID column for the gradebook, from the file name
+    assert [student_of(name) for name in ("s1042_week3", "anna-run2", "carla 2", "dora")] == \
+        ["s1042", "anna", "carla", "dora"]

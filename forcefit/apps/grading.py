@@ -34,10 +34,10 @@ from ..units import parse_strength_unit, strength_factor, strength_unit, time_fa
 from .class_settings import ClassSettings, merged_options
 from .class_summary import summarise_class
 from .feedback import RunFacts, likely_mistakes
-from .run_files import fingerprint, guard_cell, sort_runs, unguard_cell
+from .run_files import fingerprint, guard_cell, sort_runs, student_of, unguard_cell
 
 RESULTS = "results.csv"
-TEXT_COLUMNS = ("run", "file", "reason", "advice", "notes", "method", "run_units", "report")
+TEXT_COLUMNS = ("run", "file", "reason", "advice", "notes", "method", "run_units", "student", "report")
 """Columns of the results table that hold text (guarded against spreadsheet formulas)."""
 
 
@@ -130,7 +130,8 @@ def _row(path: Path, name: str, **values: Any) -> dict[str, Any]:
             "exponent_stderr": math.nan, "strength_at_expected": math.nan,
             "strength_at_expected_stderr": math.nan, "strength_unit": "", "duration": math.nan,
             "time_unit": "", "turns": math.nan, "reduced_chi2": math.nan, "n_points": 0,
-            "method": "", "run_units": "", "advice": "", "notes": "", "fingerprint": "", "report": ""}
+            "method": "", "run_units": "", "advice": "", "notes": "", "fingerprint": "",
+            "student": student_of(name), "report": ""}
     base.update(values)
     return base
 

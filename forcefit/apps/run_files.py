@@ -102,6 +102,17 @@ def _not_a_run(path: Path) -> str:
     return ""
 
 
+def student_of(name: str) -> str:
+    """The student's ID in a run's name: the name up to its first underscore, hyphen or space.
+
+    Examples
+    --------
+    >>> student_of("s1042_week3"), student_of("anna-run2"), student_of("bruno")
+    ('s1042', 'anna', 'bruno')
+    """
+    return re.split(r"[_\- ]", name, maxsplit=1)[0] or name
+
+
 def fingerprint(path: str | os.PathLike[str], settings: Any) -> str:
     """A digest of a run file's bytes and of the settings it is graded with (the rule, the reading
     options): equal digests mean the same grade.

@@ -224,25 +224,28 @@ def apsides_figure(apsides: Apsides) -> Figure:
     return figure
 
 
-def grade_histogram(exponents: Sequence[float], expected: float, tolerance: float) -> Figure:
-    """The class's fitted exponents against the tolerance band around the expected one."""
+def grade_histogram(exponents: Sequence[float], expected: float, tolerance: float, *,
+                    quantity: str = "fitted exponent n",
+                    title: str = "exponents of the class against the tolerance band") -> Figure:
+    """The class's fitted exponents (or another quantity, named by ``quantity``) against the
+    tolerance band around the expected value."""
     figure = Figure(figsize=(6.5, 3.0))
     axis = figure.subplots()
     values = np.asarray([v for v in exponents if np.isfinite(v)])
     axis.axvspan(expected - tolerance, expected + tolerance, color=PALETTE["accent"], alpha=0.18,
-                 label=f"pass: {expected:g} ± {tolerance:g}")
+                 label=f"pass: {expected:.6g} ± {tolerance:.2g}")
     if values.size:
         span = max(np.ptp(values), 4 * tolerance)
         bins = np.linspace(min(values.min(), expected - 2 * tolerance) - 0.05 * span,
                            max(values.max(), expected + 2 * tolerance) + 0.05 * span, 30)
         axis.hist(values, bins=bins.tolist(), color=PALETTE["data"], edgecolor="white", label="runs")
     axis.axvline(expected, color=PALETTE["ink"], linewidth=1.0)
-    axis.set_xlabel("fitted exponent n", fontsize=9)
+    axis.set_xlabel(quantity, fontsize=9)
     axis.set_ylabel("runs", fontsize=9)
     axis.yaxis.set_major_locator(MaxNLocator(integer=True))
     axis.legend(fontsize=8, frameon=False)
     _style(axis)
-    axis.set_title("exponents of the class against the tolerance band", fontsize=10)
+    axis.set_title(title, fontsize=10)
     return figure
 
 

@@ -223,6 +223,14 @@ def write_class_report(
     histogram = figure_png(grade_histogram([float(v) for v in exponents if v is not None],
                                            expect, tolerance))
     write_atomic(folder / "exponents.png", histogram)
+    strengths = None
+    if strength is not None and strength_tolerance:
+        values = [_number(row.get("strength_at_expected")) for row in rows]
+        strengths = figure_png(grade_histogram(
+            values, strength, strength * strength_tolerance,
+            quantity=f"k at n = {expect:g} [{strength_unit}]",
+            title="strengths of the class against the tolerance band"))
+        write_atomic(folder / "strengths.png", strengths)
     runs = []
     for row in rows:
         exponent = _number(row.get("exponent"))
@@ -236,6 +244,7 @@ def write_class_report(
             "exponent": measurement(exponent, error) if math.isfinite(exponent) else "—",
             "strength": measurement(k, k_error, strength_unit) if math.isfinite(k) else "—",
             "reason": row.get("reason", ""), "advice": row.get("advice") or "",
+            "student": row.get("student") or "",
         })
     html = _environment().get_template("class.html.j2").render(
         title=title, runs=runs, expect=f"{expect:g}", tolerance=f"{tolerance:g}",
@@ -244,6 +253,7 @@ def write_class_report(
         strength_unit=strength_unit, passed=sum(1 for row in rows if row["passed"]),
         failed=sum(1 for row in rows if not row["passed"]),
         histogram=base64.b64encode(histogram).decode("ascii"), histogram_file="exponents.png",
+        strengths=None if strengths is None else base64.b64encode(strengths).decode("ascii"),
         csv=csv_name, skipped=list(skipped), summary=list(summary), version=__version__,
         written=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
     )
