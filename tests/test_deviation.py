@@ -10,7 +10,7 @@ from forcefit.analysis.apsides import measure_apsides
 from forcefit.analysis.deviation import deviation_from
 from forcefit.cli import main
 from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum
-from forcefit.estimators import fit_orbit, fit_shape
+from forcefit.estimators import LawFit, fit_orbit
 
 
 @pytest.fixture(scope="module")
@@ -100,7 +100,13 @@ def test_the_deviation_its_significance_and_p_value():
 
 
 def test_without_timestamps_only_the_deviation_is_given():
-    fit = fit_shape(simulate_orbit(exponent=1.0, noise=1e-3, rng=1).shape_only(), centre=(0.0, 0.0))
+    # a shape-only fit (no times) has no strength, so no k at n = 1 and no g
+    fit = LawFit(exponent=0.99, exponent_stderr=0.002, strength=math.nan, strength_stderr=math.nan,
+                 strength_per_h2=1.0, strength_per_h2_stderr=0.1, centre=(0.0, 0.0),
+                 centre_stderr=(0.01, 0.01), method="shape", n_points=100, chi2=98.0, reduced_chi2=1.0,
+                 parameter_names=(), covariance=[], residuals=[], length_unit="m", time_unit=None,
+                 reference_radius=0.2, force_at_reference=math.nan, force_at_reference_stderr=math.nan)
     law = deviation_from(fit, 1.0, pendulum_length=(2.0, "m"))
     assert math.isnan(law.strength) and law.strength_unit == "" and math.isnan(law.gravity)
     assert law.rows()[0].text == "not determined (no timestamps)"
+    assert law.delta == pytest.approx(-0.01) and law.significance == pytest.approx(5.0)
