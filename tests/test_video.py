@@ -111,7 +111,7 @@ def test_track_command_writes_a_track_file_every_command_reads(hooke_video, tmp_
     picture = cv2.imread(str(overlay))
     assert picture.shape == (SIZE[1], SIZE[0], 3)
     assert main(["inspect", str(out)]) == 0
-    assert "5 rows dropped" in capsys.readouterr().out
+    assert "5 rows left out" in capsys.readouterr().out                   # named by row and time
     assert main(["fit", str(path), "--json"]) == 0                     # the video directly
     report = json.loads(capsys.readouterr().out)[0]
     assert report["video"]["n_lost"] == 5 and report["video"]["lost_frames"] == list(HIDDEN)
