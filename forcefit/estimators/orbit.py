@@ -402,7 +402,9 @@ def _sample_names(tracks: tuple[Track, ...], indices: np.ndarray) -> str:
 
 
 def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss,
-                     correlation_time: float, tracks: tuple[Track, ...]) -> dict[str, Diagnostic]:
+                     correlation_time: float, tracks: tuple[Track, ...] = ()) -> dict[str, Diagnostic]:
+    """Runs, correlation and outliers of the radial residuals; outliers named by the tracks' rows and
+    times when the tracks are given, else by their sample number (from 1)."""
     checks = {"residuals": runs_diagnostic(radial)}
     normalised = radial / sigma
     centred = normalised - normalised.mean()
@@ -420,7 +422,10 @@ def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss,
     spread = 1.4826 * float(np.median(np.abs(normalised - np.median(normalised))))
     outliers = np.flatnonzero(np.abs(normalised - np.median(normalised)) > OUTLIER_Z * spread)
     if outliers.size:
-        listed = _sample_names(tracks, outliers[:12]) + (" ..." if outliers.size > 12 else "")
+        shown = outliers[:12]
+        numbers = "samples " + ", ".join(str(int(i) + 1) for i in shown)
+        named = _sample_names(tracks, shown) if tracks else numbers
+        listed = named + (" ..." if outliers.size > 12 else "")
         verdict = None if loss != "linear" else False
         advice = "down-weighted by the robust loss" if loss != "linear" else (
             "refit with a robust loss (--robust) or remove them")
