@@ -328,7 +328,7 @@ class ShapeFit(LawFit):
     correlation_time: float
 
     def _extra_rows(self) -> list[Row]:
-        return [Row("noise", format_measurement(self.noise), self.length_unit, brief=False)]
+        return [Row("noise", measurement(self.noise), self.length_unit, brief=False)]
 
     def _details(self) -> dict[str, Any]:
         return {"reference_angle": self.reference_angle, "angular_momentum": self.angular_momentum,
