@@ -22,7 +22,7 @@ demo: $(VENV)/.installed
 	$(BIN)/forcefit demo
 
 test: $(VENV)/.installed-test
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q -n auto --dist loadfile
 
 slow: $(VENV)/.installed-test
 	$(BIN)/python -m pytest -q -m slow

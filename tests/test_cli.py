@@ -264,3 +264,24 @@ def test_simulate_pendulum_writes_the_units_asked_for(tmp_path, capsys):
 def test_center_is_accepted_as_centre(capsys):
     args = build_parser().parse_args(["fit", "run.csv", "--center", "1.5,-2"])
     assert args.centre == (1.5, -2.0)
+
+
+def test_the_command_list_loads_no_command_and_no_heavy_library():
+    # `forcefit --help` lists the commands from a table; a command's module (and numpy, scipy,
+    # pandas, matplotlib, numba) is imported only when that command is used.
+    code = ("import sys\nfrom forcefit.cli import main\ntry:\n    main(['--help'])\nexcept SystemExit:\n"
+            "    pass\nheavy = [m for m in ('numpy', 'scipy', 'pandas', 'matplotlib', 'numba', 'pint') "
+            "if m in sys.modules]\ncommands = [m for m in sys.modules if m.startswith('forcefit.cli.cmd_')]\n"
+            "print(heavy, commands, file=sys.stderr)")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert result.stderr.strip() == "[] []"
+    assert "calibrate-lens" in result.stdout and "fit F = -k r^n" in result.stdout
+
+
+def test_the_command_tables_help_is_each_commands_own():
+    from forcefit.cli import COMMANDS
+
+    full = build_parser()
+    choices = next(action for action in full._actions if action.dest == "command")
+    helps = {action.dest: action.help for action in choices._choices_actions}
+    assert helps == {name: help_text for name, (_, help_text) in COMMANDS.items()}

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import importlib
 import os
 import sys
 import warnings
@@ -11,20 +12,26 @@ from typing import Any
 
 from .._version import __version__
 from ..errors import ForcefitError
-from . import (
-    cmd_apsides,
-    cmd_calibrate_lens,
-    cmd_demo,
-    cmd_dual,
-    cmd_fit,
-    cmd_grade,
-    cmd_inspect,
-    cmd_plan,
-    cmd_sample,
-    cmd_simulate,
-    cmd_track,
-)
-from ._common import EXIT_BAD_INPUT, EXIT_OK, FORMATTER, loading_options
+
+EXIT_OK, EXIT_BAD_INPUT = 0, 2          # as in ._common, which is imported only with a command
+FORMATTER = argparse.RawDescriptionHelpFormatter
+
+COMMANDS: dict[str, tuple[str, str]] = {
+    "inspect": ("cmd_inspect", "show what a file holds: points, timing, gaps, extent, units, warnings"),
+    "fit": ("cmd_fit", "fit F = -k r^n to a track: exponent, strength, centre, errors, checks"),
+    "sample": ("cmd_sample", "sample the posterior of the orbit fit (emcee): intervals you can trust"),
+    "apsides": ("cmd_apsides", "apsidal angle, precession and the exponent it implies"),
+    "dual": ("cmd_dual", "map a track to its dual law (w = z^((n+3)/2)) and write it"),
+    "plan": ("cmd_plan", "forecast the precision of a planned run (Fisher information of the orbit fit)"),
+    "grade": ("cmd_grade", "grade many runs against an expected law; results table and a report per run"),
+    "simulate": ("cmd_simulate", "write a synthetic track with known truth (CSV)"),
+    "demo": ("cmd_demo", "run forcefit on the bundled demo data"),
+    "track": ("cmd_track", "find a marked body in every frame of a video and write its track (px, s)"),
+    "calibrate-lens": ("cmd_calibrate_lens",
+                       "measure a camera's lens distortion from photographs of a chessboard"),
+}
+"""Each command's module and one-line help. ``forcefit --help`` lists them without importing
+any; a command's module (and the libraries it needs) is imported only when it is used."""
 
 _MAIN_EXAMPLES = """\
 examples:
@@ -37,25 +44,46 @@ examples:
 """
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The argument parser of the ``forcefit`` command."""
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The argument parser of the ``forcefit`` command.
+
+    Parameters
+    ----------
+    only : str, optional
+        Build this command's options only (the others are listed by name and help); default:
+        every command's options.
+    """
     parser = argparse.ArgumentParser(
         prog="forcefit", formatter_class=FORMATTER, epilog=_MAIN_EXAMPLES,
         description="Infer the central force law F(r) = -k r^n r_hat behind a planar trajectory.",
     )
     parser.add_argument("--version", action="version", version=f"forcefit {__version__}")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    loading = loading_options()
-    for module in (cmd_inspect, cmd_fit, cmd_sample, cmd_apsides, cmd_dual, cmd_plan, cmd_grade,
-                   cmd_simulate, cmd_demo, cmd_track, cmd_calibrate_lens):
-        module.register(commands, loading)
+    loading = None
+    for name, (module_name, help_text) in COMMANDS.items():
+        if only is not None and name != only:
+            commands.add_parser(name, help=help_text)
+            continue
+        if loading is None:
+            from ._common import loading_options
+
+            loading = loading_options()
+        importlib.import_module(f"{__name__}.{module_name}").register(commands, loading)
     return parser
+
+
+def _command_in(argv: Sequence[str]) -> str | None:
+    """The command named on the command line, if any (the first word not an option)."""
+    word = next((word for word in argv if not word.startswith("-")), None)
+    return word if word in COMMANDS else None
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``forcefit`` command; returns the exit status."""
-    parser = build_parser()
-    args = parser.parse_args(argv)
+    words = sys.argv[1:] if argv is None else list(argv)
+    command = _command_in(words)
+    parser = build_parser(only=command) if command else build_parser(only="")
+    args = parser.parse_args(words)
     handler: Callable[[argparse.Namespace], int] = args.handler
     previous, warnings.formatwarning = warnings.formatwarning, _one_line_warning
     try:
