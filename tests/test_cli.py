@@ -278,6 +278,21 @@ def test_the_command_list_loads_no_command_and_no_heavy_library():
     assert "calibrate-lens" in result.stdout and "fit F = -k r^n" in result.stdout
 
 
+@pytest.mark.parametrize("command", ["fit", "sample", "track"])
+def test_a_commands_help_loads_none_of_the_numerical_libraries(command):
+    code = (f"import sys\nfrom forcefit.cli import main\ntry:\n    main(['{command}', '--help'])\n"
+            "except SystemExit:\n    pass\nheavy = [m for m in ('scipy', 'matplotlib', 'numba', 'lmfit', "
+            "'emcee', 'cv2', 'av', 'pint') if m in sys.modules]\nprint(heavy, file=sys.stderr)")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert result.stderr.strip() == "[]" and "usage: forcefit " + command in result.stdout
+
+
+def test_the_fit_commands_methods_are_the_registrys():
+    from forcefit.cli.cmd_fit import METHODS
+
+    assert METHODS == tuple(sorted(ESTIMATORS))
+
+
 def test_the_command_tables_help_is_each_commands_own():
     from forcefit.cli import COMMANDS
 

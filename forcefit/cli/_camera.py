@@ -9,14 +9,14 @@ import argparse
 import re
 import sys
 from collections.abc import Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .._json import json_safe
 from ..errors import InputError
-from ..reading.lens import load_lens
-from ..reading.perspective import PlaneMapping
-from ..reading.video import NAMED_HUES
-from ..track import Track
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    from ..reading.perspective import PlaneMapping
+    from ..track import Track
 
 
 def _numbers(text: str, option: str) -> list[float]:
@@ -46,6 +46,8 @@ def region(text: str) -> tuple[int, int, int, int]:
 
 def colour(text: str) -> str | tuple[float, float]:
     """A colour name, or a hue range ``"H1-H2"`` in degrees."""
+    from ..reading._blobs import NAMED_HUES
+
     match = re.fullmatch(r"\s*(\d+(?:\.\d*)?)\s*-\s*(\d+(?:\.\d*)?)\s*", text)
     if match:
         return float(match[1]), float(match[2])
@@ -69,6 +71,8 @@ def rectangle(text: str) -> tuple[float, float, str]:
 
 def add_tracking_options(parser: argparse.ArgumentParser) -> None:
     """The options that say how to find the marker in a video."""
+    from ..reading._blobs import NAMED_HUES
+
     group = parser.add_argument_group("tracking a video (.mp4 .avi .mov .mkv)")
     group.add_argument("--marker", choices=("bright", "dark", "colour"),
                        help="the marker is brighter or darker than what lies behind it, or coloured "
@@ -119,6 +123,9 @@ def add_plane_options(parser: argparse.ArgumentParser) -> None:
 
 def plane_mapping(args: argparse.Namespace) -> PlaneMapping | None:
     """The mapping the plane options ask for, or None."""
+    from ..reading.lens import load_lens
+    from ..reading.perspective import PlaneMapping
+
     lens = load_lens(args.lens) if args.lens else None
     if args.plane_marks is None:
         if args.plane_rectangle or args.plane_points or args.plane_unit or lens is not None:

@@ -7,17 +7,16 @@ import argparse
 import json
 import re
 from collections.abc import Mapping, Sequence
-from typing import Any, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
-from ..dynamics.forces import ExtraForces, Perturber, Relativity, Yukawa
-from ..dynamics.laws import lab_rotation_rate
-from ..dynamics.propagate import Drag
 from ..errors import InputError
-from ..reading.coordinates import Calibration
-from ..reading.loaders import load_tracks
-from ..track import Track
-from ..units import length_factor, time_factor
 from ._camera import add_plane_options, add_tracking_options, plane_mapping, tracking_keywords
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    from ..dynamics.forces import ExtraForces
+    from ..dynamics.propagate import Drag
+    from ..reading.coordinates import Calibration
+    from ..track import Track
 
 EXIT_OK, EXIT_FAILED_CHECKS, EXIT_BAD_INPUT = 0, 1, 2
 FORMATTER = argparse.RawDescriptionHelpFormatter
@@ -65,6 +64,8 @@ def column(text: str) -> tuple[str, str]:
 
 
 def drag(text: str) -> Drag:
+    from ..dynamics.propagate import Drag
+
     kind, _, value = text.partition(":")
     try:
         return Drag(kind, float(value))  # type: ignore[arg-type]
@@ -107,6 +108,8 @@ def loading_options() -> argparse.ArgumentParser:
 
 
 def _calibration(args: argparse.Namespace) -> Calibration | None:
+    from ..reading.coordinates import Calibration
+
     if args.marks is not None:
         if args.mark_distance is None:
             raise InputError("--marks needs --mark-distance (e.g. --mark-distance \"0.5 m\").")
@@ -137,6 +140,8 @@ def loading_keywords(args: argparse.Namespace) -> dict[str, object]:
 
 def read_tracks(path: str, args: argparse.Namespace) -> list[Track]:
     """Load the tracks of one file with the reading and calibration options."""
+    from ..reading.loaders import load_tracks
+
     return load_tracks(path, **loading_keywords(args))  # type: ignore[arg-type]
 
 
@@ -206,6 +211,8 @@ def add_orbit_options(parser: argparse.ArgumentParser) -> None:
 
 def rotation_option(args: argparse.Namespace, track: Track) -> float | Literal["fit"] | None:
     """The observer frame's rotation rate in rad per the track's time unit, or "fit"."""
+    from ..dynamics.laws import lab_rotation_rate
+
     if args.fit_rotation:
         return "fit"
     if args.latitude is not None:
@@ -251,6 +258,10 @@ def _number(text: str, fields: dict[str, str], key: str) -> float:
 
 def extra_forces(specs: Sequence[str], track: Track) -> ExtraForces | None:
     """The known forces ``--extra`` names, in the track's units; None when there are none."""
+    from ..dynamics.forces import ExtraForces, Perturber, Relativity, Yukawa
+    from ..reading.loaders import load_tracks
+    from ..units import length_factor, time_factor
+
     relativity = yukawa = perturber = None
     for text in specs:
         kind, fields = _spec(text)

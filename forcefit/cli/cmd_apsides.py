@@ -4,11 +4,12 @@ from __future__ import annotations
 
 import argparse
 import math
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from ..analysis.apsides import measure_apsides, precession_budget
-from ..formatting import measurement
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, Reports, add_centre_option, read_tracks
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    pass
 
 _EXAMPLES = """\
 examples:
@@ -24,6 +25,8 @@ _BUDGET = {"measured": "measured", "finite_amplitude": "finite amplitude (Airy)"
 
 
 def _budget_lines(rates: dict[str, float]) -> list[str]:
+    from ..formatting import measurement
+
     lines = ["  precession rates in the sense of the motion, rad/s (deg/h):"]
     for key, label in _BUDGET.items():
         if key in rates:
@@ -36,6 +39,8 @@ def _budget_lines(rates: dict[str, float]) -> list[str]:
 
 
 def _cmd_apsides(args: argparse.Namespace) -> int:
+    from ..analysis.apsides import measure_apsides, precession_budget
+
     reports, status = Reports(args.json), EXIT_OK
     for track in read_tracks(args.file, args):
         apsides = measure_apsides(track, centre=args.centre)

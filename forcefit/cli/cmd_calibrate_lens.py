@@ -5,12 +5,14 @@ from __future__ import annotations
 import argparse
 import json
 import re
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .._atomic import write_atomic
 from .._json import json_safe
-from ..reading.lens import calibrate_lens
 from ._common import EXIT_OK, FORMATTER
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    pass
 
 _LENS_EXAMPLES = """\
 examples:
@@ -30,6 +32,8 @@ def _corners(text: str) -> tuple[int, int]:
 
 
 def _cmd_calibrate_lens(args: argparse.Namespace) -> int:
+    from ..reading.lens import calibrate_lens
+
     lens = calibrate_lens(args.images, inner_corners=args.corners)
     write_atomic(args.out, lens.to_toml())
     if args.json:

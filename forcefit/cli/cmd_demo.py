@@ -6,24 +6,22 @@ import argparse
 import math
 import warnings
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from ..apps.demo import DemoDataset, demo_datasets
-from ..apps.grading import GradingRule, grade_runs
 from ..errors import ForcefitError, ForcefitWarning
-from ..estimators import fit_curvature, fit_orbit, fit_shape
-from ..estimators.result import LawFit
-from ..formatting import CHECK_MARKS, measurement
-from ..geometry.path import describe_path
-from ..inference.posterior import sample_posterior
-from ..reading.inspection import inspect_track
-from ..reading.video import is_video
-from ..track import Track
 from ._camera import camera_lines
 from ._common import EXIT_OK
 
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    from ..apps.demo import DemoDataset
+    from ..estimators.result import LawFit
+    from ..track import Track
+
 
 def _cmd_demo(args: argparse.Namespace) -> int:
+    from ..apps.demo import demo_datasets
+    from ..reading.video import is_video
+
     datasets = demo_datasets(args.data)
     for dataset in datasets:
         print(f"\n== {dataset.title}")
@@ -53,6 +51,11 @@ def _failed(fit: LawFit) -> str:
 
 def _grade_class(dataset: DemoDataset, out: str) -> None:
     """Grade the class set against its expected law and write the class report."""
+    from ..apps.grading import GradingRule, grade_runs
+    from ..estimators import fit_orbit
+    from ..formatting import CHECK_MARKS, measurement
+    from ..inference.posterior import sample_posterior
+
     expected = dataset.expected
     rule = GradingRule(expect=expected["exponent"], tolerance=expected["exponent_tolerance"],
                        strength=expected["strength"], strength_tolerance=expected["strength_tolerance"],
@@ -73,6 +76,11 @@ def _grade_class(dataset: DemoDataset, out: str) -> None:
 
 def _demo_track(track: Track, options: dict[str, Any]) -> None:
     """The inspection table, the orbit fit in full, and the time-free estimators in a line each."""
+    from ..estimators import fit_curvature, fit_orbit, fit_shape
+    from ..formatting import measurement
+    from ..geometry.path import describe_path
+    from ..reading.inspection import inspect_track
+
     centre = tuple(options["centre"]) if "centre" in options else None
     print("\n".join([inspect_track(track).to_text(), *camera_lines(track)]))
     fit = fit_orbit(track, centre=centre, drag=options.get("drag"),

@@ -5,14 +5,12 @@ from __future__ import annotations
 import argparse
 import math
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from ..analysis.duality_check import predicted_dual_strength_with_error
-from ..dynamics.duality import dual_exponent, dual_track
-from ..estimators import registry
-from ..reading.loaders import save_track
-from ..units import strength_unit
 from ._common import EXIT_OK, FORMATTER, add_centre_option, read_tracks
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    pass
 
 _EXAMPLES = """\
 examples:
@@ -22,6 +20,12 @@ examples:
 
 
 def _cmd_dual(args: argparse.Namespace) -> int:
+    from ..analysis.duality_check import predicted_dual_strength_with_error
+    from ..dynamics.duality import dual_exponent, dual_track
+    from ..estimators import registry
+    from ..reading.loaders import save_track
+    from ..units import strength_unit
+
     tracks = read_tracks(args.file, args)
     for track in tracks:
         exponent, centre = args.exponent, args.centre

@@ -5,23 +5,10 @@ from __future__ import annotations
 import argparse
 import math
 from dataclasses import dataclass
-from typing import Any, Protocol
+from typing import TYPE_CHECKING, Any, Protocol
 
 from .._types import Row
-from ..analysis.apsides import MIN_SECULAR_ORBITS, measure_apsides
-from ..analysis.deviation import Deviation, deviation_from
-from ..analysis.duality_check import check_duality
-from ..analysis.pendulum import pendulum_correction
 from ..errors import ForcefitError, InputError
-from ..estimators import ESTIMATORS, LawFit, OrbitFit, fit_orbit, force_profile, registry
-from ..estimators.projected import fit_projected
-from ..formatting import measurement
-from ..geometry.path import describe_path
-from ..inference.comparison import compare_laws
-from ..outputs.report import write_report
-from ..reading.astrometry import load_astrometry
-from ..track import Track
-from ..units import length_factor
 from ._camera import camera_lines, camera_record
 from ._common import (
     EXIT_FAILED_CHECKS,
@@ -35,6 +22,14 @@ from ._common import (
     read_tracks,
     recorded_options,
 )
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    from ..estimators import LawFit, OrbitFit
+    from ..track import Track
+
+METHODS = ("acceleration", "curvature", "orbit", "shape")
+"""The registry's estimators (``forcefit.estimators.ESTIMATORS``; a test keeps the two equal),
+named here so that ``fit --help`` needs no estimator loaded."""
 
 _FIT_EXAMPLES = """\
 examples:
@@ -63,6 +58,9 @@ TITLES = {"deviation": "Against the nominal law", "pendulum": "The pendulum's fi
 
 def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
     """Fit one track with the method and options of the command line."""
+    from ..estimators import registry
+    from ..geometry.path import describe_path
+
     method = registry.choose_method(track, args.method or "auto")
     if method != "orbit":
         given = [f"--{name.replace('_', '-')}" for name in ORBIT_ONLY if getattr(args, name)]
@@ -80,6 +78,9 @@ def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
 
 def _fitted_extras(fit: LawFit) -> list[str]:
     """The orbit fit's drag and frame rotation, when fitted, a line each."""
+    from ..estimators import OrbitFit
+    from ..formatting import measurement
+
     if not isinstance(fit, OrbitFit):
         return []
     lines = []
@@ -101,6 +102,9 @@ def _nominal(args: argparse.Namespace, fit: LawFit) -> float:
 
 def _measured_precession(track: Track, fit: OrbitFit, report: dict[str, Any]) -> list[str]:
     """The apses' own turn beside the one the fitted exponent implies."""
+    from ..analysis.apsides import measure_apsides
+    from ..formatting import measurement
+
     try:
         apsides = measure_apsides(track, centre=fit.centre)
     except ForcefitError as exc:
@@ -147,6 +151,11 @@ def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tupl
     """The results shown beside the fit, by their JSON key: the strength at the nominal exponent and
     the deviation from it, and with --pendulum-length an orbit fit near n = 1 with its finite
     swing taken off."""
+    from ..analysis.deviation import deviation_from
+    from ..analysis.pendulum import pendulum_correction
+    from ..estimators import OrbitFit
+    from ..units import length_factor
+
     length = args.pendulum_length
     deviation = deviation_from(fit, _nominal(args, fit),
                                pendulum_length=None if length is None else (length[0], length[2]),
@@ -165,6 +174,13 @@ def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tupl
 def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, Any], str]:
     """Fit one track with everything the command line asked for: whether it passed, its JSON
     report and its text."""
+    from ..analysis.apsides import MIN_SECULAR_ORBITS
+    from ..analysis.deviation import Deviation
+    from ..analysis.duality_check import check_duality
+    from ..estimators import OrbitFit, force_profile
+    from ..inference.comparison import compare_laws
+    from ..outputs.report import write_report
+
     fit = fit_track(track, args)
     profile = force_profile(track, bins=args.profile, centre=fit.centre) if args.profile else None
     comparison = None
@@ -208,6 +224,9 @@ PROJECTED_OPTIONS = ("fix_exponent", "centre", "robust", "json", "length_unit", 
 
 def _cmd_fit_projected(args: argparse.Namespace, parser_defaults: dict[str, Any]) -> int:
     """``fit FILE --projected``: the law and the orientation of an orbit seen on the sky."""
+    from ..estimators.projected import fit_projected
+    from ..reading.astrometry import load_astrometry
+
     given = sorted(name for name, default in parser_defaults.items()
                    if name not in (*PROJECTED_OPTIONS, "file", "projected", "handler", "command")
                    and getattr(args, name, default) != default)
@@ -226,6 +245,8 @@ def _cmd_fit_projected(args: argparse.Namespace, parser_defaults: dict[str, Any]
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
+    from ..estimators import fit_orbit
+
     if args.projected:
         return _cmd_fit_projected(args, args.defaults)
     status, reports = EXIT_OK, Reports(args.json)
@@ -261,7 +282,7 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
         help="fit F = -k r^n to a track: exponent, strength, centre, errors, checks",
         description="Fit the central force law F = -k r^n r_hat to the tracks in FILE.")
     fit.add_argument("file", metavar="FILE")
-    fit.add_argument("--method", choices=sorted(ESTIMATORS),
+    fit.add_argument("--method", choices=METHODS,
                      help="estimator (default: orbit with timestamps, shape without)")
     add_centre_option(fit)
     fit.add_argument("--json", action="store_true", help="print JSON instead of a table")

@@ -4,15 +4,14 @@ from __future__ import annotations
 
 import argparse
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from ..apps.class_settings import SETTINGS_NAME, STARTING_FILE, ClassSettings, read_settings
-from ..apps.class_summary import summarise_class
-from ..apps.grading import grade_runs, rule_with_settings
-from ..apps.run_files import sort_runs
+from ..apps.class_settings import SETTINGS_NAME
 from ..errors import InputError
-from ..formatting import CHECK_MARKS
 from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, loading_keywords
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    from ..apps.class_settings import ClassSettings
 
 _EXAMPLES = """\
 examples:
@@ -28,6 +27,8 @@ examples:
 
 def _settings(args: argparse.Namespace) -> ClassSettings | None:
     """The class settings named with --settings, else the file beside the runs, if any."""
+    from ..apps.class_settings import read_settings
+
     if args.settings is not None:
         return read_settings(args.settings)
     beside = Path(args.source) / SETTINGS_NAME
@@ -48,6 +49,8 @@ def _given(args: argparse.Namespace) -> tuple[dict[str, Any], dict[str, Any]]:
 
 
 def _write_settings(target: str) -> int:
+    from ..apps.class_settings import STARTING_FILE
+
     path = Path(target)
     if path.exists():
         raise InputError(f"{path}: exists already; forcefit does not overwrite it. Name another file.")
@@ -58,6 +61,11 @@ def _write_settings(target: str) -> int:
 
 
 def _cmd_grade(args: argparse.Namespace) -> int:
+    from ..apps.class_summary import summarise_class
+    from ..apps.grading import grade_runs, rule_with_settings
+    from ..apps.run_files import sort_runs
+    from ..formatting import CHECK_MARKS
+
     if args.write_settings is not None:
         return _write_settings(args.write_settings)
     if args.source is None:

@@ -5,12 +5,14 @@ from __future__ import annotations
 import argparse
 import sys
 import warnings
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..errors import ForcefitError, ForcefitWarning
-from ..reading.inspection import inspect_track
 from ._camera import camera_lines, camera_record
 from ._common import EXIT_BAD_INPUT, EXIT_OK, FORMATTER, Reports, read_tracks
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    pass
 
 _INSPECT_EXAMPLES = """\
 examples:
@@ -23,6 +25,8 @@ examples:
 
 
 def _cmd_inspect(args: argparse.Namespace) -> int:
+    from ..reading.inspection import inspect_track
+
     status, reports = EXIT_OK, Reports(args.json)
     for path in args.files:
         try:

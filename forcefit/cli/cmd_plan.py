@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import argparse
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..errors import InputError
-from ..inference.planning import forecast_precision, pendulum_law, required_duration, required_rate
 from ._common import EXIT_OK, FORMATTER, emit, pair
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    pass
 
 _EXAMPLES = """\
 examples:
@@ -18,6 +20,8 @@ examples:
 
 
 def _plan(args: argparse.Namespace) -> dict[str, Any]:
+    from ..inference.planning import pendulum_law
+
     if args.pendulum is not None:
         if args.semi_axes is None:
             raise InputError("--pendulum needs --semi-axes A,B (m): the ellipse the bob will trace.")
@@ -31,6 +35,8 @@ def _plan(args: argparse.Namespace) -> dict[str, Any]:
 
 
 def _cmd_plan(args: argparse.Namespace) -> int:
+    from ..inference.planning import forecast_precision, required_duration, required_rate
+
     plan = {**_plan(args), "rate": args.rate, "noise": args.noise,
             "length_unit": args.length_unit, "time_unit": args.time_unit}
     forecast = forecast_precision(duration=args.duration, **plan)

@@ -4,14 +4,9 @@ from __future__ import annotations
 
 import argparse
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..errors import InputError
-from ..estimators import fit_orbit
-from ..formatting import measurement
-from ..inference.posterior import sample_posterior
-from ..outputs.figures import corner_figure, save_figure, trace_figure
-from ..outputs.report import write_report
 from ._common import (
     EXIT_FAILED_CHECKS,
     EXIT_OK,
@@ -22,6 +17,9 @@ from ._common import (
     orbit_options,
     read_tracks,
 )
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    pass
 
 _SAMPLE_EXAMPLES = """\
 examples:
@@ -45,6 +43,12 @@ def _prior(text: str) -> tuple[str, tuple[str, float, float]]:
 
 
 def _cmd_sample(args: argparse.Namespace) -> int:
+    from ..estimators import fit_orbit
+    from ..formatting import measurement
+    from ..inference.posterior import sample_posterior
+    from ..outputs.figures import corner_figure, save_figure, trace_figure
+    from ..outputs.report import write_report
+
     if args.save and args.resume:
         raise InputError("give --save FILE for a new chain or --resume FILE to continue one, not both.")
     status, reports = EXIT_OK, Reports(args.json)

@@ -5,13 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from ..dynamics.simulate import simulate_orbit, simulate_pendulum, simulate_projected
 from ..errors import InputError
-from ..reading.astrometry import save_astrometry
-from ..reading.loaders import save_track
 from ._common import EXIT_OK, FORMATTER, drag, pair
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    pass
 
 _SIMULATE_EXAMPLES = """\
 examples:
@@ -29,6 +29,9 @@ PLANAR_ONLY = ("rate", "drag", "dropped", "outliers", "shape_only", "pendulum")
 
 
 def _cmd_simulate_projected(args: argparse.Namespace) -> int:
+    from ..dynamics.simulate import simulate_projected
+    from ..reading.astrometry import save_astrometry
+
     given = [f"--{name.replace('_', '-')}" for name in PLANAR_ONLY if getattr(args, name)]
     if given:
         raise InputError(f"{', '.join(given)} does not apply to --projected (use --count for the number "
@@ -54,6 +57,9 @@ def _cmd_simulate_projected(args: argparse.Namespace) -> int:
 
 
 def _cmd_simulate(args: argparse.Namespace) -> int:
+    from ..dynamics.simulate import simulate_orbit, simulate_pendulum
+    from ..reading.loaders import save_track
+
     if args.projected:
         return _cmd_simulate_projected(args)
     sky = [f"--{name.replace('_', '-')}" for name in ("inclination", "node", "count", "separation_error",

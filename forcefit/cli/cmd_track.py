@@ -5,14 +5,16 @@ from __future__ import annotations
 import argparse
 import json
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .._atomic import write_atomic
 from .._json import json_safe
 from ..errors import InputError
-from ..reading.video import is_video, track_video
 from ._camera import add_tracking_options, parse_marks, tracking_keywords
 from ._common import EXIT_OK, FORMATTER
+
+if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
+    pass
 
 _TRACK_EXAMPLES = """\
 examples:
@@ -26,6 +28,8 @@ then:
 
 
 def _cmd_track(args: argparse.Namespace) -> int:
+    from ..reading.video import is_video, track_video
+
     if not is_video(args.video):
         raise InputError(f"{args.video}: not a video by its ending; expected .mp4, .avi, .mov or .mkv. "
                          "Give the video file (a track file is read by fit and inspect directly).")
