@@ -11,7 +11,7 @@ from scipy.signal import savgol_coeffs, savgol_filter
 from .._types import FloatArray
 from ..errors import GeometryError
 from ..track import Track
-from .pspline import PenaltyWeight, SmoothedCurve, smooth_curve
+from .pspline import FilterResponse, PenaltyWeight, SmoothedCurve, smooth_curve
 
 Smoothing = Literal["auto", "spline", "savgol"]
 """Ways to smooth a track: penalised splines ("auto", "spline") or Savitzky-Golay."""
@@ -71,6 +71,7 @@ def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
     else:
         noise = np.asarray(track.sigma)
     scale = (noise**2)[:, None] * np.ones((1, 2))
+    products = np.array([[a @ b for b in coefficients] for a in coefficients])
     return SmoothedCurve(
         parameter=parameter, value=derivative[0], first=derivative[1], second=derivative[2],
         value_var=scale * float(coefficients[0] @ coefficients[0]),
@@ -80,6 +81,8 @@ def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
         noise=noise, level=float(window), knot_spacing=delta,
         dof=track.n_points / window * (order + 1), span=window * delta,
         method=f"Savitzky-Golay, {window} samples, order {order}",
+        covariance=(noise**2)[:, None, None] * products[None], sigma_given=track.sigma is not None,
+        response=FilterResponse((coefficients[0], coefficients[1], coefficients[2]), noise**2),
     )
 
 

@@ -9,7 +9,8 @@ from typing import Any
 import numpy as np
 
 from .._json import json_safe
-from .._types import FloatArray, Row
+from .._noise import NoiseEstimate, estimate_noise
+from .._types import Row
 from ..track import Track
 
 GAP_FACTOR = 1.5
@@ -45,6 +46,9 @@ class TrackSummary:
     plane_normal: tuple[float, ...] | None = None
     calibration: dict[str, Any] | None = None
     warnings: tuple[str, ...] = ()
+    noise_resolved: bool = True
+    noise_lag_ratio: float = math.nan
+    noise_correlated: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe form (nan becomes None)."""
@@ -69,7 +73,8 @@ class TrackSummary:
             ("x range", f"{self.x_range[0]:.6g} to {self.x_range[1]:.6g} {length}"),
             ("y range", f"{self.y_range[0]:.6g} to {self.y_range[1]:.6g} {length}"),
             ("turns", f"{self.turns_about_middle:.2f} about the middle of the path"),
-            ("noise", f"{self.noise_estimate:.3g} {length} (estimated from the path)"),
+            ("noise", NoiseEstimate(self.noise_estimate, self.noise_resolved, self.noise_lag_ratio,
+                                    self.noise_correlated).describe(length)),
         ]
         if math.isfinite(self.median_sigma):
             rows.append(("sigma", f"{self.median_sigma:.3g} {length} median, as given"))
@@ -92,30 +97,6 @@ class TrackSummary:
         lines += [f"  {row.label:<{width}}  {row.text}" for row in rows]
         lines += [f"  warning: {text}" for text in self.warnings]
         return "\n".join(lines)
-
-
-def second_difference_noise(x: FloatArray, y: FloatArray) -> float:
-    """Position noise per coordinate from second differences (robust, MAD-based).
-
-    For a smooth path sampled densely the second difference of the samples is
-    dominated by the noise, whose second difference has variance 6 sigma**2.
-    On sparsely sampled paths this overestimates the noise.
-
-    Parameters
-    ----------
-    x, y : ndarray, shape (n_points,)
-        Positions in time order, in any one length unit.
-
-    Returns
-    -------
-    float
-        Standard deviation per coordinate, same unit; nan with fewer than 5 points.
-    """
-    if x.size < 5:
-        return math.nan
-    second = np.concatenate((np.diff(x, 2), np.diff(y, 2)))
-    spread = 1.4826 * float(np.median(np.abs(second - np.median(second))))
-    return spread / math.sqrt(6.0)
 
 
 def turns_about_middle(track: Track) -> float:
@@ -146,6 +127,7 @@ def inspect_track(track: Track) -> TrackSummary:
         largest = float(steps[is_gap].max()) if n_gaps else math.nan
         rate = 1.0 / float(np.mean(steps[~is_gap]))
     plane = meta.get("plane")
+    noise = estimate_noise(track.x, track.y)
     return TrackSummary(
         name=track.name,
         source=str(meta.get("source", "arrays")),
@@ -159,7 +141,7 @@ def inspect_track(track: Track) -> TrackSummary:
         largest_gap=largest,
         x_range=(float(track.x.min()), float(track.x.max())),
         y_range=(float(track.y.min()), float(track.y.max())),
-        noise_estimate=second_difference_noise(track.x, track.y),
+        noise_estimate=noise.sd,
         median_sigma=math.nan if track.sigma is None else float(np.median(track.sigma)),
         turns_about_middle=turns_about_middle(track),
         dropped_rows=int(meta.get("dropped_rows", 0)),
@@ -168,4 +150,7 @@ def inspect_track(track: Track) -> TrackSummary:
         plane_normal=tuple(plane["normal"]) if plane else None,
         calibration=meta.get("calibration"),
         warnings=tuple(meta.get("warnings", ())),
+        noise_resolved=noise.resolved,
+        noise_lag_ratio=noise.lag_ratio,
+        noise_correlated=noise.correlated,
     )
