@@ -26,7 +26,14 @@ from ..geometry.pspline import SmoothedCurve
 from ..geometry.smoothing import Smoothing
 from ..track import Track
 from ._checks import angular_momentum, constancy_diagnostic
-from ._smoothed import Settled, noise_diagnostics, noise_level, require_resolved_excursion, settle
+from ._smoothed import (
+    Settled,
+    noise_diagnostics,
+    noise_level,
+    require_resolved_excursion,
+    sampling_diagnostic,
+    settle,
+)
 from .result import AccelerationFit, CurvaturePoints, Diagnostic
 
 BEND_Z = 4.0
@@ -258,6 +265,7 @@ def _result(track: Track, level: _Level, settled: Settled[_Level]) -> Accelerati
         "angular momentum": constancy_diagnostic(drift),
         "transverse acceleration": _transverse(track, level),
         "smoothing": settled.diagnostic(track.time_unit),
+        "sampling": sampling_diagnostic(curve),
         **noise_diagnostics(track, settled),
     }
     with np.errstate(divide="ignore", invalid="ignore"):

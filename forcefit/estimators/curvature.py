@@ -25,19 +25,23 @@ import numpy as np
 from .._regression import autocorrelation_time
 from .._types import FloatArray
 from ..errors import GeometryError, NotIdentifiable
-from ..geometry.centre import CentreEstimate, find_centre, relation_start
-from ..geometry.curves import attractive_points, curvature_of, interior, is_straight, relation_residual
+from ..geometry.centre import MIN_BENDING, CentreEstimate, find_centre, relation_guide, relation_start
+from ..geometry.curves import interior, is_straight, relation_residual
 from ..geometry.path import PathGeometry, describe_path, force_relation
 from ..geometry.pointwise import PointwiseFit, fit_pointwise
 from ..geometry.pspline import SmoothedCurve
 from ..geometry.smoothing import Smoothing
 from ..track import Track
 from ._checks import angular_momentum, constancy_diagnostic
-from ._smoothed import Settled, noise_diagnostics, noise_level, require_resolved_excursion, settle
+from ._smoothed import (
+    Settled,
+    noise_diagnostics,
+    noise_level,
+    require_resolved_excursion,
+    sampling_diagnostic,
+    settle,
+)
 from .result import CurvatureFit, CurvaturePoints, Diagnostic
-
-MIN_BENDING = 10
-"""Fewest significantly bending samples from which to start the relation."""
 
 BEND_Z = 4.0
 """A change of the local exponent across the radial range beyond this many standard errors
@@ -167,13 +171,13 @@ def _relation(
     """(n, ln f_ref) of the relation about ``centre`` (held, with its influence), the
     reference radius r_ref and the turning sense. With ``bend``, a third parameter b lets
     the local exponent vary as n + 2 b ln(r / r_ref)."""
-    kappa, kappa_err = curvature_of(curve)
-    bending = attractive_points(curve, kappa, kappa_err)
+    guide, bending = relation_guide(track, curve)
     if bending.sum() < MIN_BENDING:
         raise NotIdentifiable(
             f"{track.label}: only {int(bending.sum())} points bend significantly towards the "
-            "centre; the curvature is too noisy for the curvature estimator. Try the shape estimator.")
-    start, reference, sense = relation_start(curve, bending, centre, track.has_times)
+            "centre, even smoothed more heavily; the curvature is too noisy for the curvature "
+            "estimator. Try the shape estimator.")
+    start, reference, sense = relation_start(guide, bending, centre, track.has_times)
     timed = track.has_times
 
     def residual(parameters: FloatArray, value: FloatArray, first: FloatArray,
@@ -259,6 +263,7 @@ def _result(track: Track, level: _Level, settled: Settled[_Level]) -> CurvatureF
         "angular momentum": constancy_diagnostic(drift),
         "points used": Diagnostic(None, f"{used.size} of {track.n_points} (those away from the ends)."),
         "smoothing": settled.diagnostic(unit),
+        "sampling": sampling_diagnostic(curve),
         **noise_diagnostics(track, settled),
     }
     with np.errstate(divide="ignore", invalid="ignore"):

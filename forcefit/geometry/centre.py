@@ -195,19 +195,19 @@ def _from_curvature_relation(
             "straight, so no force can be read from it. Check that the body moved under the force "
             "(and not only the camera)."
         )
-    kappa, kappa_err = curvature_of(curve)
-    bending = attractive_points(curve, kappa, kappa_err)
-    if bending.sum() < 10:
+    guide, bending = relation_guide(track, curve)
+    if bending.sum() < MIN_BENDING:
         raise NotIdentifiable(
             f"{track.label}: the curvature is too noisy to locate the centre from the shape "
-            f"({int(bending.sum())} of {track.n_points} points bend significantly). Give the centre."
+            f"({int(bending.sum())} of {track.n_points} points bend significantly, even smoothed "
+            f"{HEAVIER ** HEAVIER_STEPS:g} times more heavily). Give the centre."
         )
     size = float(np.ptp(curve.value, axis=0).max())
     candidates = ([np.asarray(c, dtype=float) for c in starts] if starts
                   else _starting_centres(curve.value))
     found: list[CentreEstimate] = []
     for start in candidates:
-        estimate = _refine_centre(curve, bending, start, size)
+        estimate = _refine_centre(curve, guide, bending, start, size)
         if estimate is not None and not any(
             math.dist(estimate.centre, other.centre) < 1e-3 * size for other in found
         ):
@@ -240,11 +240,44 @@ def relation_start(curve: SmoothedCurve, used: np.ndarray, centre: FloatArray,
     return np.array([line.slope, line.intercept]), reference, sense
 
 
-def _refine_centre(curve: SmoothedCurve, bending: np.ndarray, start: FloatArray,
-                   size: float) -> CentreEstimate | None:
-    """The relation fitted with the centre free, from one start; None if it wanders off."""
+MIN_BENDING = 10
+"""Fewest samples that must bend significantly for a first line through the relation."""
+
+HEAVIER, HEAVIER_STEPS = 8.0, 3
+"""When too few samples bend significantly at the fit's smoothing level, the first line
+is drawn on a smoothing HEAVIER times heavier, up to HEAVIER_STEPS times."""
+
+
+def relation_guide(track: Track, curve: SmoothedCurve) -> tuple[SmoothedCurve, np.ndarray]:
+    """A smoothing on which enough samples bend significantly to start the relation (the
+    curve itself, or a heavier one of the same parameter), and those samples.
+
+    Lightly smoothed, unevenly spaced or noisy samples may each bend insignificantly
+    although together they define the path's bending well; only the start needs
+    individually significant points, the fit itself weighs every sample.
+    """
+    guide = curve
+    kappa, kappa_err = curvature_of(guide)
+    bending = attractive_points(guide, kappa, kappa_err)
+    for _ in range(HEAVIER_STEPS):
+        if bending.sum() >= MIN_BENDING or curve.response is None:
+            break
+        try:
+            guide = smooth_track(track, level=guide.level * HEAVIER,
+                                 parameter=None if track.has_times else curve.parameter)
+        except GeometryError:
+            break
+        kappa, kappa_err = curvature_of(guide)
+        bending = attractive_points(guide, kappa, kappa_err)
+    return guide, bending
+
+
+def _refine_centre(curve: SmoothedCurve, guide: SmoothedCurve, bending: np.ndarray,
+                   start: FloatArray, size: float) -> CentreEstimate | None:
+    """The relation fitted with the centre free, from one start (a first line drawn on
+    ``guide`` through its ``bending`` samples); None if it wanders off."""
     try:
-        law, reference, sense = relation_start(curve, bending, start, timed=False)
+        law, reference, sense = relation_start(guide, bending, start, timed=False)
     except (np.linalg.LinAlgError, ValueError):
         return None
     if not np.all(np.isfinite(law)):

@@ -14,6 +14,7 @@ from differences of the samples).
 from __future__ import annotations
 
 from .._noise import NoiseEstimate, estimate_noise, position_noise
+from .._types import FloatArray
 from ..track import Track
 
 
@@ -38,9 +39,27 @@ def difference_noise(track: Track) -> float:
     >>> round(difference_noise(track), 3)
     0.01
     """
-    return position_noise(track.x, track.y)
+    return position_noise(track.x, track.y, parameter=track.t)
 
 
-def track_noise(track: Track) -> NoiseEstimate:
-    """`difference_noise`, with whether the samples resolve it and whether it is correlated."""
-    return estimate_noise(track.x, track.y)
+def track_noise(track: Track, *, arc_length: FloatArray | None = None,
+                normal: FloatArray | None = None) -> NoiseEstimate:
+    """`difference_noise`, with whether the samples resolve it and whether it is correlated.
+
+    Parameters
+    ----------
+    track : Track
+        The samples; with times, the differences are divided differences in time.
+    arc_length : ndarray, shape (n_points,), optional
+        For a track without times, the arc length (L) at each sample (from a smoothing):
+        the differences are then divided differences in it, which keeps samples spaced
+        unevenly along the path from passing their spacing off as noise.
+    normal : ndarray, shape (n_points, 2), optional
+        With ``arc_length``: unit normals to the path; only the differences' component
+        across the path counts (the arc length, read from the samples, follows their
+        noise along it).
+    """
+    if track.t is not None:
+        return estimate_noise(track.x, track.y, parameter=track.t)
+    return estimate_noise(track.x, track.y, parameter=arc_length,
+                          normal=normal if arc_length is not None else None)

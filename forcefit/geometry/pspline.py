@@ -535,8 +535,9 @@ def smooth_curve(
     data = np.column_stack((x, y))
     weight = np.ones(n_points) if sigma is None else 1.0 / np.asarray(sigma) ** 2
     start, extent = float(parameter[0]), float(parameter[-1] - parameter[0])
-    spacing = max(SAMPLES_PER_INTERVAL * float(np.median(np.diff(parameter))),
-                  extent / MAX_INTERVALS)
+    # Knots SAMPLES_PER_INTERVAL mean spacings apart: the median would put thousands of
+    # knots along samples crowded unevenly (and the GCV's dense algebra grows as their cube).
+    spacing = max(SAMPLES_PER_INTERVAL * extent / max(n_points - 1, 1), extent / MAX_INTERVALS)
     n_intervals = max(int(math.ceil(extent / spacing - 1e-9)), 1)
     spacing = extent / n_intervals
     basis = _basis(parameter, start, spacing, n_intervals)

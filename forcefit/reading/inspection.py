@@ -127,7 +127,7 @@ def inspect_track(track: Track) -> TrackSummary:
         largest = float(steps[is_gap].max()) if n_gaps else math.nan
         rate = 1.0 / float(np.mean(steps[~is_gap]))
     plane = meta.get("plane")
-    noise = estimate_noise(track.x, track.y)
+    noise = estimate_noise(track.x, track.y, parameter=track.t)
     return TrackSummary(
         name=track.name,
         source=str(meta.get("source", "arrays")),
