@@ -95,3 +95,19 @@ def test_errors_are_honest_over_many_seeds(estimator, exponent):
     assert 0.8 < np.std(z) < 1.25, np.std(z)
     assert 0.90 <= np.mean(np.abs(z) < 1.96) <= 0.98 or np.std(z) < 1.1
     assert np.all(np.abs(z) < 4.0)
+
+
+def test_unevenly_spaced_rosette_without_times():
+    # Issue 13, failure mode 4 (the curvature part): 600 points in path order over 4 turns of an
+    # n = -1 rosette at random times (gaps 0.001 to ~7 times the mean), noise 0.2% of the size,
+    # no times: refused as "0 of 600 points bend significantly" (the pilot smoothing against
+    # the sample number took the gaps for kinks). Now an answer within its errors.
+    from forcefit.dynamics.propagate import propagate_reference
+    rng = np.random.default_rng(11)
+    gaps = rng.exponential(1.0, 600) ** 2 + 1e-3
+    t = np.concatenate(([0.0], np.cumsum(gaps)))
+    t *= 4 * 2 * math.pi / t[-1]                   # 4 circular periods of k = 1 at r = 1
+    states = propagate_reference((1.0, 0.0), (0.0, 0.8), t, exponent=-1.0, strength=1.0)
+    xy = states.position + 2e-3 * rng.standard_normal(states.position.shape)
+    fit = fit_curvature(Track(x=xy[:, 0], y=xy[:, 1]))
+    assert abs(fit.exponent + 1.0) < 3.0 * fit.exponent_stderr < 0.1
