@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 
 from forcefit.errors import ForcefitWarning
-from forcefit.reading.inspection import inspect_track, second_difference_noise, turns_about_middle
+from forcefit.geometry.noise import difference_noise
+from forcefit.reading.inspection import inspect_track, turns_about_middle
 from forcefit.reading.loaders import load_track
 from forcefit.track import Track
 
@@ -18,14 +19,29 @@ def _two_turns(drop=()):
     return Track(t=t, x=np.cos(0.4 * np.pi * t), y=0.5 * np.sin(0.4 * np.pi * t), name="ellipse")
 
 
-def test_noise_from_second_differences():
-    # White noise of sd s gives second differences of variance 6 s^2, which a smooth curve
-    # sampled densely hardly changes (common practice).
+def test_noise_from_fourth_differences():
+    # White noise of sd s gives normalised 4th differences of sd s, which a smooth curve
+    # sampled densely hardly changes (Gasser, Sroka & Jennen-Steinmetz 1986, Biometrika 73, 625).
     rng = np.random.default_rng(3)
     s = np.linspace(0.0, 1.0, 20_000)
     x = np.cos(s) + 0.01 * rng.standard_normal(s.size)
     y = np.sin(s) + 0.01 * rng.standard_normal(s.size)
-    assert second_difference_noise(x, y) == pytest.approx(0.01, rel=0.05)
+    summary = inspect_track(Track(t=None, x=x, y=y))
+    assert summary.noise_estimate == pytest.approx(0.01, rel=0.03)
+    assert summary.noise_resolved and not summary.noise_correlated
+
+
+def test_inspect_and_the_fits_agree_on_the_noise():
+    # Issue 13, failure mode 10: one noise estimate for inspect and every fit.
+    from forcefit.estimators.curvature import fit_curvature
+    rng = np.random.default_rng(4)
+    t = np.linspace(0.0, 20.0, 2000)
+    track = Track(t=t, x=np.cos(t) + 2e-3 * rng.standard_normal(t.size),
+                  y=0.6 * np.sin(t) + 2e-3 * rng.standard_normal(t.size))
+    summary = inspect_track(track)
+    assert summary.noise_estimate == difference_noise(track)
+    fit = fit_curvature(track, centre=(0.0, 0.0))
+    assert fit.noise == pytest.approx(summary.noise_estimate, rel=1e-9)
 
 
 def test_timing_gaps_and_turns():

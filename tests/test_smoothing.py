@@ -56,3 +56,41 @@ def test_savitzky_golay_needs_even_spacing_and_known_smoothings_only():
         smooth_track(track, smoothing="savgol")
     with pytest.raises(GeometryError, match="unknown"):
         smooth_track(track, smoothing="lowess")  # type: ignore[arg-type]
+
+
+@pytest.fixture(scope="module")
+def uneven_ellipse():
+    # 600 samples along 4 turns of an ellipse, at random places (gaps 0.001 to ~7 times the mean),
+    # without times, noise 2e-3: issue 13, failure mode 4. Smoothed once for the tests below.
+    rng = np.random.default_rng(2)
+    gaps = rng.exponential(1.0, 600) ** 2 + 1e-3
+    phase = np.concatenate(([0.0], np.cumsum(gaps)))
+    phase *= 8 * np.pi / phase[-1]
+    x, y = np.cos(phase), 0.6 * np.sin(phase)
+    track = Track(x=x + 2e-3 * rng.standard_normal(x.size), y=y + 2e-3 * rng.standard_normal(x.size))
+    return track, x, y, smooth_track(track)
+
+
+def test_arc_length_of_unevenly_spaced_samples(uneven_ellipse):
+    # The arc length is the parameter the shape-only smoothing needs; the sample number is not
+    # one when the samples are spaced unevenly along the path. Its steps must follow the exact
+    # ones to within twice the noise (the chord of exact, densely spaced points is the arc
+    # length: common practice); the sample number as the pilot's parameter left them 6 times
+    # worse.
+    track, x, y, curve = uneven_ellipse
+    exact = chord_length(x, y)
+    found = curve.parameter
+    assert np.all(np.diff(found) > 0)
+    assert found[-1] == pytest.approx(exact[-1], rel=2e-3)
+    assert np.std(np.diff(found) - np.diff(exact)) < 4e-3
+
+
+def test_noise_of_unevenly_spaced_samples_without_times(uneven_ellipse):
+    # Differences of the samples in their order see the uneven spacing as noise (5 times the
+    # truth here); divided differences in the arc length, across the path, see the noise (to
+    # within 20%: the arc length read from the samples follows them a little).
+    from forcefit.estimators._smoothed import settle
+    track, _, _, curve = uneven_ellipse
+    settled = settle(track, "auto", lambda curve, previous: curve, lambda curve: (0.0, 1.0, None),
+                     curve=curve)
+    assert settled.noise.sd == pytest.approx(2e-3, rel=0.2)

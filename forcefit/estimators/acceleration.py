@@ -2,58 +2,61 @@
 
 The smoothed second derivative of the timestamped positions gives the acceleration;
 its component along the radius is a_r = -k r**n for a central power law. A weighted
-non-linear least-squares fit of that model gives n and k directly; the tangential
+least-squares fit of that model at every sample away from the ends gives n and k, with
+errors propagated from the raw samples (the centre's own uncertainty included) and the
+smoothing lightened until n settles (`forcefit.estimators._smoothed`). The transverse
 component, zero for a central force, is checked for drag.
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.optimize import OptimizeResult, least_squares
 
 from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
-from ..errors import NotIdentifiable
-from ..geometry.curves import interior
+from ..errors import GeometryError, NotIdentifiable
+from ..geometry.centre import CentreEstimate, find_centre
+from ..geometry.curves import cross, interior, is_straight
 from ..geometry.path import PathGeometry, describe_path, force_relation
+from ..geometry.pointwise import PointwiseFit, fit_pointwise
+from ..geometry.pspline import SmoothedCurve
 from ..geometry.smoothing import Smoothing
 from ..track import Track
-from ._checks import (
-    angular_momentum,
-    bend_diagnostic,
-    centre_covariance,
-    constancy_diagnostic,
-    leverage_diagnostic,
-    require_orbit,
+from ._checks import angular_momentum, constancy_diagnostic
+from ._smoothed import (
+    Settled,
+    noise_diagnostics,
+    noise_level,
+    require_resolved_excursion,
+    sampling_diagnostic,
+    settle,
 )
 from .result import AccelerationFit, CurvaturePoints, Diagnostic
 
-
-def _radial(path: PathGeometry, centre: tuple[float, float]) -> tuple[FloatArray, FloatArray, FloatArray]:
-    """Distance r, radial acceleration a_r and its standard error about ``centre``, at the
-    samples away from the ends of the track."""
-    keep = interior(path.smoothing)
-    offset = path.position[keep] - np.asarray(centre)
-    radius = np.hypot(offset[:, 0], offset[:, 1])
-    unit = offset / radius[:, None]
-    radial = np.sum(path.acceleration[keep] * unit, axis=1)
-    variance = (unit[:, 0] ** 2 * path.smoothing.second_var[keep, 0]
-                + unit[:, 1] ** 2 * path.smoothing.second_var[keep, 1])
-    return radius, radial, np.sqrt(variance)
+BEND_Z = 4.0
+"""A change of the local exponent across the radial range beyond this many standard errors
+fails the power-law check."""
 
 
-def _solve(
-    radius: FloatArray, radial: FloatArray, sigma: FloatArray, start: FloatArray, scale: float
-) -> OptimizeResult:
-    """Least squares of a_r = -F(scale) (r / scale)**n for (n, log F(scale))."""
+@dataclass(frozen=True)
+class _Level:
+    """The radial-acceleration law fitted at one smoothing level."""
 
-    def residuals(theta: FloatArray) -> FloatArray:
-        exponent, log_force = theta
-        return (radial + np.exp(log_force) * (radius / scale) ** exponent) / sigma
+    curve: SmoothedCurve
+    estimate: CentreEstimate | None
+    law: PointwiseFit
+    reference: float
 
-    return least_squares(residuals, start, method="lm")
+    @property
+    def centre(self) -> tuple[float, float]:
+        return float(self.law.parameters[2]), float(self.law.parameters[3])
+
+    @property
+    def centre_influence(self) -> FloatArray | None:
+        return None if self.estimate is None else self.estimate.influence
 
 
 def fit_acceleration(
@@ -74,7 +77,8 @@ def fit_acceleration(
     smoothing : {"auto", "spline", "savgol"}
         How to smooth before differentiating twice.
     path : PathGeometry, optional
-        The track's geometry, if already described.
+        The track's geometry, if already described: its smoothing and centre are used as
+        they are (no search of the smoothing level).
 
     Returns
     -------
@@ -98,77 +102,186 @@ def fit_acceleration(
             f"{track.label}: the acceleration estimator needs timestamps; use the "
             "curvature or shape estimator for a shape-only path."
         )
-    path = path if path is not None else describe_path(track, centre=centre, smoothing=smoothing)
-    require_orbit(path)
-    radius, radial, sigma = _radial(path, path.centre)
+    if path is not None:
+        centre = path.centre if path.centre_estimate is None else None
+    given = None if centre is None else np.asarray(centre, dtype=float)
+
+    def estimate(curve: SmoothedCurve, previous: _Level | None) -> _Level:
+        return _at_level(track, curve, given, previous)
+
+    settled = settle(track, smoothing, estimate, _exponent,
+                     curve=None if path is None else path.smoothing)
+    return _result(track, settled.result, settled)
+
+
+def _exponent(level: _Level) -> tuple[float, float, FloatArray]:
+    return float(level.law.parameters[0]), float(level.law.stderr[0]), level.law.influence[0]
+
+
+def _at_level(track: Track, curve: SmoothedCurve, given: FloatArray | None,
+              previous: _Level | None) -> _Level:
+    if given is not None:
+        if previous is None and is_straight(track.x, track.y, curve.noise):
+            raise NotIdentifiable(
+                f"{track.label}: the path does not bend significantly; a straight path shows no "
+                "force, so no exponent can be read from it. Check that the body moved under the "
+                "force (and not only the camera).")
+        estimate, centre = None, given
+    else:
+        starts = None if previous is None else [previous.centre]
+        estimate = find_centre(track, curve=curve, starts=starts)
+        centre = np.asarray(estimate.centre)
+    keep = interior(curve)
+    offset = curve.value[keep] - centre
+    radius = np.hypot(offset[:, 0], offset[:, 1])
+    if previous is None:
+        unit = offset / np.maximum(radius, 1e-300)[:, None]
+        variance = (unit[:, 0] ** 2 * curve.value_var[keep, 0]
+                    + unit[:, 1] ** 2 * curve.value_var[keep, 1])
+        require_resolved_excursion(track, radius, np.sqrt(variance))
+    reference = float(np.exp(np.mean(np.log(radius))))     # where k r**n is best determined
+    influence = None if estimate is None else estimate.influence
+    law = _law(track, curve, centre, influence, reference, previous)
+    return _Level(curve, estimate, law, reference)
+
+
+def _start(track: Track, curve: SmoothedCurve, centre: FloatArray, reference: float) -> FloatArray:
+    """(n, ln F(r_ref)) from a straight line through ln(-a_r) against ln r where a_r
+    points significantly inwards."""
+    keep = interior(curve)
+    offset = curve.value[keep] - centre
+    radius = np.hypot(offset[:, 0], offset[:, 1])
+    unit = offset / radius[:, None]
+    radial = np.sum(curve.second[keep] * unit, axis=1)
+    sigma = np.sqrt(unit[:, 0] ** 2 * curve.second_var[keep, 0] + unit[:, 1] ** 2 * curve.second_var[keep, 1])
     inward = radial < -2.0 * sigma
     if inward.sum() < 10:
         raise NotIdentifiable(f"{track.label}: the radial acceleration is not significantly "
                               "inward anywhere; no attractive central force is seen.")
-    pilot = fit_line(np.log(radius[inward]), np.log(-radial[inward]), sigma[inward] / -radial[inward])
-    scale = float(np.exp(np.mean(np.log(radius))))     # where k r**n is best determined
-    start = np.array([pilot.slope, pilot.intercept + pilot.slope * math.log(scale)])
-    result = _solve(radius, radial, sigma, start, scale)
-
-    def parameters(about: tuple[float, float]) -> FloatArray:
-        r, a, s = _radial(path, about)
-        return _solve(r, a, s, result.x, scale).x
-
-    reduced = 2.0 * float(result.cost) / max(radius.size - 2, 1)
-    tau = autocorrelation_time(result.fun)
-    covariance = np.linalg.inv(result.jac.T @ result.jac) * reduced * tau
-    covariance = covariance + centre_covariance(parameters, path)
-    exponent, log_force = result.x
-    strength = math.exp(log_force) * scale ** (-exponent)
-    # k = F(scale) scale**-n: propagate the covariance of (n, log F(scale)).
-    gradient = np.array([-math.log(scale) * strength, strength])
-    strength_se = math.sqrt(float(gradient @ covariance @ gradient))
-    h, h_se, drift = angular_momentum(path)
-    ratio = strength / h**2
-    ratio_se = abs(ratio) * math.hypot(strength_se / strength, 2 * h_se / h)
-    log_a = np.log(np.maximum(-radial[inward], 1e-300))
-    diagnostics = {
-        "power law": bend_diagnostic(np.log(radius[inward]), log_a, sigma[inward] / -radial[inward]),
-        "radial range": leverage_diagnostic(radius),
-        "angular momentum": constancy_diagnostic(drift),
-        "transverse acceleration": _transverse(path),
-        "smoothing": Diagnostic(None, f"{path.smoothing.method}: each point averages about "
-                                      f"{path.smoothing.span:.3g} {track.time_unit}."),
-    }
-    with np.errstate(divide="ignore", invalid="ignore"):
-        relation = force_relation(path, path.centre)
-    return AccelerationFit(
-        exponent=float(exponent), exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
-        strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
-        centre=path.centre, centre_stderr=path.centre_stderr, method="acceleration",
-        reference_radius=scale, force_at_reference=math.exp(log_force),
-        force_at_reference_stderr=math.exp(log_force) * math.sqrt(covariance[1, 1]),
-        n_points=int(radius.size), chi2=2.0 * float(result.cost), reduced_chi2=reduced,
-        parameter_names=("exponent", "log_force_at_scale"), covariance=covariance,
-        residuals=result.fun, length_unit=track.length_unit, time_unit=track.time_unit,
-        diagnostics=diagnostics,
-        relation=CurvaturePoints(log_radius=relation[0], log_force=relation[1], per_h2=False),
-        angular_momentum=h, angular_momentum_stderr=h_se, correlation_time=tau, track_name=track.name,
-    )
+    line = fit_line(np.log(radius[inward] / reference), np.log(-radial[inward]),
+                    sigma[inward] / -radial[inward])
+    return np.array([line.slope, line.intercept])
 
 
-def _transverse(path: PathGeometry) -> Diagnostic:
-    """Mean transverse acceleration (across the radius) against its error: a central
-    force has none, so a significant one means torque (drag, or the wrong centre)."""
-    offset = path.position - np.asarray(path.centre)
-    unit = offset / np.hypot(offset[:, 0], offset[:, 1])[:, None]
-    transverse = unit[:, 0] * path.acceleration[:, 1] - unit[:, 1] * path.acceleration[:, 0]
-    sense = np.sign(np.nanmean(path.angular_momentum))
-    variance = (unit[:, 1] ** 2 * path.smoothing.second_var[:, 0]
-                + unit[:, 0] ** 2 * path.smoothing.second_var[:, 1])
-    weight = 1.0 / variance
-    mean = sense * float(np.sum(weight * transverse) / np.sum(weight))
-    stderr = math.sqrt(autocorrelation_time(transverse - mean) / float(np.sum(weight)))
-    typical = float(np.median(np.hypot(path.acceleration[:, 0], path.acceleration[:, 1])))
+def _law(track: Track, curve: SmoothedCurve, centre: FloatArray, influence: FloatArray | None,
+         reference: float, previous: _Level | None, *, bend: bool = False) -> PointwiseFit:
+    """(n, ln F(r_ref)) [, b] of a_r = -F(r_ref) (r / r_ref)**(n + b ln(r / r_ref)) about
+    ``centre`` (held, with its influence on the samples)."""
+    start = (previous.law.parameters[:2] if previous is not None and not bend
+             else _start(track, curve, centre, reference))
+
+    def residual(parameters: FloatArray, value: FloatArray, _first: FloatArray,
+                 second: FloatArray) -> FloatArray:
+        exponent, log_force = parameters[0], parameters[1]
+        slope = parameters[2] if bend else 0.0
+        cx, cy = parameters[-2], parameters[-1]
+        offset = value - np.array([cx, cy])
+        radius = np.hypot(offset[:, 0], offset[:, 1])
+        log_r = np.log(radius / reference)
+        radial = np.sum(second * offset, axis=1) / radius
+        return radial + np.exp(log_force + exponent * log_r + slope * log_r**2)
+
+    first_guess = np.append(start, 0.0) if bend else np.asarray(start)
+    try:
+        return fit_pointwise(curve, np.flatnonzero(interior(curve)), residual, first_guess,
+                             held=centre, held_influence=influence)
+    except GeometryError:
+        raise NotIdentifiable(
+            f"{track.label}: the radial acceleration does not determine the exponent about "
+            f"({centre[0]:.6g}, {centre[1]:.6g}); check the centre.") from None
+
+
+def _power_law(track: Track, level: _Level) -> Diagnostic:
+    """Does the local exponent change across the radial range? b of a_r = -F(r_ref)
+    (r/r_ref)**(n + b ln(r/r_ref)) against its propagated error."""
+    try:
+        law = _law(track, level.curve, np.asarray(level.centre), level.centre_influence,
+                   level.reference, None, bend=True)
+    except NotIdentifiable:
+        return Diagnostic(None, "not checked (the law with a varying exponent does not fit).")
+    offset = level.curve.value[law.used] - np.asarray(level.centre)
+    span = float(np.ptp(np.log(np.hypot(offset[:, 0], offset[:, 1]))))
+    slope, stderr = float(law.parameters[2]), float(law.stderr[2])
+    z = slope / stderr if stderr > 0 else 0.0
+    text = (f"the local exponent changes by {2.0 * slope * span:+.3g} across the radial range "
+            f"({abs(z):.1f} standard errors)")
+    if abs(z) > BEND_Z:
+        return Diagnostic(False, text + ": the force is not a single power law.")
+    return Diagnostic(True, text + ": consistent with a power law.")
+
+
+def _transverse(track: Track, level: _Level) -> Diagnostic:
+    """Mean transverse acceleration (across the radius, signed along the motion) against its
+    propagated error: a central force has none, so a significant one means torque (drag, or
+    the wrong centre)."""
+    curve = level.curve
+    used = np.flatnonzero(interior(curve))
+    offset = curve.value[used] - np.asarray(level.centre)
+    sense = float(np.sign(np.sum(cross(offset, curve.first[used])))) or 1.0
+
+    def residual(parameters: FloatArray, value: FloatArray, _first: FloatArray,
+                 second: FloatArray) -> FloatArray:
+        mean, cx, cy = parameters
+        offset = value - np.array([cx, cy])
+        return sense * cross(offset, second) / np.hypot(offset[:, 0], offset[:, 1]) - mean
+
+    try:
+        fit = fit_pointwise(curve, used, residual, np.zeros(1), held=np.asarray(level.centre),
+                            held_influence=level.centre_influence, rounds=1)
+    except GeometryError:
+        return Diagnostic(None, "not checked (the transverse acceleration could not be averaged).")
+    mean, stderr = float(fit.parameters[0]), float(fit.stderr[0])
+    typical = float(np.median(np.hypot(curve.second[used, 0], curve.second[used, 1])))
     text = (f"mean acceleration across the radius {mean:.3g} ± {stderr:.2g} "
-            f"{path.track.length_unit} {path.track.time_unit}^-2 ({abs(mean) / typical:.2%} of the "
+            f"{track.length_unit} {track.time_unit}^-2 ({abs(mean) / typical:.2%} of the "
             "typical acceleration)")
     if abs(mean) > 3.0 * stderr and abs(mean) > 0.005 * typical:
         sense_text = "against" if mean < 0 else "along"
         return Diagnostic(False, text + f": a torque {sense_text} the motion (drag?) acts too.")
     return Diagnostic(True, text + ".")
+
+
+def _result(track: Track, level: _Level, settled: Settled[_Level]) -> AccelerationFit:
+    curve, law = level.curve, level.law
+    estimate = level.estimate
+    stderr = (0.0, 0.0) if estimate is None else estimate.stderr
+    path = replace(describe_path(track, centre=level.centre, curve=curve), centre_stderr=stderr,
+                   centre_estimate=estimate)
+    covariance = law.covariance[:2, :2]
+    exponent, log_force = float(law.parameters[0]), float(law.parameters[1])
+    scale = level.reference
+    strength = math.exp(log_force) * scale ** (-exponent)
+    # k = F(scale) scale**-n: propagate the covariance of (n, ln F(scale)).
+    gradient = np.array([-math.log(scale) * strength, strength])
+    strength_se = math.sqrt(max(float(gradient @ covariance @ gradient), 0.0))
+    h, h_se, drift = angular_momentum(path)
+    ratio = strength / h**2
+    ratio_se = abs(ratio) * math.hypot(strength_se / strength, 2 * h_se / h)
+    offset = curve.value[law.used] - np.asarray(level.centre)
+    radius = np.hypot(offset[:, 0], offset[:, 1])
+    diagnostics = {
+        "power law": _power_law(track, level),
+        "radial range": Diagnostic(None, f"r spans a factor {radius.max() / radius.min():.3g}."),
+        "angular momentum": constancy_diagnostic(drift),
+        "transverse acceleration": _transverse(track, level),
+        "smoothing": settled.diagnostic(track.time_unit),
+        "sampling": sampling_diagnostic(curve),
+        **noise_diagnostics(track, settled),
+    }
+    with np.errstate(divide="ignore", invalid="ignore"):
+        relation = force_relation(path, path.centre)
+    return AccelerationFit(
+        exponent=exponent, exponent_stderr=math.sqrt(covariance[0, 0]), strength=strength,
+        strength_stderr=strength_se, strength_per_h2=ratio, strength_per_h2_stderr=ratio_se,
+        centre=level.centre, centre_stderr=stderr, method="acceleration",
+        reference_radius=scale, force_at_reference=math.exp(log_force),
+        force_at_reference_stderr=math.exp(log_force) * math.sqrt(covariance[1, 1]),
+        n_points=int(law.used.size), chi2=law.chi2, reduced_chi2=law.reduced_chi2,
+        parameter_names=("exponent", "log_force_at_scale"), covariance=covariance,
+        residuals=law.residuals, length_unit=track.length_unit, time_unit=track.time_unit,
+        diagnostics=diagnostics,
+        relation=CurvaturePoints(log_radius=relation[0], log_force=relation[1], per_h2=False),
+        angular_momentum=h, angular_momentum_stderr=h_se,
+        correlation_time=autocorrelation_time(law.residuals), noise=noise_level(settled),
+        track_name=track.name,
+    )

@@ -282,9 +282,13 @@ class CurvatureFit(LawFit):
     angular_momentum, angular_momentum_stderr : float
         Mean specific angular momentum h (L**2/T) and its error; nan without timestamps.
     correlation_time : float
-        Integrated autocorrelation time of the regression's residuals, in points.
+        Integrated autocorrelation time of the relation's residuals, in samples (the errors
+        do not rest on it: they are propagated from the samples).
     smoothing_level, smoothing_dof : float
         The smoothing level used and its effective degrees of freedom per coordinate.
+    noise : float
+        Position noise per coordinate the errors assume (L): the median sigma given, or the
+        noise read from the samples.
     """
 
     angular_momentum: float
@@ -292,12 +296,16 @@ class CurvatureFit(LawFit):
     correlation_time: float
     smoothing_level: float
     smoothing_dof: float
+    noise: float = NAN
+
+    def _extra_rows(self) -> list[Row]:
+        return [Row("noise", measurement(self.noise), self.length_unit, brief=False)]
 
     def _details(self) -> dict[str, Any]:
         return {"angular_momentum": self.angular_momentum,
                 "angular_momentum_stderr": self.angular_momentum_stderr,
                 "correlation_time": self.correlation_time, "smoothing_level": self.smoothing_level,
-                "smoothing_dof": self.smoothing_dof}
+                "smoothing_dof": self.smoothing_dof, "noise": self.noise}
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -345,17 +353,25 @@ class AccelerationFit(LawFit):
     angular_momentum, angular_momentum_stderr : float
         Mean specific angular momentum h (L**2/T) and its error.
     correlation_time : float
-        Integrated autocorrelation time of the residuals, in points (it widens the errors).
+        Integrated autocorrelation time of the residuals, in samples (the errors do not rest
+        on it: they are propagated from the samples).
+    noise : float
+        Position noise per coordinate the errors assume (L): the median sigma given, or the
+        noise read from the samples.
     """
 
     angular_momentum: float
     angular_momentum_stderr: float
     correlation_time: float
+    noise: float = NAN
+
+    def _extra_rows(self) -> list[Row]:
+        return [Row("noise", measurement(self.noise), self.length_unit, brief=False)]
 
     def _details(self) -> dict[str, Any]:
         return {"angular_momentum": self.angular_momentum,
                 "angular_momentum_stderr": self.angular_momentum_stderr,
-                "correlation_time": self.correlation_time}
+                "correlation_time": self.correlation_time, "noise": self.noise}
 
 
 @dataclass(frozen=True, kw_only=True)

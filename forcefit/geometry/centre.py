@@ -2,32 +2,40 @@
 
 With timestamps, the acceleration of a body in a central field points at the centre
 at every sample, so the centre is where the acceleration lines meet (weighted least
-squares). Without timestamps, the centre is the point about which the force-curvature
-relation is most nearly a straight line in log-log (a profile over the centre). A
-closed ellipse without timestamps has more than one such point (its centre, n = 1,
+squares). Without timestamps, the centre is the point about which the path's curvature
+is that of a power-law orbit: the force-curvature relation fitted with the centre free.
+A closed ellipse without timestamps has more than one such point (its centre, n = 1,
 and its foci, n = -2: Bertrand's theorem), so every consistent centre is returned.
+
+The centre's covariance comes from how it moves with each raw sample (`PointwiseFit`):
+neighbouring smoothed samples share their data, so the scatter of the residuals would
+not tell it.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.optimize import least_squares
 
-from .._regression import autocorrelation_time
+from .._regression import fit_line
 from .._types import FloatArray
-from ..errors import NotIdentifiable
+from ..errors import GeometryError, NotIdentifiable
 from ..track import Track
 from .curves import (
     attractive_points,
+    cross,
     curvature_of,
     curvature_relation,
     interior,
     is_straight,
     polar_about,
+    relation_residual,
+    turning_sense,
 )
+from .pointwise import PointwiseFit, fit_pointwise
 from .pspline import SmoothedCurve
 from .smoothing import smooth_track
 
@@ -44,16 +52,46 @@ AMBIGUITY_FACTOR = 1.5
 
 @dataclass(frozen=True)
 class CentreEstimate:
-    """A force centre (L) with its standard error and how it was found."""
+    """A force centre (L) with its standard error and how it was found.
+
+    Attributes
+    ----------
+    centre, stderr : (float, float)
+        The centre and its standard errors (L).
+    method : str
+        ``"acceleration lines"`` (timestamps) or ``"curvature relation"`` (shape only).
+    reduced_chi2 : float
+        Of the fit that placed it (ranks the alternatives).
+    alternatives : tuple of CentreEstimate
+        Other centres the shape supports as well (shape-only tracks).
+    covariance : ndarray, shape (2, 2), optional
+        Covariance of the centre's coordinates.
+    influence : ndarray, shape (2, n_points, 2), optional
+        d centre / d sample (x and y) at every sample: how the centre moves with the data,
+        to carry its uncertainty, with its correlations, into what is fitted about it.
+    """
 
     centre: tuple[float, float]
     stderr: tuple[float, float]
     method: str
     reduced_chi2: float
     alternatives: tuple[CentreEstimate, ...] = ()
+    covariance: FloatArray | None = None
+    influence: FloatArray | None = None
 
 
-def find_centre(track: Track, *, curve: SmoothedCurve | None = None) -> CentreEstimate:
+def _estimate(fit: PointwiseFit, rows: slice, method: str) -> CentreEstimate:
+    centre = fit.parameters[rows]
+    covariance = fit.covariance[rows, rows]
+    stderr = np.sqrt(np.maximum(np.diag(covariance), 0.0))
+    return CentreEstimate((float(centre[0]), float(centre[1])), (float(stderr[0]), float(stderr[1])),
+                          method, fit.reduced_chi2, covariance=covariance, influence=fit.influence[rows])
+
+
+def find_centre(
+    track: Track, *, curve: SmoothedCurve | None = None,
+    starts: Sequence[tuple[float, float]] | None = None,
+) -> CentreEstimate:
     """Locate the force centre of a track.
 
     Parameters
@@ -62,6 +100,9 @@ def find_centre(track: Track, *, curve: SmoothedCurve | None = None) -> CentreEs
         Positions (L), with times when known.
     curve : SmoothedCurve, optional
         The track's smoothing, if already computed.
+    starts : sequence of (float, float), optional
+        Centres to start the search from (e.g. those found at another smoothing level);
+        by default they are read from the path.
 
     Returns
     -------
@@ -79,69 +120,54 @@ def find_centre(track: Track, *, curve: SmoothedCurve | None = None) -> CentreEs
     >>> t = np.linspace(0.0, 8.0, 400)           # Hooke orbit about (2, -1)
     >>> track = Track(t=t, x=2 + np.cos(2 * t), y=-1 + 0.5 * np.sin(2 * t))
     >>> estimate = find_centre(track)
-    >>> np.round(estimate.centre, 6) + 0.0, estimate.method
-    (array([ 2., -1.]), 'acceleration lines')
+    >>> [round(c, 6) + 0.0 for c in estimate.centre], estimate.method
+    ([2.0, -1.0], 'acceleration lines')
     """
     curve = curve if curve is not None else smooth_track(track)
     if track.has_times:
-        return _from_accelerations(track, curve)
-    return _from_curvature_relation(track, curve)
+        return _from_accelerations(track, curve, None if not starts else starts[0])
+    return _from_curvature_relation(track, curve, starts)
 
 
-def _from_accelerations(track: Track, curve: SmoothedCurve) -> CentreEstimate:
+def _from_accelerations(
+    track: Track, curve: SmoothedCurve, start: tuple[float, float] | None
+) -> CentreEstimate:
+    """Where the lines of the accelerations meet: least squares of a x (c - p) over the
+    samples, each weighted by its propagated variance."""
     keep = interior(curve)
-    accel, value = curve.second[keep], curve.value[keep]
-    second_var, value_var = curve.second_var[keep], curve.value_var[keep]
+    accel = curve.second[keep]
     magnitude = np.hypot(accel[:, 0], accel[:, 1])
-    accel_sd = np.sqrt(second_var[:, 0] + second_var[:, 1])
+    accel_sd = np.sqrt(curve.second_var[keep, 0] + curve.second_var[keep, 1])
     if np.mean(magnitude > MIN_SIGNAL * accel_sd) < MIN_SIGNIFICANT_FRACTION:
         raise NotIdentifiable(
             f"{track.label}: the acceleration is not significantly different from zero "
             "along the path; it looks straight, so no force (or too weak a force) acts on it. Check "
             "that the body moved under the force (and not only the camera)."
         )
+    first = np.asarray(start, dtype=float) if start is not None else _first_intersection(
+        curve.value[keep], accel, magnitude, accel_sd)
+
+    def residual(centre: FloatArray, value: FloatArray, _first: FloatArray,
+                 second: FloatArray) -> FloatArray:
+        return cross(second, centre - value)
+
+    try:
+        fit = fit_pointwise(curve, np.flatnonzero(keep), residual, first)
+    except GeometryError:
+        raise NotIdentifiable(
+            f"{track.label}: the lines of the accelerations do not meet in one point; no force "
+            "centre can be found. Give the centre.") from None
+    return _estimate(fit, slice(0, 2), "acceleration lines")
+
+
+def _first_intersection(value: FloatArray, accel: FloatArray, magnitude: FloatArray,
+                        accel_sd: FloatArray) -> FloatArray:
+    """A first centre: the point nearest (in the weighted sense) to every acceleration line."""
     normal = np.column_stack((-accel[:, 1], accel[:, 0])) / np.maximum(magnitude, 1e-300)[:, None]
     offset = np.sum(normal * value, axis=1)
-    angle_var = (normal[:, 0] ** 2 * second_var[:, 0]
-                 + normal[:, 1] ** 2 * second_var[:, 1]) / np.maximum(magnitude, 1e-300) ** 2
-    position_var = normal[:, 0] ** 2 * value_var[:, 0] + normal[:, 1] ** 2 * value_var[:, 1]
     weight = magnitude**2 / np.maximum(accel_sd, 1e-300) ** 2
-    centre = _weighted_intersection(normal, offset, weight)
-    for _ in range(4):
-        distance = np.hypot(*(value - centre).T)
-        variance = distance**2 * angle_var + position_var
-        centre = _weighted_intersection(normal, offset, 1.0 / variance)
-    residual = (normal @ centre - offset) / np.sqrt(variance)
-    reduced = float(residual @ residual) / max(residual.size - 2, 1)
-    tau = autocorrelation_time(residual)
-    covariance = np.linalg.inv((normal / variance[:, None]).T @ normal) * reduced * tau
-    stderr = np.sqrt(np.diag(covariance))
-    return CentreEstimate((float(centre[0]), float(centre[1])), (float(stderr[0]), float(stderr[1])),
-                          "acceleration lines", reduced)
-
-
-def _weighted_intersection(normal: FloatArray, offset: FloatArray, weight: FloatArray) -> FloatArray:
-    """The point c minimising sum w (n . c - offset)**2."""
     matrix = (normal * weight[:, None]).T @ normal
     return np.linalg.solve(matrix, (normal * weight[:, None]).T @ offset)
-
-
-def _relation_residuals(
-    curve: SmoothedCurve, kappa: FloatArray, kappa_err: FloatArray, used: np.ndarray,
-    centre: FloatArray,
-) -> FloatArray:
-    """Normalised residuals of the best straight line through the curvature relation."""
-    points = curvature_relation(curve, kappa, kappa_err, centre, used)
-    weight = 1.0 / points.sigma**2
-    x, y = points.log_radius, points.log_force_per_h2
-    sw, sx, sy = weight.sum(), weight @ x, weight @ y
-    sxx, sxy = weight @ (x * x), weight @ (x * y)
-    determinant = sw * sxx - sx * sx
-    if determinant <= 0:
-        return (y - sy / sw) / points.sigma
-    slope = (sw * sxy - sx * sy) / determinant
-    intercept = (sy - slope * sx) / sw
-    return (y - intercept - slope * x) / points.sigma
 
 
 def _starting_centres(points: FloatArray) -> list[FloatArray]:
@@ -158,24 +184,30 @@ def _starting_centres(points: FloatArray) -> list[FloatArray]:
     return starts
 
 
-def _from_curvature_relation(track: Track, curve: SmoothedCurve) -> CentreEstimate:
+def _from_curvature_relation(
+    track: Track, curve: SmoothedCurve, starts: Sequence[tuple[float, float]] | None
+) -> CentreEstimate:
+    """The point about which the path's curvature is that of a power-law orbit: the
+    force-curvature relation fitted with the centre free, from several starts."""
     if is_straight(track.x, track.y, curve.noise):
         raise NotIdentifiable(
             f"{track.label}: the path stays within its noise of a straight line; it looks "
             "straight, so no force can be read from it. Check that the body moved under the force "
             "(and not only the camera)."
         )
-    kappa, kappa_err = curvature_of(curve)
-    used = attractive_points(curve, kappa, kappa_err)
-    if used.sum() < 10:
+    guide, bending = relation_guide(track, curve)
+    if bending.sum() < MIN_BENDING:
         raise NotIdentifiable(
             f"{track.label}: the curvature is too noisy to locate the centre from the shape "
-            f"({int(used.sum())} of {track.n_points} points bend significantly). Give the centre."
+            f"({int(bending.sum())} of {track.n_points} points bend significantly, even smoothed "
+            f"{HEAVIER ** HEAVIER_STEPS:g} times more heavily). Give the centre."
         )
     size = float(np.ptp(curve.value, axis=0).max())
+    candidates = ([np.asarray(c, dtype=float) for c in starts] if starts
+                  else _starting_centres(curve.value))
     found: list[CentreEstimate] = []
-    for start in _starting_centres(curve.value):
-        estimate = _refine_centre(track, curve, kappa, kappa_err, used, start, size)
+    for start in candidates:
+        estimate = _refine_centre(curve, guide, bending, start, size)
         if estimate is not None and not any(
             math.dist(estimate.centre, other.centre) < 1e-3 * size for other in found
         ):
@@ -188,28 +220,82 @@ def _from_curvature_relation(track: Track, curve: SmoothedCurve) -> CentreEstima
     found.sort(key=lambda estimate: estimate.reduced_chi2)
     best = found[0]
     close = tuple(e for e in found[1:] if e.reduced_chi2 <= AMBIGUITY_FACTOR * best.reduced_chi2)
-    return CentreEstimate(best.centre, best.stderr, best.method, best.reduced_chi2, close)
+    return replace(best, alternatives=close)
 
 
-def _refine_centre(
-    track: Track, curve: SmoothedCurve, kappa: FloatArray, kappa_err: FloatArray,
-    used: np.ndarray, start: FloatArray, size: float,
-) -> CentreEstimate | None:
-    def residuals(centre: FloatArray) -> FloatArray:
-        return _relation_residuals(curve, kappa, kappa_err, used, centre)
+def relation_start(curve: SmoothedCurve, used: np.ndarray, centre: FloatArray,
+                   timed: bool) -> tuple[FloatArray, float, float]:
+    """Starting (n, ln f_ref), the reference radius and the turning sense for the
+    force-curvature relation about ``centre``, from a straight line through
+    log(kappa / (r**2 cos(gamma)**3)) against log r at the samples that bend."""
+    sense = turning_sense(curve)
+    kappa, kappa_err = curvature_of(curve)
+    points = curvature_relation(curve, kappa, kappa_err, centre, used)
+    y = points.log_force_per_h2
+    if timed:
+        h = np.abs(cross(curve.value[used] - centre, curve.first[used]))
+        y = y + 2.0 * np.log(np.maximum(h, 1e-300))
+    reference = float(np.exp(np.mean(points.log_radius)))
+    line = fit_line(points.log_radius - math.log(reference), y, points.sigma)
+    return np.array([line.slope, line.intercept]), reference, sense
 
-    result = least_squares(residuals, start, x_scale=size, method="lm")
-    centre = result.x
+
+MIN_BENDING = 10
+"""Fewest samples that must bend significantly for a first line through the relation."""
+
+HEAVIER, HEAVIER_STEPS = 8.0, 3
+"""When too few samples bend significantly at the fit's smoothing level, the first line
+is drawn on a smoothing HEAVIER times heavier, up to HEAVIER_STEPS times."""
+
+
+def relation_guide(track: Track, curve: SmoothedCurve) -> tuple[SmoothedCurve, np.ndarray]:
+    """A smoothing on which enough samples bend significantly to start the relation (the
+    curve itself, or a heavier one of the same parameter), and those samples.
+
+    Lightly smoothed, unevenly spaced or noisy samples may each bend insignificantly
+    although together they define the path's bending well; only the start needs
+    individually significant points, the fit itself weighs every sample.
+    """
+    guide = curve
+    kappa, kappa_err = curvature_of(guide)
+    bending = attractive_points(guide, kappa, kappa_err)
+    for _ in range(HEAVIER_STEPS):
+        if bending.sum() >= MIN_BENDING or curve.response is None:
+            break
+        try:
+            guide = smooth_track(track, level=guide.level * HEAVIER,
+                                 parameter=None if track.has_times else curve.parameter)
+        except GeometryError:
+            break
+        kappa, kappa_err = curvature_of(guide)
+        bending = attractive_points(guide, kappa, kappa_err)
+    return guide, bending
+
+
+def _refine_centre(curve: SmoothedCurve, guide: SmoothedCurve, bending: np.ndarray,
+                   start: FloatArray, size: float) -> CentreEstimate | None:
+    """The relation fitted with the centre free, from one start (a first line drawn on
+    ``guide`` through its ``bending`` samples); None if it wanders off."""
+    try:
+        law, reference, sense = relation_start(guide, bending, start, timed=False)
+    except (np.linalg.LinAlgError, ValueError):
+        return None
+    if not np.all(np.isfinite(law)):
+        return None
+    used = np.flatnonzero(interior(curve))
+
+    def residual(parameters: FloatArray, value: FloatArray, first: FloatArray,
+                 second: FloatArray) -> FloatArray:
+        return relation_residual(parameters, value, first, second, sense=sense,
+                                 reference_radius=reference, timed=False)
+
+    try:
+        fit = fit_pointwise(curve, used, residual, np.concatenate((law, start)))
+    except GeometryError:
+        return None
+    centre = fit.parameters[2:4]
     radius = polar_about(curve, centre).radius
-    if (not result.success or math.dist(centre, start) > 100 * size
+    if (not np.all(np.isfinite(fit.parameters)) or math.dist(centre, start) > 100 * size
             or np.ptp(radius) < 1e-3 * radius.mean()):
         return None
-    reduced = 2.0 * float(result.cost) / max(int(used.sum()) - 4, 1)
-    tau = autocorrelation_time(result.fun)
-    try:
-        covariance = np.linalg.inv(result.jac.T @ result.jac) * reduced * tau
-    except np.linalg.LinAlgError:
-        return None
-    stderr = np.sqrt(np.abs(np.diag(covariance)))
-    return CentreEstimate((float(centre[0]), float(centre[1])), (float(stderr[0]), float(stderr[1])),
-                          "curvature relation", reduced)
+    return _estimate(fit, slice(2, 4), "curvature relation")

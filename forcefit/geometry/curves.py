@@ -128,6 +128,46 @@ def curvature_relation(
     )
 
 
+def cross(first: FloatArray, second: FloatArray) -> FloatArray:
+    """z-component of the cross product of two arrays of plane vectors, shape (m, 2)."""
+    return first[:, 0] * second[:, 1] - first[:, 1] * second[:, 0]
+
+
+def relation_residual(
+    parameters: FloatArray, value: FloatArray, first: FloatArray, second: FloatArray, *,
+    sense: float, reference_radius: float, timed: bool, extra_log_force: FloatArray | float = 0.0,
+) -> FloatArray:
+    """Residual of the force-curvature relation at each sample, in linear form.
+
+    ``parameters`` = (n, ln f_ref, centre x, centre y), with F = f_ref (r / r_ref)**n the
+    force per unit mass (timed) or F / h**2 (shape-only). For a central force the path's
+    normal acceleration is F cos(gamma); divided by the squared speed it is the curvature
+    kappa, and with h = r v cos(gamma): kappa = (F / h**2) r**2 cos(gamma)**3. So
+
+    - timed (derivatives in time): residual = v x a / v - F(r) cos(gamma);
+    - shape-only (in arc length): residual = kappa - (F/h**2)(r) r**2 cos(gamma)**3,
+
+    each signed so that bending towards the centre counts positive; ``extra_log_force`` is
+    added to ln F at each sample (a departure from the power law to test). Being linear in the
+    acceleration, the residual has no bias from noise where the curvature is small (a
+    logarithm would), and every sample can enter, however faintly it bends.
+
+    References
+    ----------
+    I. Newton (1687), Principia, Book I, Prop. VI, Cor. 3-5, and Prop. VII, Cor. 3.
+    """
+    exponent, log_force, cx, cy = parameters
+    offset = value - np.array([cx, cy])
+    radius = np.hypot(offset[:, 0], offset[:, 1])
+    speed = np.hypot(first[:, 0], first[:, 1])
+    cos_gamma = sense * cross(offset, first) / (radius * speed)
+    force = np.exp(log_force + extra_log_force) * (radius / reference_radius) ** exponent
+    bending = sense * cross(first, second)
+    if timed:
+        return bending / speed - force * cos_gamma
+    return bending / speed**3 - force * radius**2 * cos_gamma**3
+
+
 EDGE_SPANS = 2.0
 """Samples within this many smoothing spans of either end are left out of the fits."""
 

@@ -1,7 +1,9 @@
 """The noise level of a track's positions, read from the samples themselves.
 
 One estimate for every part of forcefit that needs the noise before (or without) a fit:
-the orbit fit's weights and start, `inspect`'s summary, the smoothing's first guess.
+the orbit fit's weights and start, `inspect`'s summary, the smoothing's error bars. The
+arithmetic lives on the lowest floor (`forcefit._noise`) so that the reading floor's
+`inspect` uses the very same numbers.
 
 References
 ----------
@@ -11,15 +13,9 @@ from differences of the samples).
 
 from __future__ import annotations
 
-import math
-
-import numpy as np
-from scipy.special import comb
-
+from .._noise import NoiseEstimate, estimate_noise, position_noise
+from .._types import FloatArray
 from ..track import Track
-
-DIFFERENCE_ORDER = 4
-"""Order of the differences that estimate the noise."""
 
 
 def difference_noise(track: Track) -> float:
@@ -35,6 +31,7 @@ def difference_noise(track: Track) -> float:
 
     Examples
     --------
+    >>> import numpy as np
     >>> rng = np.random.default_rng(1)
     >>> t = np.linspace(0.0, 20.0, 4001)
     >>> track = Track(t=t, x=np.cos(t) + 0.01 * rng.standard_normal(t.size),
@@ -42,11 +39,27 @@ def difference_noise(track: Track) -> float:
     >>> round(difference_noise(track), 3)
     0.01
     """
-    k = DIFFERENCE_ORDER
-    if track.n_points <= k + 2:
-        return 0.0
-    weights = np.array([(-1) ** j * comb(k, j) for j in range(k + 1)])
-    norm = math.sqrt(float(comb(2 * k, k)))
-    spreads = [1.4826 * float(np.median(np.abs(np.convolve(np.asarray(values), weights, mode="valid"))))
-               / norm for values in (track.x, track.y)]
-    return math.sqrt(0.5 * (spreads[0] ** 2 + spreads[1] ** 2))
+    return position_noise(track.x, track.y, parameter=track.t)
+
+
+def track_noise(track: Track, *, arc_length: FloatArray | None = None,
+                normal: FloatArray | None = None) -> NoiseEstimate:
+    """`difference_noise`, with whether the samples resolve it and whether it is correlated.
+
+    Parameters
+    ----------
+    track : Track
+        The samples; with times, the differences are divided differences in time.
+    arc_length : ndarray, shape (n_points,), optional
+        For a track without times, the arc length (L) at each sample (from a smoothing):
+        the differences are then divided differences in it, which keeps samples spaced
+        unevenly along the path from passing their spacing off as noise.
+    normal : ndarray, shape (n_points, 2), optional
+        With ``arc_length``: unit normals to the path; only the differences' component
+        across the path counts (the arc length, read from the samples, follows their
+        noise along it).
+    """
+    if track.t is not None:
+        return estimate_noise(track.x, track.y, parameter=track.t)
+    return estimate_noise(track.x, track.y, parameter=arc_length,
+                          normal=normal if arc_length is not None else None)

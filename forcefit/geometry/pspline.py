@@ -27,9 +27,10 @@ matrix and its application to short circuit study, Proc. PICA Conference, 63-69.
 
 from __future__ import annotations
 
+import copy
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import lru_cache
 
 import numpy as np
@@ -92,6 +93,13 @@ class SmoothedCurve:
         each smoothed value averages over, in parameter units.
     method : str
         How the level was chosen.
+    covariance : ndarray, shape (n_points, 3, 3), optional
+        Covariance of (value, first, second) of one coordinate at each sample (the same
+        for x and y); see `pointwise_covariance`.
+    response : LinearResponse, optional
+        How the smoothed values respond to the data, for propagating errors exactly.
+    sigma_given : bool
+        True when the noise came with the data (sigma), False when it was estimated.
     """
 
     parameter: FloatArray
@@ -108,6 +116,140 @@ class SmoothedCurve:
     dof: float
     span: float
     method: str
+    covariance: FloatArray | None = None
+    response: LinearResponse | None = None
+    sigma_given: bool = False
+
+    def with_noise(self, noise: float) -> SmoothedCurve:
+        """The same smoothing with its error bars for a noise of ``noise`` (L) per
+        coordinate, instead of the one estimated from its residuals.
+
+        Only for a curve whose noise was estimated (no sigma with the data).
+        """
+        if self.sigma_given:
+            raise GeometryError("the noise came with the data (sigma); it is not replaced.")
+        old = float(np.mean(self.noise))
+        factor = (noise / old) ** 2 if old > 0 else 1.0
+        return replace(
+            self, value_var=self.value_var * factor, first_var=self.first_var * factor,
+            second_var=self.second_var * factor, first_second_cov=self.first_second_cov * factor,
+            covariance=None if self.covariance is None else self.covariance * factor,
+            response=None if self.response is None else self.response.scaled(factor),
+            noise=np.full_like(self.noise, noise))
+
+    @property
+    def pointwise_covariance(self) -> FloatArray:
+        """Covariance of (value, first, second) of one coordinate at each sample, shape
+        (n_points, 3, 3), in the units of the parameter's derivatives (same for x and y)."""
+        if self.covariance is not None:
+            return self.covariance
+        out = np.zeros((self.parameter.size, 3, 3))
+        out[:, 0, 0], out[:, 1, 1] = self.value_var[:, 0], self.first_var[:, 0]
+        out[:, 2, 2] = self.second_var[:, 0]
+        out[:, 1, 2] = out[:, 2, 1] = self.first_second_cov[:, 0]
+        return out
+
+
+class LinearResponse:
+    """How a linear smoother's output responds to its data, for propagating errors exactly.
+
+    A quantity Q computed from the smoothed values, first and second derivatives at the
+    samples has, to first order, dQ = sum_i g_i . d(smoothed_i); the smoother being
+    linear, dQ = sum_j u_j . d(data_j) with u = `influence`(g). The variance of Q is then
+    sum_j var_j |u_j|**2 for independent noise of variance var_j per coordinate
+    (correlated noise: `covariance`). Subclasses implement `_adjoint`.
+
+    Attributes
+    ----------
+    noise_var : ndarray, shape (n_points,)
+        Noise variance per coordinate at each sample (L**2).
+    """
+
+    def __init__(self, noise_var: FloatArray) -> None:
+        self.noise_var = np.asarray(noise_var, dtype=float)
+
+    def _adjoint(self, gradient: FloatArray) -> FloatArray:
+        raise NotImplementedError
+
+    def scaled(self, factor: float) -> LinearResponse:
+        """The same response for a noise variance ``factor`` times larger."""
+        out = copy.copy(self)
+        out.noise_var = self.noise_var * factor
+        return out
+
+    def influence(self, gradient: FloatArray) -> FloatArray:
+        """d Q / d data for quantities with the given gradients.
+
+        Parameters
+        ----------
+        gradient : ndarray, shape (n_quantities, n_points, 3, 2)
+            dQ / d(value, first, second) of (x, y) at each sample (zero where unused).
+
+        Returns
+        -------
+        ndarray, shape (n_quantities, n_points, 2)
+        """
+        return self._adjoint(np.asarray(gradient, dtype=float))
+
+    def covariance(self, influence: FloatArray, correlation: FloatArray | None = None) -> FloatArray:
+        """Covariance of quantities with data influences ``influence`` (n_q, n_points, 2).
+
+        ``correlation`` (lags 0, 1, ...) is the noise's autocorrelation from one sample to
+        the next along the track; None for independent noise.
+        """
+        scaled = influence * np.sqrt(self.noise_var)[None, :, None]
+        out = np.einsum("aic,bic->ab", scaled, scaled)
+        if correlation is not None:
+            for lag in range(1, correlation.size):
+                if correlation[lag] == 0.0:
+                    continue
+                cross = np.einsum("aic,bic->ab", scaled[:, :-lag], scaled[:, lag:])
+                out += correlation[lag] * (cross + cross.T)
+        return out
+
+
+class _SplineResponse(LinearResponse):
+    """The penalised spline's response: influence = W B M^-1 sum_d B_d^T g_d."""
+
+    def __init__(self, basis: _Basis, upper: FloatArray, weight: FloatArray, noise_var: FloatArray):
+        super().__init__(noise_var)
+        self._upper, self._weight = upper, weight
+        n_points = basis.first_index.size
+        rows = np.repeat(np.arange(n_points), DEGREE + 1)
+        columns = (basis.first_index[:, None] + np.arange(DEGREE + 1)).ravel()
+        shape = (n_points, basis.n_basis)
+        self._design = [sparse.csr_array((basis.weights[order].ravel(), (rows, columns)), shape=shape)
+                        for order in range(3)]
+
+    def _adjoint(self, gradient: FloatArray) -> FloatArray:
+        n_quantities, n_points = gradient.shape[0], gradient.shape[1]
+        columns = gradient.transpose(1, 2, 0, 3).reshape(n_points, 3, 2 * n_quantities)
+        right = sum(self._design[order].T @ columns[:, order] for order in range(3))
+        solution = linalg.cho_solve_banded((self._upper, False), right)
+        out = self._weight[:, None] * (self._design[0] @ solution)
+        return out.reshape(n_points, n_quantities, 2).transpose(1, 0, 2)
+
+
+class FilterResponse(LinearResponse):
+    """The response of a fixed convolution filter (Savitzky-Golay): the smoothed derivative
+    of order d at sample i is sum_k coefficients[d][k] data[i + k - half] away from the ends.
+
+    Exact for quantities that use samples at least half a window from either end.
+    """
+
+    def __init__(self, coefficients: tuple[FloatArray, FloatArray, FloatArray], noise_var: FloatArray):
+        super().__init__(noise_var)
+        self._coefficients = coefficients
+
+    def _adjoint(self, gradient: FloatArray) -> FloatArray:
+        out = np.zeros((gradient.shape[0], gradient.shape[1], 2))
+        for order, taps in enumerate(self._coefficients):
+            # sum_i g[i] c[j - i + half] for every j: a convolution with the taps.
+            for quantity in range(gradient.shape[0]):
+                for axis in range(2):
+                    out[quantity, :, axis] += np.convolve(gradient[quantity, :, order, axis],
+                                                          taps, mode="same")
+        return out
 
 
 @lru_cache(maxsize=1)
@@ -393,8 +535,9 @@ def smooth_curve(
     data = np.column_stack((x, y))
     weight = np.ones(n_points) if sigma is None else 1.0 / np.asarray(sigma) ** 2
     start, extent = float(parameter[0]), float(parameter[-1] - parameter[0])
-    spacing = max(SAMPLES_PER_INTERVAL * float(np.median(np.diff(parameter))),
-                  extent / MAX_INTERVALS)
+    # Knots SAMPLES_PER_INTERVAL mean spacings apart: the median would put thousands of
+    # knots along samples crowded unevenly (and the GCV's dense algebra grows as their cube).
+    spacing = max(SAMPLES_PER_INTERVAL * extent / max(n_points - 1, 1), extent / MAX_INTERVALS)
     n_intervals = max(int(math.ceil(extent / spacing - 1e-9)), 1)
     spacing = extent / n_intervals
     basis = _basis(parameter, start, spacing, n_intervals)
@@ -429,8 +572,11 @@ def smooth_curve(
         noise = np.full(n_points, math.sqrt(noise_var))
     else:
         noise_var, noise = 1.0, np.asarray(sigma, dtype=float)
-    pairs = ((0, 0), (1, 1), (2, 2), (1, 2))
+    pairs = ((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))
     variance = {pair: noise_var * values for pair, values in _pointwise(basis, inverse, pairs).items()}
+    covariance = np.empty((n_points, 3, 3))
+    for a, b in pairs:
+        covariance[:, a, b] = covariance[:, b, a] = variance[a, b]
     return SmoothedCurve(
         parameter=parameter,
         value=value,
@@ -446,4 +592,7 @@ def smooth_curve(
         dof=dof,
         span=extent / max(dof, 1.0),
         method=method,
+        covariance=covariance,
+        response=_SplineResponse(basis, upper, weight, noise_var / weight),
+        sigma_given=sigma is not None,
     )

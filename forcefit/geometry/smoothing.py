@@ -11,7 +11,7 @@ from scipy.signal import savgol_coeffs, savgol_filter
 from .._types import FloatArray
 from ..errors import GeometryError
 from ..track import Track
-from .pspline import PenaltyWeight, SmoothedCurve, smooth_curve
+from .pspline import FilterResponse, PenaltyWeight, SmoothedCurve, smooth_curve
 
 Smoothing = Literal["auto", "spline", "savgol"]
 """Ways to smooth a track: penalised splines ("auto", "spline") or Savitzky-Golay."""
@@ -24,18 +24,39 @@ def chord_length(x: FloatArray, y: FloatArray) -> FloatArray:
     return np.concatenate(([0.0], np.cumsum(np.maximum(steps, floor))))
 
 
-def _arc_length(track: Track, level: float | None) -> FloatArray:
-    """Arc length along a pilot smoothing of the samples against their index.
+ARC_ROUNDS = 2
+"""Pilot smoothings against the arc length found by the one before."""
 
-    The chord length of the raw points is no parameter for densely sampled noisy data:
-    when the noise is comparable to the spacing it is mostly noise. A pilot smoothing
-    against the sample number (the samples are in order along the path) gives a path
-    whose chord length is the arc length.
+
+def arc_length(track: Track) -> FloatArray:
+    """Arc length (L) at each sample, read from pilot smoothings of the samples.
+
+    The chord length of the raw points is a poor parameter for densely sampled noisy data
+    (when the noise is comparable to the spacing it is mostly noise), the sample number a
+    poor one for samples spaced unevenly along the path (it distorts the curve into
+    kinks). So two chains of pilot smoothings start from each, every pilot smoothing
+    against the arc length the one before found (each choosing its own level by GCV),
+    and the chain whose last pilot lies closer to the samples wins. The result depends on
+    no smoothing level of the final fit, so a track keeps one parameter however heavily
+    it is later smoothed.
     """
     index = np.arange(track.n_points, dtype=float)
-    pilot = _pilot(index, track, level)
-    arc = chord_length(pilot.value[:, 0], pilot.value[:, 1])
-    return np.interp(index, pilot.parameter, arc)
+    chains = [_arc_chain(track, start) for start in (index, chord_length(track.x, track.y))]
+    return min(chains, key=lambda chain: chain[1])[0]
+
+
+def _arc_chain(track: Track, parameter: FloatArray) -> tuple[FloatArray, float]:
+    """Arc length after ARC_ROUNDS + 1 pilots from ``parameter``, and the last pilot's
+    sum of squared residuals."""
+    rss = math.inf
+    for _ in range(ARC_ROUNDS + 1):
+        pilot = _pilot(parameter, track, None)
+        arc = chord_length(pilot.value[:, 0], pilot.value[:, 1])
+        step = max(1, math.ceil(track.n_points / PILOT_POINTS))
+        residual = np.column_stack((track.x[::step], track.y[::step])) - pilot.value
+        rss = float(np.sum(residual**2))
+        parameter = np.interp(parameter, pilot.parameter, arc)
+    return parameter, rss
 
 
 PILOT_POINTS = 20_000
@@ -71,6 +92,7 @@ def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
     else:
         noise = np.asarray(track.sigma)
     scale = (noise**2)[:, None] * np.ones((1, 2))
+    products = np.array([[a @ b for b in coefficients] for a in coefficients])
     return SmoothedCurve(
         parameter=parameter, value=derivative[0], first=derivative[1], second=derivative[2],
         value_var=scale * float(coefficients[0] @ coefficients[0]),
@@ -80,11 +102,14 @@ def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
         noise=noise, level=float(window), knot_spacing=delta,
         dof=track.n_points / window * (order + 1), span=window * delta,
         method=f"Savitzky-Golay, {window} samples, order {order}",
+        covariance=(noise**2)[:, None, None] * products[None], sigma_given=track.sigma is not None,
+        response=FilterResponse((coefficients[0], coefficients[1], coefficients[2]), noise**2),
     )
 
 
 def smooth_track(
-    track: Track, *, smoothing: Smoothing = "auto", level: float | None = None, window: int = 31
+    track: Track, *, smoothing: Smoothing = "auto", level: float | None = None, window: int = 31,
+    parameter: FloatArray | None = None,
 ) -> SmoothedCurve:
     """Smooth and differentiate a track's positions.
 
@@ -99,6 +124,10 @@ def smooth_track(
         A fixed spline smoothing level instead of GCV.
     window : int
         Savitzky-Golay window length in samples.
+    parameter : ndarray, shape (n_points,), optional
+        For a track without times, the arc length (L) to smooth against (e.g. that of an
+        earlier smoothing of the same track, `SmoothedCurve.parameter`); by default
+        `arc_length`.
     """
     if smoothing == "savgol":
         parameter = track.t if track.t is not None else chord_length(track.x, track.y)
@@ -107,8 +136,8 @@ def smooth_track(
         raise GeometryError(f'smoothing {smoothing!r} is unknown; use "spline" or "savgol".')
     try:
         if track.t is None:
-            return smooth_curve(_arc_length(track, level), track.x, track.y, sigma=track.sigma,
-                                level=level)
+            arc = arc_length(track) if parameter is None else np.asarray(parameter, dtype=float)
+            return smooth_curve(arc, track.x, track.y, sigma=track.sigma, level=level)
         parameter = np.asarray(track.t, dtype=float)
         pilot = _pilot(parameter, track, level)
         return smooth_curve(parameter, track.x, track.y, sigma=track.sigma, level=level,

@@ -9,7 +9,8 @@ from typing import Any
 import numpy as np
 
 from .._json import json_safe
-from .._types import FloatArray, Row
+from .._noise import NoiseEstimate, estimate_noise
+from .._types import Row
 from ..formatting import plain
 from ..track import Track
 
@@ -51,6 +52,9 @@ class TrackSummary:
     unrecognised_columns: tuple[str, ...] = ()
     dropped_row_numbers: tuple[int, ...] = ()
     time_origin: str | None = None
+    noise_resolved: bool = True
+    noise_lag_ratio: float = math.nan
+    noise_correlated: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe form (nan becomes None)."""
@@ -76,8 +80,8 @@ class TrackSummary:
             ("x range", f"{self.x_range[0]:.6g} to {self.x_range[1]:.6g} {length}"),
             ("y range", f"{self.y_range[0]:.6g} to {self.y_range[1]:.6g} {length}"),
             ("turns", f"{self.turns_about_middle:.2f} about the middle of the path"),
-            ("noise", f"{plain(self.noise_estimate, 3)} {length} (estimated from the path)"
-                       if math.isfinite(self.noise_estimate) else "not estimated (fewer than 5 points)"),
+            ("noise", NoiseEstimate(self.noise_estimate, self.noise_resolved, self.noise_lag_ratio,
+                                    self.noise_correlated).describe(length)),
         ]
         if math.isfinite(self.median_sigma):
             rows.append(("sigma", f"{self.median_sigma:.3g} {length} median, as given"))
@@ -119,30 +123,6 @@ class TrackSummary:
         return "\n".join(lines)
 
 
-def second_difference_noise(x: FloatArray, y: FloatArray) -> float:
-    """Position noise per coordinate from second differences (robust, MAD-based).
-
-    For a smooth path sampled densely the second difference of the samples is
-    dominated by the noise, whose second difference has variance 6 sigma**2.
-    On sparsely sampled paths this overestimates the noise.
-
-    Parameters
-    ----------
-    x, y : ndarray, shape (n_points,)
-        Positions in time order, in any one length unit.
-
-    Returns
-    -------
-    float
-        Standard deviation per coordinate, same unit; nan with fewer than 5 points.
-    """
-    if x.size < 5:
-        return math.nan
-    second = np.concatenate((np.diff(x, 2), np.diff(y, 2)))
-    spread = 1.4826 * float(np.median(np.abs(second - np.median(second))))
-    return spread / math.sqrt(6.0)
-
-
 def turns_about_middle(track: Track) -> float:
     """Revolutions swept about the middle of the bounding box (a rough count)."""
     cx = 0.5 * (track.x.min() + track.x.max())
@@ -171,6 +151,7 @@ def inspect_track(track: Track) -> TrackSummary:
         largest = float(steps[is_gap].max()) if n_gaps else math.nan
         rate = 1.0 / float(np.mean(steps[~is_gap]))
     plane = meta.get("plane")
+    noise = estimate_noise(track.x, track.y, parameter=track.t)
     return TrackSummary(
         name=track.name,
         source=str(meta.get("source", "arrays")),
@@ -184,7 +165,7 @@ def inspect_track(track: Track) -> TrackSummary:
         largest_gap=largest,
         x_range=(float(track.x.min()), float(track.x.max())),
         y_range=(float(track.y.min()), float(track.y.max())),
-        noise_estimate=second_difference_noise(track.x, track.y),
+        noise_estimate=noise.sd,
         median_sigma=math.nan if track.sigma is None else float(np.median(track.sigma)),
         turns_about_middle=turns_about_middle(track),
         dropped_rows=int(meta.get("dropped_rows", 0)),
@@ -198,6 +179,9 @@ def inspect_track(track: Track) -> TrackSummary:
         unrecognised_columns=tuple(meta.get("unrecognised_columns", ())),
         dropped_row_numbers=tuple(int(row) for row in meta.get("dropped_row_numbers", ())),
         time_origin=_time_origin(track),
+        noise_resolved=noise.resolved,
+        noise_lag_ratio=noise.lag_ratio,
+        noise_correlated=noise.correlated,
     )
 
 

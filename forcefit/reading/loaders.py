@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .._atomic import write_atomic
+from .._noise import position_noise
 from .._types import FloatArray
 from ..errors import ForcefitWarning, InputError
 from ..track import ABSURD, MIN_POINTS, Track
@@ -35,7 +36,6 @@ from .columns import (
     unused_columns,
 )
 from .coordinates import Calibration, project_to_plane
-from .inspection import second_difference_noise
 from .perspective import PlaneMapping
 from .tables import RawTable, read_table
 from .video import is_video, track_video
@@ -193,7 +193,7 @@ def _to_plane(
             f"{extent:.3g} {unit} across); a central-force orbit is planar. Check the z column "
             "and the coordinate frame."
         )
-    noise = second_difference_noise(plane.u, plane.v) if sigma is None else float(np.median(sigma))
+    noise = position_noise(plane.u, plane.v) if sigma is None else float(np.median(sigma))
     if rms > 3.0 * noise:
         notes.append(
             f"the points lie {rms:.3g} {unit} (RMS) off their best-fit plane, more than three "
