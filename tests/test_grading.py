@@ -416,3 +416,18 @@ def test_a_mixed_class_grades_in_one_command_with_its_settings_file(tmp_path, ca
     table = read_results(out / "results.csv").set_index("run")
     assert table.loc["anna", "passed"] and not table.loc["bruno", "passed"]
     assert "milliseconds" in table.loc["bruno", "advice"] and "(30/25)^2" in table.loc["carla", "advice"]
+
+
+@pytest.mark.parametrize("side", [-1.0, 1.0])
+def test_the_band_is_two_sided_and_holds_its_edges(side):
+    # A run passes when |n - N| <= T (the class rule, common practice): just inside on either
+    # side passes, exactly at the edge passes, just outside on either side fails.
+    rule = GradingRule(expect=1.0, tolerance=0.02, strength=4.905, strength_tolerance=0.05)
+    for offset, inside in ((0.02 - 1e-6, True), (0.02 + 1e-6, False), (0.0, True)):
+        assert rule.exponent_within(1.0 + side * offset) is inside, (side, offset)
+    assert rule.exponent_within(1.0 + side * 0.015625) and not rule.exponent_within(1.0 + side * 0.5)
+    edge = GradingRule(expect=1.0, tolerance=0.25)        # edges exact in binary
+    assert edge.exponent_within(1.0 + side * 0.25)
+    for ratio, inside in ((0.05 - 1e-6, True), (0.05 + 1e-6, False)):
+        assert rule.strength_within(4.905 * (1 + side * ratio)) is inside, (side, ratio)
+    assert GradingRule(expect=1.0, tolerance=0.02).strength_within(123.0)   # no strength asked

@@ -137,7 +137,7 @@ def test_loaders_on_random_frames(frame):
     _check_frames(frame)
 
 
-@QUICK
+@settings(QUICK, max_examples=60)
 @given(track=tracks(), estimator=st.sampled_from(ESTIMATORS))
 def test_estimators_on_random_tracks(track, estimator):
     _check_estimator(track, estimator)

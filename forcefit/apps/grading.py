@@ -78,6 +78,16 @@ class GradingRule:
     files: tuple[tuple[str, Mapping[str, Any]], ...] = ()
     given_options: Mapping[str, Any] = field(default_factory=dict)
 
+    def exponent_within(self, exponent: float) -> bool:
+        """True when |n - expect| <= tolerance: inside the band on either side, its edges included."""
+        return abs(exponent - self.expect) <= self.tolerance
+
+    def strength_within(self, strength: float) -> bool:
+        """True when no strength is expected, or |k / strength - 1| <= strength_tolerance."""
+        if self.strength is None:
+            return True
+        return abs(strength / self.strength - 1.0) <= (self.strength_tolerance or 0.0)
+
     def options_for(self, path: str | os.PathLike[str]) -> dict[str, Any]:
         """The `load_tracks` keywords for one run: ``load_options``, then the options of every
         matching ``files`` entry, then ``given_options`` on top."""
@@ -189,7 +199,7 @@ def _grade(path: Path, rule: GradingRule, out_dir: str | None) -> dict[str, Any]
     turns = fit.turns if isinstance(fit, OrbitFit) else math.nan
     if math.isfinite(turns) and turns < rule.min_turns:
         reasons.append(f"too short: covers {turns:.2f} turns, at least {rule.min_turns:g} needed")
-    if abs(fit.exponent - rule.expect) > rule.tolerance:
+    if not rule.exponent_within(fit.exponent):
         reasons.append(f"exponent outside tolerance: n = "
                        f"{measurement(fit.exponent, fit.exponent_stderr)}, expected "
                        f"{rule.expect:g} ± {rule.tolerance:g}")
@@ -198,7 +208,7 @@ def _grade(path: Path, rule: GradingRule, out_dir: str | None) -> dict[str, Any]
         unit = rule.unit
         if problem:
             reasons.append(f"strength not checked: {problem}")
-        elif abs(k / rule.strength - 1.0) > (rule.strength_tolerance or 0.0):
+        elif not rule.strength_within(k):
             reasons.append(f"strength outside tolerance: k = {measurement(k, k_error, unit)}, "
                            f"expected {rule.strength:.6g} {unit} ± {100 * (rule.strength_tolerance or 0):g}%")
     advice = " ".join(likely_mistakes(_facts(

@@ -243,7 +243,12 @@ def _result(track: Track, level: _Level, settled: Settled[_Level]) -> CurvatureF
     # k = F(r_ref) r_ref**-n: ln k = ln f_ref - n ln r_ref.
     gradient = np.array([-math.log(reference), 1.0])
     log_k_se = math.sqrt(max(float(gradient @ covariance @ gradient), 0.0))
-    level_value = math.exp(log_force - exponent * math.log(reference))
+    log_level = log_force - exponent * math.log(reference)
+    if not (abs(log_level) < 700 and abs(log_force) < 700):
+        raise GeometryError(f"the fitted law (n = {exponent:.3g}) puts its strength beyond any "
+                            "representable number: the path does not follow a power law about "
+                            "this centre.")
+    level_value = math.exp(log_level)
     h, h_se, drift = angular_momentum(path)
     force, force_se = math.exp(log_force), math.exp(log_force) * math.sqrt(covariance[1, 1])
     if track.has_times:

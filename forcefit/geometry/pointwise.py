@@ -235,6 +235,9 @@ def fit_pointwise(
     # residual is not small against its signal).
     per_sample = (jacobian[:, :, None, None] * gradient[:, None] + scaled[:, None, None, None] * mixed)
     local = -np.einsum("ab,mbkc->amkc", inverse, per_sample)
+    if not np.all(np.isfinite(local)):
+        raise GeometryError("the fitted parameters' response to the samples is not finite: the "
+                            "fit is not determined by these samples.")
     whole = np.zeros((n_fit, curve.parameter.size, 3, 2))
     whole[:, used] = local
     influence = curve.response.influence(whole)
