@@ -74,6 +74,7 @@ def test_simulate_without_a_law_exits_2(capsys):
     assert "--exponent" in capsys.readouterr().err
 
 
+@pytest.mark.slow  # about two minutes; `make demo` runs the same
 def test_demo_runs_the_main_job_on_every_bundled_run(capsys, tmp_path):
     assert main(["demo", "--out", str(tmp_path / "report")]) == 0
     out = capsys.readouterr().out

@@ -117,6 +117,7 @@ def test_an_interrupted_batch_resumes_without_redoing_or_losing_runs(tmp_path):
     assert len(read_results(out / "results.csv")) == 4
 
 
+@pytest.mark.slow  # starts a local cluster
 def test_dask_local_cluster_gives_the_same_table(graded):
     distributed = pytest.importorskip("dask.distributed")
     out, local = graded
