@@ -111,3 +111,25 @@ def test_unevenly_spaced_rosette_without_times():
     xy = states.position + 2e-3 * rng.standard_normal(states.position.shape)
     fit = fit_curvature(Track(x=xy[:, 0], y=xy[:, 1]))
     assert abs(fit.exponent + 1.0) < 3.0 * fit.exponent_stderr < 0.1
+
+
+@pytest.mark.parametrize(("estimator", "slack"),
+                         [("shape", 0.02), ("curvature", 0.12), ("acceleration", 0.12)])
+def test_without_sigma_the_errors_follow_the_spread_of_the_data(estimator, slack):
+    # The residual-variance convention (NIST StRD nonlinear regression, certified standard
+    # deviations; common practice): with sigma unknown, stderr = stderr(sigma known) *
+    # sqrt(reduced chi-square of the known-sigma fit). The stated sigma here is 2.5x too small.
+    # The shape fit scales by its own residuals (exact); the curvature and acceleration fits by
+    # the noise of the samples' differences, an estimate of the same spread (within ~10%).
+    from forcefit.estimators import ESTIMATORS
+
+    rng = np.random.default_rng(3)
+    clean = simulate_orbit(exponent=-1.5, duration=20.0, rate=30.0, noise=0.0, rng=1)
+    x = clean.x + 2.5e-3 * rng.standard_normal(clean.n_points)
+    y = clean.y + 2.5e-3 * rng.standard_normal(clean.n_points)
+    fit = ESTIMATORS[estimator].function
+    known = fit(Track(t=clean.t, x=x, y=y, sigma=np.full(clean.n_points, 1e-3)), centre=(0.0, 0.0))
+    unknown = fit(Track(t=clean.t, x=x, y=y), centre=(0.0, 0.0))
+    assert known.reduced_chi2 == pytest.approx(6.25, rel=0.15)
+    ratio = unknown.exponent_stderr / known.exponent_stderr
+    assert ratio == pytest.approx(np.sqrt(known.reduced_chi2), rel=slack)
