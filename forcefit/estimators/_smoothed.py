@@ -38,6 +38,10 @@ from ..track import Track
 from ._checks import chi_square_diagnostic
 from .result import Diagnostic
 
+BEND_Z = 4.0
+"""A change of the local exponent across the radial range beyond this many standard errors
+fails the power-law check."""
+
 LEVEL_STEP = 4.0
 """Factor by which the smoothing level is lightened at each step."""
 

@@ -27,6 +27,7 @@ from ..geometry.smoothing import Smoothing
 from ..track import Track
 from ._checks import angular_momentum, constancy_diagnostic
 from ._smoothed import (
+    BEND_Z,
     Settled,
     noise_diagnostics,
     noise_level,
@@ -35,10 +36,6 @@ from ._smoothed import (
     settle,
 )
 from .result import AccelerationFit, CurvaturePoints, Diagnostic
-
-BEND_Z = 4.0
-"""A change of the local exponent across the radial range beyond this many standard errors
-fails the power-law check."""
 
 
 @dataclass(frozen=True)
