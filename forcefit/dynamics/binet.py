@@ -24,7 +24,7 @@ import numpy as np
 from numba import njit
 
 from .._types import FloatArray
-from ._kernel import E3, E5, FAILED, MAX_FACTOR, MIN_FACTOR, OK, SAFETY, STAGES, A, B
+from ._kernel import FAILED, MAX_FACTOR, MIN_FACTOR, OK, SAFETY, STAGES, A, B, step_error
 
 BINET_PARAMETERS = ("exponent", "log_ratio", "log_radius", "slope")
 """The parameters of a solution: n, ln(k/h**2), ln r and d ln r/dtheta at the reference angle."""
@@ -66,6 +66,7 @@ def _leg(angles, order, start, y0, exponent, ratio, rtol, atol, limit, out):  # 
     y_new = np.empty(STATE)
     stage = np.empty(STATE)
     low, high = y0[0] / ESCAPE, y0[0] * ESCAPE
+    tolerances = np.full(2, atol)                 # error control on u and u' only
     t = start
     _derivative(y, k[0], exponent, ratio)
     h_abs = 0.01
@@ -93,21 +94,7 @@ def _leg(angles, order, start, y0, exponent, ratio, rtol, atol, limit, out):  # 
                         acc += B[j] * k[j][i]
                     y_new[i] = y[i] + h * acc
                 _derivative(y_new, k[STAGES], exponent, ratio)
-                err5 = 0.0
-                err3 = 0.0
-                for i in range(2):
-                    scale = atol + max(abs(y[i]), abs(y_new[i])) * rtol
-                    e5 = 0.0
-                    e3 = 0.0
-                    for j in range(STAGES + 1):
-                        e5 += E5[j] * k[j][i]
-                        e3 += E3[j] * k[j][i]
-                    err5 += (e5 / scale) ** 2
-                    err3 += (e3 / scale) ** 2
-                if err5 == 0.0 and err3 == 0.0:
-                    error = 0.0
-                else:
-                    error = abs(h) * err5 / np.sqrt((err5 + 0.01 * err3) * 2.0)
+                error = step_error(y, y_new, k, tolerances, rtol, h, 2)
                 if not np.isfinite(error) or not low < y_new[0] < high:
                     error = 1e10                       # a stage left the domain: shorten the step
                 if error < 1.0:
