@@ -457,7 +457,8 @@ def tasks(
             if estimator and name not in estimator.split(","):
                 continue
             chosen += [(index, name, seed) for seed in range(1 if slice_ else replicates)]
-    return chosen
+    # Replicate after replicate over every cell: an interrupted run covers the cells evenly.
+    return sorted(chosen, key=lambda task: (task[2], task[0], task[1]))
 
 
 def run(
