@@ -55,6 +55,7 @@ class TrackSummary:
     noise_resolved: bool = True
     noise_lag_ratio: float = math.nan
     noise_correlated: bool = False
+    description: str = ""
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe form (nan becomes None)."""
@@ -63,7 +64,8 @@ class TrackSummary:
     def rows(self) -> list[Row]:
         """The facts as labelled text with units."""
         length, time = self.length_unit, self.time_unit or ""
-        rows = [("points", f"{self.n_points}" + (f"  ({self._dropped()})" if self.dropped_rows else ""))]
+        rows = [("read", self.description)] if self.description else []
+        rows.append(("points", f"{self.n_points}" + (f"  ({self._dropped()})" if self.dropped_rows else "")))
         if self.time_unit is None:
             rows.append(("times", "none (shape-only path)"))
         else:
@@ -182,6 +184,7 @@ def inspect_track(track: Track) -> TrackSummary:
         noise_resolved=noise.resolved,
         noise_lag_ratio=noise.lag_ratio,
         noise_correlated=noise.correlated,
+        description=str(meta.get("description", "")),
     )
 
 

@@ -271,6 +271,7 @@ def _make_track(
     if not table.has_header:
         notes.append("no header: the columns were read by position as "
                      f"{', '.join(str(c) for c in table.frame.columns)}.")
+    notes.extend(table.notes)
     if table.title_lines:
         notes.append(f"the header is the line below the title ({'; '.join(table.title_lines)}); "
                      "the title was skipped.")
@@ -288,6 +289,7 @@ def _make_track(
         unused_columns=recognised + unknown,
         unrecognised_columns=unknown,
         title_lines=list(table.title_lines),
+        description=table.description,
         warnings=notes,
     )
     if units["time_from"] == "date-times" and "t" in chosen:

@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
+from .horizons import is_horizons, read_horizons
 
 EXCEL_SUFFIXES = frozenset({".xlsx", ".xlsm", ".xls"})
 PARQUET_SUFFIXES = frozenset({".parquet", ".pq"})
@@ -44,13 +45,17 @@ class RawTable:
         The file path, or ``"<DataFrame>"``.
     layout : str
         How it was read: ``"comma"``, ``"semicolon"``, ``"tab"``, ``"whitespace"``,
-        ``"excel"``, ``"parquet"``, ``"json"`` or ``"frame"``.
+        ``"excel"``, ``"parquet"``, ``"json"``, ``"horizons"`` or ``"frame"``.
     decimal_comma : bool
         True when numbers were written with decimal commas (converted on reading).
     has_header : bool
         False when the file starts with numbers and columns were named by position.
     title_lines : tuple of str
         Lines above the header that were skipped as a title ("row 1: object: bob 1").
+    description : str
+        What a recognised export holds (a Horizons table's target and centre), or "".
+    notes : tuple of str
+        What the reader warns of (positions about a barycentre, say).
     """
 
     frame: pd.DataFrame
@@ -60,6 +65,8 @@ class RawTable:
     decimal_comma: bool = False
     has_header: bool = True
     title_lines: tuple[str, ...] = ()
+    description: str = ""
+    notes: tuple[str, ...] = ()
 
     @property
     def row_word(self) -> str:
@@ -178,6 +185,9 @@ def _read_json(path: Path) -> RawTable:
         ) from None
     if content in ({}, []):
         raise InputError(f"{path}: the table is empty (no records). Fill it with the tracked samples.")
+    reply = content.get("result") if isinstance(content, dict) else None
+    if isinstance(reply, str) and is_horizons(reply):
+        return _horizons_table(reply, str(path), "rows are lines of the reply's result text")
     if isinstance(content, dict) and isinstance(content.get("records"), list):
         content = content["records"]
     if isinstance(content, dict) and content and all(isinstance(v, list) for v in content.values()):
@@ -238,8 +248,24 @@ def _split(lines: list[str], delimiter: str | None) -> list[list[str]]:
     return [[cell.strip() for cell in row] for row in csv.reader(lines, delimiter=delimiter)]
 
 
+def _horizons_table(text: str, source: str, where: str = "") -> RawTable:
+    """A Horizons vector table as a table of epochs and positions."""
+    table = read_horizons(text, source)
+    notes = []
+    if table.about_barycentre:
+        notes.append(f"the positions are about {table.centre}, not about a body: the attracting body "
+                     "itself moves about it, which a power-law fit sees as a perturbation. Ask "
+                     "Horizons for positions about the body (for planets, the Sun: centre @10).")
+    description = table.describe() + (f" ({where})" if where else "")
+    return RawTable(table.frame, table.rows, source, "horizons", description=description,
+                    notes=tuple(notes))
+
+
 def _read_text(path: Path) -> RawTable:
-    lines = _decode(path).splitlines()
+    text = _decode(path)
+    if is_horizons(text):
+        return _horizons_table(text, str(path))
+    lines = text.splitlines()
     kept = [i for i, line in enumerate(lines) if line.strip() and not line.lstrip().startswith("#")]
     if not kept:
         raise InputError(f"{path}: holds no rows, only comments or blank lines. Add the samples.")
