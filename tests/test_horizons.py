@@ -46,8 +46,9 @@ def _calendar(jd: float) -> str:
 
 
 def horizons_text(layout: str = "comma", units: str = "AU-D", *, days: float = 4 * 365.25,
-                  step: float = 5.0, centre: str = "Sun (10)", end: bool = True) -> str:
-    """Mars in a Horizons vector table's layout."""
+                  step: float = 5.0, centre: str = "Sun (10)", end: bool = True,
+                  julian: bool = True) -> str:
+    """Mars in a Horizons vector table's layout (without Julian dates: calendar dates only)."""
     jd, position, velocity = _mars(days, step)
     if units == "AU-D":
         position, velocity = position / AU_KM, velocity / AU_KM
@@ -66,12 +67,15 @@ def horizons_text(layout: str = "comma", units: str = "AU-D", *, days: float = 4
         lines += ["            JDTDB,            Calendar Date (TDB),                      X,"
                   "                      Y,                      Z,                     VX,"
                   "                     VY,                     VZ,", "*" * 120, "$$SOE"]
-        lines += [f"{j:.9f}, {_calendar(j)}, " + ", ".join(f"{c: .15E}" for c in (*p, *v)) + ","
+        if not julian:
+            lines[-3] = lines[-3].replace("            JDTDB,", "")
+        lines += [(f"{j:.9f}, " if julian else "") + f"{_calendar(j)}, "
+                  + ", ".join(f"{c: .15E}" for c in (*p, *v)) + ","
                   for j, p, v in zip(jd, position, velocity)]
     else:
         lines += ["JDTDB", "   X     Y     Z", "   VX    VY    VZ", stars, "$$SOE"]
         for j, p, v in zip(jd, position, velocity):
-            lines += [f"{j:.9f} = {_calendar(j)} TDB ",
+            lines += [(f"{j:.9f} = " if julian else "") + f"{_calendar(j)} TDB ",
                       " X ={: .15E} Y ={: .15E} Z ={: .15E}".format(*p),
                       " VX={: .15E} VY={: .15E} VZ={: .15E}".format(*v)]
     if end:
@@ -101,6 +105,15 @@ def test_both_layouts_read_as_the_ephemeris_positions(write, digest, layout, uni
     assert track.metadata["layout"] == "horizons"
     assert "Mars (499) about Sun (10)" in track.metadata["description"]
     assert list(track.source_rows[:2]) == ([16, 17] if layout == "comma" else [18, 21])
+
+
+@pytest.mark.parametrize("layout", ["comma", "labelled"])
+def test_calendar_dates_alone_read_as_julian_dates(write, layout):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ForcefitWarning)
+        track = load_track(write("cal.txt", horizons_text(layout, days=100.0, step=0.25, julian=False)))
+    jd, _, _ = _mars(100.0, 0.25)
+    np.testing.assert_allclose(track.t, jd, rtol=0, atol=1e-9)
 
 
 def test_the_api_reply_in_json_reads_alike(write):

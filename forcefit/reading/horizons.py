@@ -16,6 +16,7 @@ reader names (a barycentre is not the attracting body; the reader warns).
 
 from __future__ import annotations
 
+import datetime
 import re
 from dataclasses import dataclass
 
@@ -27,7 +28,11 @@ from ..errors import InputError
 START, END = "$$SOE", "$$EOE"
 _LABELLED = re.compile(r"([A-Z]{1,2})\s*=\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[Ee][-+]?\d+)?)")
 _EPOCH = re.compile(r"^\s*(\d+(?:\.\d*)?)\s*=\s*(.*)$")
+_CALENDAR = re.compile(r"^\s*(?:A\.D\.\s*)?(\d{4})-([A-Za-z]{3})-(\d{1,2})"
+                       r"(?:\s+(\d{1,2}):(\d{2})(?::(\d{2}(?:\.\d*)?))?)?\s*([A-Z]{2,3})?\s*$")
+_MONTHS = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
 _UNITS = {"KM-S": "km", "KM-D": "km", "AU-D": "au"}
+J2000, EPOCH_2000 = 2451545.0, datetime.datetime(2000, 1, 1)   # JD of 2000-Jan-01 12:00
 
 
 @dataclass(frozen=True)
@@ -37,7 +42,7 @@ class HorizonsTable:
     Attributes
     ----------
     frame : DataFrame
-        Columns ``JD<scale> [d]``, ``x [unit]``, ``y [unit]``, ``z [unit]`` (floats).
+        Columns ``jd [d]``, ``x [unit]``, ``y [unit]``, ``z [unit]`` (floats).
     rows : ndarray of int
         1-based line of the text where each epoch's record starts.
     target, centre, frame_name, time_scale, length_unit : str
@@ -118,7 +123,7 @@ def read_horizons(text: str, source: str) -> HorizonsTable:
         epochs, positions, rows, scale = _comma_rows(body, column_line, source)
     else:
         epochs, positions, rows, scale = _labelled_rows(body, source)
-    frame = pd.DataFrame({f"JD{scale} [d]": epochs, f"x [{length}]": positions[:, 0],
+    frame = pd.DataFrame({"jd [d]": epochs, f"x [{length}]": positions[:, 0],
                           f"y [{length}]": positions[:, 1], f"z [{length}]": positions[:, 2]})
     return HorizonsTable(
         frame=frame, rows=np.asarray(rows), target=_body(header.get("target body name", "")),
@@ -144,13 +149,16 @@ def _comma_rows(body: list[tuple[int, str]], column_line: str, source: str
         raise InputError(
             f"{source}: the Horizons column line ({column_line.strip()[:80]}) names no X, Y and Z "
             "columns. Ask for a vector table with positions.") from None
-    epoch_column = next((k for k, name in enumerate(names) if name.startswith("JD")), 0)
-    scale = names[epoch_column][2:] if names[epoch_column].startswith("JD") else "TDB"
+    julian = next((k for k, name in enumerate(names) if name.startswith("JD")), None)
+    calendar = next((k for k, name in enumerate(names) if name.startswith("CALENDAR")), None)
+    epoch_column = julian if julian is not None else calendar if calendar is not None else 0
+    scale = names[julian][2:] if julian is not None else names[epoch_column].partition("(")[2].rstrip(")")
     epochs, positions, rows = [], [], []
     for index, line in body:
         cells = [cell.strip() for cell in line.split(",")]
         try:
-            epochs.append(float(cells[epoch_column]))
+            epochs.append(float(cells[epoch_column]) if julian is not None
+                          else _julian_date(cells[epoch_column], source, index + 1))
             positions.append([float(cells[k]) for k in where])
         except (ValueError, IndexError):
             raise InputError(
@@ -179,13 +187,14 @@ def _labelled_rows(body: list[tuple[int, str]], source: str
         positions.append([current["X"], current["Y"], current["Z"]])
 
     for index, line in body:
-        epoch = _EPOCH.match(line)
-        if epoch is not None and not _LABELLED.match(line.strip()):
+        epoch, calendar = _EPOCH.match(line), _CALENDAR.match(line)
+        if epoch is not None or calendar is not None:
             close(rows[-1] if rows else index + 1)
-            epochs.append(float(epoch.group(1)))
+            epochs.append(float(epoch.group(1)) if epoch is not None
+                          else _julian_date(line, source, index + 1))
             rows.append(index + 1)
             current = {}
-            words = epoch.group(2).split()
+            words = (epoch.group(2) if epoch is not None else line).split()
             if words and words[-1].isalpha() and words[-1].isupper():
                 scale = words[-1]
             continue
@@ -195,3 +204,22 @@ def _labelled_rows(body: list[tuple[int, str]], source: str
         current.update({name: float(value) for name, value in _LABELLED.findall(line)})
     close(rows[-1])
     return np.array(epochs), np.array(positions), rows, scale
+
+
+def _julian_date(text: str, source: str, line: int) -> float:
+    """``A.D. 2000-Jan-01 12:00:00.0000`` as a Julian date (days), for tables without JD.
+
+    The Gregorian calendar throughout, so dates before 1583 are refused (Horizons writes
+    them in the Julian calendar)."""
+    match = _CALENDAR.match(text)
+    if match is None or match.group(2).lower() not in _MONTHS:
+        raise InputError(f"{source}, line {line}: expected a date such as 'A.D. 2000-Jan-01 12:00:00', "
+                         f"found '{text.strip()[:60]}'. Save the Horizons reply unedited.")
+    year, day = int(match.group(1)), int(match.group(3))
+    if year < 1583:
+        raise InputError(f"{source}, line {line}: a calendar date before 1583 ({text.strip()[:40]}) is in "
+                         "the Julian calendar. Ask Horizons for Julian dates (JD) as well.")
+    moment = datetime.datetime(year, _MONTHS.index(match.group(2).lower()) + 1, day)
+    seconds = (int(match.group(4) or 0) * 3600 + int(match.group(5) or 0) * 60
+               + float(match.group(6) or 0.0))
+    return J2000 + (moment - EPOCH_2000).days + (seconds - 43200.0) / 86400.0
