@@ -318,9 +318,23 @@ def _fit(estimator: str, track: Track, truth: Truth, options: dict[str, Any]) ->
 
 def run_one(task: tuple[int, str, int]) -> dict[str, Any]:
     """One replicate of one cell: its outcome, and z when it answered."""
-    index, estimator, seed = task
+    return run_replicate(task[0], task[2], (task[1],))[0]
+
+
+def run_replicate(index: int, seed: int, estimators: Sequence[str]) -> list[dict[str, Any]]:
+    """One replicate of a scenario (one simulated track) through each of ``estimators``."""
     scenario = scenarios()[index]
     track, truth = scenario.make(np.random.default_rng([index, seed]))
+    return [_outcome(index, estimator, seed, scenario, track, truth) for estimator in estimators]
+
+
+def _run_group(group: tuple[int, int, tuple[str, ...]]) -> list[dict[str, Any]]:
+    return run_replicate(*group)
+
+
+def _outcome(
+    index: int, estimator: str, seed: int, scenario: Scenario, track: Track, truth: Truth
+) -> dict[str, Any]:
     options = dict(scenario.options) if estimator in ("orbit", "pendulum") else {}
     if scenario.centre_given:
         options["centre"] = truth.centre
@@ -470,16 +484,24 @@ def run(
             done = [json.loads(line) for line in handle if line.strip()]
         seen = {(r["cell"], r["estimator"], r["seed"]) for r in done}
         todo = [task for task in todo if task not in seen]
+    # One simulated track serves every estimator of its cell and seed.
+    groups: dict[tuple[int, int], list[str]] = {}
+    for index, estimator, seed in todo:
+        groups.setdefault((index, seed), []).append(estimator)
     out = open(log, "a", encoding="utf-8") if log else None
+    count = 0
     try:
         with ProcessPoolExecutor(workers) as pool:
-            for k, row in enumerate(pool.map(run_one, todo, chunksize=1)):
-                done.append(row)
-                if out:
-                    out.write(json.dumps(row) + "\n")
-                    out.flush()
+            jobs = [(index, seed, tuple(names)) for (index, seed), names in groups.items()]
+            for rows in pool.map(_run_group, jobs, chunksize=1):
+                for row in rows:
+                    done.append(row)
+                    if out:
+                        out.write(json.dumps(row) + "\n")
+                        out.flush()
+                count += len(rows)
                 if progress:
-                    print(f"\r{k + 1}/{len(todo)} replicates", end="", file=sys.stderr)
+                    print(f"\r{count}/{len(todo)} replicates", end="", file=sys.stderr)
     finally:
         if out:
             out.close()
