@@ -13,6 +13,7 @@ python benchmarks/validation.py --quick             # 5 replicates
 python benchmarks/validation.py --slice             # one replicate of every family (the test's)
     --estimator orbit   --only "near-circle"        # a part of the matrix
     --log run.jsonl                                 # keep every replicate; resume from it
+    --log run.jsonl --no-run                        # summarise a (partial) log without running
     --workers 2  --markdown                         # processes; a family table for the README
 
 Truths. Simulated power-law orbits: their n and k. A screened force F = k e^(-r/lambda)/r^2 has
@@ -435,6 +436,33 @@ def table(cells: Sequence[Cell]) -> str:
     return "\n".join(lines)
 
 
+def calibration(cells: Sequence[Cell]) -> str:
+    """Per estimator, all its answers pooled: coverage of the 68% and 95% intervals and the
+    spread of z; then every cell whose 95% coverage is outside the range a correct interval
+    gives its number of answers 99% of the time (binomial, p = 0.95)."""
+    from scipy.stats import binom
+
+    lines = [f"{'estimator':<13}{'answers':>8}{'in68':>7}{'in95':>7}{'sd z':>7}{'mean z':>8}{'WRONG':>7}"]
+    odd = []
+    for estimator in sorted({cell.estimator for cell in cells}):
+        own = [cell for cell in cells if cell.estimator == estimator]
+        z = np.concatenate([cell.z for cell in own]) if own else np.array([])
+        if z.size:
+            lines.append(f"{estimator:<13}{z.size:>8}{np.mean(np.abs(z) < 1):>7.1%}"
+                         f"{np.mean(np.abs(z) < 1.96):>7.1%}{np.std(z):>7.2f}{np.mean(z):>8.2f}"
+                         f"{int(np.sum(np.abs(z) > WRONG_Z)):>7}")
+        for cell in own:
+            if cell.answered >= 10:
+                inside = int(np.sum(np.abs(cell.z) < 1.96))
+                low, high = binom.ppf(0.005, cell.answered, 0.95), binom.ppf(0.995, cell.answered, 0.95)
+                if not low <= inside <= high:
+                    odd.append(f"  {cell.scenario.name} / {estimator}: {inside} of {cell.answered} inside "
+                               f"95% (expected {low:.0f} to {high:.0f})")
+    lines.append("cells whose 95% coverage a correct interval would give less than 1% of the time:")
+    lines += odd or ["  none"]
+    return "\n".join(lines)
+
+
 def markdown(cells: Sequence[Cell]) -> str:
     """One row per family and estimator: refuses / flags / answers, 95% coverage, wrong."""
     groups: dict[tuple[str, str], list[Cell]] = {}
@@ -520,7 +548,15 @@ def main() -> None:
     parser.add_argument("--log", default="", help="JSON lines of every replicate; resumes from it")
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--markdown", action="store_true", help="also print the family table")
+    parser.add_argument("--no-run", action="store_true", help="only summarise what --log holds")
     args = parser.parse_args()
+    if args.no_run:
+        with open(args.log, encoding="utf-8") as handle:
+            cells = cells_of([json.loads(line) for line in handle if line.strip()])
+        print(table(cells), calibration(cells), sep="\n\n")
+        if args.markdown:
+            print("\n" + markdown(cells))
+        return
     todo = tasks(
         replicates=QUICK if args.quick else args.replicates,
         only=args.only,
@@ -528,7 +564,7 @@ def main() -> None:
         slice_=args.slice,
     )
     cells = cells_of(run(todo, workers=args.workers, log=args.log))
-    print(table(cells))
+    print(table(cells), calibration(cells), sep="\n\n")
     if args.markdown:
         print()
         print(markdown(cells))
