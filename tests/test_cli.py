@@ -301,3 +301,19 @@ def test_the_command_tables_help_is_each_commands_own():
     choices = next(action for action in full._actions if action.dest == "command")
     helps = {action.dest: action.help for action in choices._choices_actions}
     assert helps == {name: help_text for name, (_, help_text) in COMMANDS.items()}
+
+
+@pytest.mark.parametrize("words, expected", [
+    (["fit"], "forcefit fit: missing FILE."),
+    (["fit", "x.csv", "--method", "nonsense"], "forcefit fit: --method takes one of"),
+    (["simulate", "--exponent", "abc"], "forcefit simulate: --exponent takes a number, not 'abc'."),
+    (["apsides", "x.csv", "--pendulum-length", "six metres"],
+     'forcefit apsides: --pendulum-length: expected a length with its unit such as "1.6 mm"'),
+])
+def test_a_command_line_it_cannot_use_is_answered_in_one_line_of_its_own(words, expected, capsys):
+    with pytest.raises(SystemExit) as caught:
+        main(words)
+    assert caught.value.code == 2
+    err = capsys.readouterr().err
+    assert err.startswith(expected) and err.count("\n") == 1
+    assert "usage:" not in err and "error:" not in err

@@ -20,7 +20,8 @@ import pandas as pd
 from .._json import json_safe
 from .._regression import fit_line
 from .._types import FloatArray, Row
-from ..dynamics.laws import exponent_from_apsidal_angle, lab_rotation_rate, pendulum_precession_rate
+from ..dynamics.laws import exponent_from_apsidal_angle, lab_rotation_rate
+from ..dynamics.simulate import spherical_pendulum_states
 from ..errors import InputError, NotIdentifiable
 from ..estimators.result import Diagnostic
 from ..formatting import CHECK_MARKS, measurement
@@ -391,8 +392,9 @@ def precession_budget(
     apsides : Apsides
         Of a timestamped track.
     pendulum_length : float, optional
-        The pendulum's length (m): adds the finite-amplitude (Airy) rate (3/8) a b omega / L**2,
-        a and b from the mean apo- and pericentre distances (the track must be in lengths).
+        The pendulum's length (m): adds the finite-amplitude rate of an ideal spherical pendulum
+        of that swing (`finite_amplitude_precession`), a and b from the mean apo- and
+        pericentre distances (the track must be in lengths).
     gravity : float
         Local g (m/s**2).
     latitude : float, optional
@@ -419,8 +421,8 @@ def precession_budget(
                              "metres: calibrate the pixels (--scale or --marks).") from None
         semi_major = sum(a.radius for a in apsides.apocentres) / len(apsides.apocentres) * metre
         semi_minor = sum(a.radius for a in apsides.pericentres) / len(apsides.pericentres) * metre
-        result["finite_amplitude"] = pendulum_precession_rate(semi_major, semi_minor, pendulum_length,
-                                                              gravity)
+        result["finite_amplitude"] = finite_amplitude_precession(semi_major, semi_minor, pendulum_length,
+                                                                 gravity)
         expected += result["finite_amplitude"]
     if latitude is not None:
         # The lab turns counter-clockwise (seen from above, north up) at Omega_E sin(latitude), so
@@ -431,3 +433,34 @@ def precession_budget(
     result["anomalous"] = measured - expected
     result["anomalous_stderr"] = measured_se
     return result
+
+
+def finite_amplitude_precession(semi_major: float, semi_minor: float, length: float,
+                                gravity: float) -> float:
+    """The apsidal precession rate (rad/s, in the sense of the motion) of an ideal spherical
+    pendulum whose swing reaches ``semi_major`` and comes within ``semi_minor`` of the point
+    below the pivot (m): its exact motion integrated over six swings and its apses measured.
+
+    Airy's (3/8) a b omega / L**2 (`forcefit.dynamics.laws.pendulum_precession_rate`) is its
+    small-swing limit; at a/L = 0.2 (b/a = 0.4) it is 1% short, which a precise record
+    of a wide swing sees as an anomalous precession of several standard errors.
+
+    Examples
+    --------
+    >>> from forcefit.dynamics.laws import pendulum_precession_rate
+    >>> exact = finite_amplitude_precession(0.05, 0.02, 2.0, 9.81)
+    >>> round(exact / pendulum_precession_rate(0.05, 0.02, 2.0, 9.81), 3)
+    0.999
+    """
+    omega = math.sqrt(gravity / length)
+    period = 2.0 * math.pi / omega
+    times = np.arange(0.0, 6.0 * period, period / 400.0)
+    speed = semi_minor * omega
+    for _ in range(3):                  # the speed at the far end that brings the bob within b
+        swing = spherical_pendulum_states(length=length, gravity=gravity, start=(semi_major, 0.0),
+                                          velocity=(0.0, speed), times=times)
+        nearest = float(np.min(np.hypot(swing[:, 0], swing[:, 1])))
+        speed *= semi_minor / nearest
+    ideal = Track(t=times, x=swing[:, 0], y=swing[:, 1], length_unit="m", time_unit="s",
+                  name="ideal pendulum")
+    return measure_apsides(ideal, centre=(0.0, 0.0)).precession_rate

@@ -5,10 +5,11 @@ from __future__ import annotations
 import argparse
 import importlib
 import os
+import re
 import sys
 import warnings
 from collections.abc import Callable, Sequence
-from typing import Any
+from typing import Any, NoReturn
 
 from .._version import __version__
 from ..errors import ForcefitError
@@ -44,6 +45,28 @@ examples:
 """
 
 
+_PHRASES = (
+    (re.compile(r"^the following arguments are required: (.*)$"), r"missing \1"),
+    (re.compile(r"^unrecognized arguments: (.*)$"), r"not an option of this command: \1"),
+    (re.compile(r"^argument (\S+): invalid (?:float|int) value: '(.*)'$"), r"\1 takes a number, not '\2'"),
+    (re.compile(r"^argument (\S+): invalid choice: '(.*)' \(choose from (.*)\)$"),
+     r"\1 takes one of \3, not '\2'"),
+    (re.compile(r"^argument (\S+): expected one argument$"), r"\1 needs a value"),
+    (re.compile(r"^argument (\S+): (.*)$"), r"\1: \2"),
+)
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse, with forcefit's own words for a command line it cannot use."""
+
+    def error(self, message: str) -> NoReturn:
+        for pattern, replacement in _PHRASES:
+            if pattern.match(message):
+                message = pattern.sub(replacement, message)
+                break
+        self.exit(EXIT_BAD_INPUT, f"{self.prog}: {message}. '{self.prog} --help' lists what it takes.\n")
+
+
 def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     """The argument parser of the ``forcefit`` command.
 
@@ -53,7 +76,7 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
         Build this command's options only (the others are listed by name and help); default:
         every command's options.
     """
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="forcefit", formatter_class=FORMATTER, epilog=_MAIN_EXAMPLES,
         description="Infer the central force law F(r) = -k r^n r_hat behind a planar trajectory.",
     )

@@ -54,6 +54,21 @@ def measured_length(text: str) -> tuple[float, float, str]:
                                          f'got "{text}"') from None
 
 
+def length_in_metres(text: str) -> float:
+    """A length in metres from ``"2.5"`` (metres) or a length with its unit (``"250 cm"``,
+    ``"6 m"``): the same spelling as ``fit --pendulum-length`` takes."""
+    try:
+        return float(text)
+    except ValueError:
+        value, _, unit = measured_length(text)
+    from ..units import length_factor
+
+    try:
+        return value * length_factor(unit, "m")
+    except InputError as exc:
+        raise argparse.ArgumentTypeError(f'"{text}": {exc}') from None
+
+
 def column(text: str) -> tuple[str, str]:
     role, _, name = text.partition("=")
     roles = ("t", "x", "y", "z", "sigma", "frame", "id")

@@ -6,7 +6,15 @@ import argparse
 import math
 from typing import TYPE_CHECKING, Any
 
-from ._common import EXIT_FAILED_CHECKS, EXIT_OK, FORMATTER, Reports, add_centre_option, read_tracks
+from ._common import (
+    EXIT_FAILED_CHECKS,
+    EXIT_OK,
+    FORMATTER,
+    Reports,
+    add_centre_option,
+    length_in_metres,
+    read_tracks,
+)
 
 if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
     pass
@@ -15,11 +23,11 @@ _EXAMPLES = """\
 examples:
   forcefit apsides orbit.csv                        # apsidal angle, precession, implied exponent
   forcefit apsides bob.csv --length-unit px --scale "1.6 mm" --flip-y \\
-      --pendulum-length 11.0 --latitude 52          # is the precession all Airy + Earth?
+      --pendulum-length "11.0 m" --latitude 52      # is it all finite swing + Earth?
 """
 
 
-_BUDGET = {"measured": "measured", "finite_amplitude": "finite amplitude (Airy)",
+_BUDGET = {"measured": "measured", "finite_amplitude": "finite amplitude",
            "earth_rotation": "Earth's rotation", "expected": "expected in all",
            "anomalous": "anomalous (measured - expected)"}
 
@@ -67,8 +75,9 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     parser.add_argument("file", metavar="FILE")
     add_centre_option(parser)
     pendulum = parser.add_argument_group("for a pendulum")
-    pendulum.add_argument("--pendulum-length", type=float, metavar="L",
-                          help="pendulum length in m: report the finite-amplitude (Airy) precession")
+    pendulum.add_argument("--pendulum-length", type=length_in_metres, metavar="LENGTH",
+                          help='pendulum length, e.g. "11.0 m" (a bare number is in m): report the '
+                               "precession of an ideal pendulum of that swing (finite amplitude)")
     pendulum.add_argument("--gravity", type=float, default=9.81, help="local g in m/s^2 (default 9.81)")
     pendulum.add_argument("--latitude", type=float, metavar="DEG",
                           help="camera fixed in the lab: report the Earth's rotation's share "
