@@ -296,6 +296,7 @@ def test_a_published_visual_binary_gives_inverse_square_and_its_elements():
     assert abs(free.exponent + 2.0) < 3 * free.exponent_stderr and free.exponent_stderr < 0.002
     held = fit_projected(data, exponent=-2.0)
     assert held.passed and held.sense == "direct" and held.node_ambiguous
+    assert 2.0 < held.turns < 3.0            # 200 yr over P = 79.91 yr: 2.5 periods, epochs decades apart
     got, err = held.elements, held.elements_stderr
     # Without radial velocities the node is reported in [0, 180): the published node 204.85 deg
     # appears 180 deg on, and the periastron argument with it (both turn together).

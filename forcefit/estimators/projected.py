@@ -592,9 +592,18 @@ def _require_resolved_excursion(track: Track, model: ProjectedOrbitModel, vector
             "seen at an angle, looks like any other, so the exponent cannot be read from this path.")
 
 
+TURN_SAMPLES = 4096
+"""Times at which the fitted orbit is followed to count its turns: the epochs alone may be
+years apart, far more than the half turn an unwrapped angle can tell."""
+
+
 def _turns(model: ProjectedOrbitModel, vector: FloatArray) -> float:
-    """Turns the fitted orbit sweeps about the centre between the first and last epochs."""
-    position, _, ok = model.canonical(vector[None, :])
+    """Turns the fitted orbit sweeps about the centre between the first and last epochs, followed
+    at TURN_SAMPLES even times (and the epochs) however sparse the epochs are."""
+    times = model.position_times
+    dense = np.union1d(np.linspace(times[0], times[-1], TURN_SAMPLES), times)
+    followed = replace(model, position_times=dense, velocity_times=np.empty(0))
+    position, _, ok = followed.canonical(vector[None, :])
     if not ok[0]:
         return math.nan
     angle = np.unwrap(np.arctan2(position[0, :, 1], position[0, :, 0]))
