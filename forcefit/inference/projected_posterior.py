@@ -216,12 +216,10 @@ def _samples(chain: FloatArray, problem: _SkyProblem, fit: ProjectedFit) -> pd.D
     derived = [physical_values(fit, vector) for vector in full]
     for name in wanted:
         values = np.array([row[name] for row in derived])
-        if name in ANGLES:
-            period = 180.0 if name == "node" and fit.node_ambiguous else 360.0
+        if name in ANGLES or name == "periastron_time":      # continuous about the fit's value
+            period = (np.array([row["period"] for row in derived]) if name == "periastron_time"
+                      else np.full(values.size, 180.0 if name == "node" and fit.node_ambiguous else 360.0))
             centre = fit.elements[name]
-            values = centre + (values - centre + period / 2) % period - period / 2
-        elif name == "periastron_time":
-            centre, period = fit.elements[name], np.array([row["period"] for row in derived])
             values = centre + (values - centre + period / 2) % period - period / 2
         samples[name] = values
     if problem.fit_noise:
