@@ -1,4 +1,5 @@
-"""``forcefit sample``: the posterior of the orbit fit, with a progress bar."""
+"""``forcefit sample``: the posterior of the orbit fit, or with --projected of an orbit seen on the
+sky, with a progress bar."""
 
 from __future__ import annotations
 
