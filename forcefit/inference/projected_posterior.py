@@ -171,9 +171,9 @@ def sample_projected(
     --------
     >>> from forcefit.dynamics.simulate import simulate_projected
     >>> from forcefit.estimators import fit_projected
-    >>> fit = fit_projected(simulate_projected(exponent=-2.0, inclination=60.0, node=30.0, count=50,
-    ...                                        noise=3e-3, rng=1))
-    >>> posterior = sample_projected(fit, max_steps=500, progress=False, rng=1)
+    >>> fit = fit_projected(simulate_projected(exponent=-2.0, inclination=60.0, node=30.0, count=30,
+    ...                                        duration=5.0, noise=3e-3, rng=1))
+    >>> posterior = sample_projected(fit, max_steps=100, progress=False, rng=1)   # too short to converge
     >>> sorted({"exponent", "inclination", "node", "strength"} - set(posterior.samples))
     []
     """
