@@ -22,7 +22,9 @@ should say it is not one. A pendulum of finite swing is not exactly a power law 
 its length given (the ``pendulum`` estimator: the orbit fit and the finite-amplitude
 correction) the truth is Hooke's n = 1; without it, the truth is the best power law of the
 exact motion (the same swing integrated without noise and fitted: what any fit of the path
-should find).
+should find). An orbit seen in projection (the ``projected`` family, on the sky at an unknown
+inclination and node): its n; the ``orbit`` estimator there fits the sky path as if face-on,
+which is a wrong model and must say so.
 """
 
 from __future__ import annotations
@@ -46,8 +48,11 @@ from scipy.integrate import solve_ivp
 import forcefit as ff
 from forcefit.analysis.apsides import measure_apsides
 from forcefit.analysis.pendulum import pendulum_correction
-from forcefit.dynamics.simulate import simulate_pendulum
+from forcefit.astrometry import Astrometry
+from forcefit.dynamics.laws import circular_speed
+from forcefit.dynamics.simulate import simulate_pendulum, simulate_projected
 from forcefit.errors import ForcefitError
+from forcefit.estimators import fit_projected
 from forcefit.track import Track
 
 REPLICATES, QUICK = 50, 5
@@ -65,7 +70,7 @@ class Truth:
 class Scenario:
     family: str
     label: str
-    make: Callable[[np.random.Generator], tuple[Track, Truth]]
+    make: Callable[[np.random.Generator], tuple[Track | Astrometry, Truth]]
     estimators: tuple[str, ...]
     centre_given: bool = False
     options: dict[str, Any] = field(default_factory=dict)
@@ -201,6 +206,27 @@ def pendulum(
     return make
 
 
+def projected(n: float, *, inclination: float = 60.0, count: int = 50, noise: float = 3e-3,
+              errors_given: bool = True):
+    """An orbit (k = 1, from r = 1 at 0.8 times the circular speed, at a random phase) seen on the
+    sky at ``inclination`` and a random node, over three circular periods at uneven epochs
+    (arcsec, yr), relative to its centre; errors per coordinate given or not."""
+
+    def make(rng: np.random.Generator) -> tuple[Astrometry, Truth]:
+        phase, node = rng.uniform(0, 2 * math.pi), float(rng.uniform(0, 360))
+        speed = 0.8 * float(circular_speed(1.0, n, 1.0))
+        data = simulate_projected(exponent=n, start=(math.cos(phase), math.sin(phase)),
+                                  velocity=(-speed * math.sin(phase), speed * math.cos(phase)),
+                                  inclination=inclination, node=node, count=count, noise=noise, rng=rng)
+        if not errors_given:
+            track = data.track
+            data = data.with_track(Track(t=track.t, x=track.x, y=track.y, length_unit=track.length_unit,
+                                         time_unit=track.time_unit, name=track.name))
+        return data, Truth(n)
+
+    return make
+
+
 TIMED = ("orbit", "shape", "curvature", "acceleration")
 TIME_FREE = ("shape", "curvature")
 
@@ -299,10 +325,21 @@ def scenarios() -> list[Scenario]:
     add(Scenario("pendulum", "a/L=0.05, length given", pendulum(length_given=True), ("pendulum",)))
     add(Scenario("pendulum", "a/L=0.05, length not given", pendulum(), TIMED))
     add(Scenario("screened", "range 3 r0", screened(), TIMED))
+    # New families go below this line, never above: a cell's index is part of its replicates' seeds.
+    # The orbit fit of one of them shows what fitting a sky path as if face-on does (it is slow).
+    for n, inclination, given, estimators in ((-2.0, 60.0, True, ("projected",)),
+                                              (-1.5, 60.0, True, ("projected", "orbit")),
+                                              (-1.5, 60.0, False, ("projected",)),
+                                              (-2.0, 80.0, True, ("projected",))):
+        add(Scenario("projected", f"n={n:g} i={inclination:g} uneven" + ("" if given else ", no sigma"),
+                     projected(n, inclination=inclination, errors_given=given), estimators))
     return cells
 
 
-def _fit(estimator: str, track: Track, truth: Truth, options: dict[str, Any]) -> Any:
+def _fit(estimator: str, data: Track | Astrometry, truth: Truth, options: dict[str, Any]) -> Any:
+    if estimator == "projected":
+        return fit_projected(data, **options), None
+    track = data.track if isinstance(data, Astrometry) else data   # a sky path fitted as if face-on
     if estimator == "pendulum":
         fit = ff.fit_orbit(track, **options)
         return fit, pendulum_correction(fit, track, length=truth.pendulum_length)
@@ -325,8 +362,8 @@ def run_one(task: tuple[int, str, int]) -> dict[str, Any]:
 def run_replicate(index: int, seed: int, estimators: Sequence[str]) -> list[dict[str, Any]]:
     """One replicate of a scenario (one simulated track) through each of ``estimators``."""
     scenario = scenarios()[index]
-    track, truth = scenario.make(np.random.default_rng([index, seed]))
-    return [_outcome(index, estimator, seed, scenario, track, truth) for estimator in estimators]
+    data, truth = scenario.make(np.random.default_rng([index, seed]))
+    return [_outcome(index, estimator, seed, scenario, data, truth) for estimator in estimators]
 
 
 def _run_group(group: tuple[int, int, tuple[str, ...]]) -> list[dict[str, Any]]:
@@ -334,7 +371,7 @@ def _run_group(group: tuple[int, int, tuple[str, ...]]) -> list[dict[str, Any]]:
 
 
 def _outcome(
-    index: int, estimator: str, seed: int, scenario: Scenario, track: Track, truth: Truth
+    index: int, estimator: str, seed: int, scenario: Scenario, data: Track | Astrometry, truth: Truth
 ) -> dict[str, Any]:
     options = dict(scenario.options) if estimator in ("orbit", "pendulum") else {}
     if scenario.centre_given:
@@ -344,7 +381,7 @@ def _outcome(
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         try:
-            fit, corrected = _fit(estimator, track, truth, options)
+            fit, corrected = _fit(estimator, data, truth, options)
         except ForcefitError as exc:
             row.update(outcome="refused", reason=f"{type(exc).__name__}: {str(exc)[:160]}")
         except Exception as exc:  # noqa: BLE001 - a crash is a finding, never a lost batch

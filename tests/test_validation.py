@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 SCRIPT = Path(__file__).resolve().parents[1] / "benchmarks" / "validation.py"
-SLICE_ESTIMATORS = ("orbit", "pendulum", "shape", "curvature", "acceleration")
+SLICE_ESTIMATORS = ("orbit", "pendulum", "shape", "curvature", "acceleration", "projected")
 
 
 @pytest.fixture(scope="module")

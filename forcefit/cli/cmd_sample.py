@@ -1,4 +1,5 @@
-"""``forcefit sample``: the posterior of the orbit fit, with a progress bar."""
+"""``forcefit sample``: the posterior of the orbit fit, or with --projected of an orbit seen on the
+sky, with a progress bar."""
 
 from __future__ import annotations
 
@@ -27,7 +28,12 @@ examples:
   forcefit sample run_04.csv --save chain.h5       # keep the chain as it grows
   forcefit sample run_04.csv --resume chain.h5     # continue an interrupted run
   forcefit sample puck.tsv --drag linear --prior exponent=normal:1:0.1 --figures plots/
+  forcefit sample binary.csv --projected           # orbit seen on the sky: n, k, inclination, node
 """
+
+PROJECTED_OPTIONS = ("fix_exponent", "centre", "json", "length_unit", "sheet", "walkers", "max_steps",
+                     "seed", "noise", "prior", "independent", "save", "resume", "figures")
+"""The options ``sample --projected`` takes; the others are refused."""
 
 
 def _prior(text: str) -> tuple[str, tuple[str, float, float]]:
@@ -42,15 +48,64 @@ def _prior(text: str) -> tuple[str, tuple[str, float, float]]:
             f'expected NAME=uniform:LOW:HIGH or NAME=normal:MEAN:SD, got "{text}"') from None
 
 
+def _sampling(args: argparse.Namespace, chain: str | Path | None) -> dict[str, Any]:
+    """The keyword arguments of `sample_posterior` the command line asked for."""
+    return {"walkers": args.walkers, "max_steps": args.max_steps, "priors": dict(args.prior),
+            "noise": args.noise, "correlated": not args.independent, "progress": not args.json,
+            "rng": args.seed, "save": chain, "resume": bool(args.resume)}
+
+
+def _figures(posterior: Any, folder: Path, name: str, corner_names: list[str] | None = None) -> str:
+    """Write the corner and trace plots; return the line naming them."""
+    from ..outputs.figures import corner_figure, save_figure, trace_figure
+
+    folder.mkdir(parents=True, exist_ok=True)
+    save_figure(corner_figure(posterior, corner_names), folder / f"{name}_corner.png")
+    save_figure(trace_figure(posterior), folder / f"{name}_trace.png")
+    return f"figures: {folder / (name + '_corner.png')}, {folder / (name + '_trace.png')}"
+
+
+def _cmd_sample_projected(args: argparse.Namespace) -> int:
+    """``sample FILE --projected``: the posterior of an orbit seen on the sky."""
+    from ..estimators.projected import fit_projected
+    from ..formatting import measurement
+    from ..inference.projected_posterior import sample_projected
+    from ..reading.astrometry import load_astrometry
+
+    given = sorted(name for name, default in args.defaults.items()
+                   if name not in (*PROJECTED_OPTIONS, "file", "projected", "handler", "command", "parser")
+                   and getattr(args, name, default) != default)
+    if given:
+        listed = ", ".join("--" + name.replace("_", "-") for name in given)
+        raise InputError(f"{listed} does not apply to --projected; it takes --fix-exponent, --centre, "
+                         "--length-unit, --sheet, --json and the sampling options but --report.")
+    sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
+    data = load_astrometry(args.file, length_unit=args.length_unit, sheet=sheet)
+    fit = fit_projected(data, exponent=args.fix_exponent, centre=args.centre)
+    posterior = sample_projected(fit, **_sampling(args, args.resume or args.save))
+    name = data.track.name
+    lines = [f"{name} — projected fit: n = {measurement(fit.exponent, fit.exponent_stderr)}",
+             posterior.to_text()]
+    if args.figures:
+        shown = [column for column in ("exponent", "strength", "inclination", "node", "noise_scale")
+                 if column in posterior.samples]
+        lines.append(_figures(posterior, Path(args.figures), name, shown))
+    reports = Reports(args.json)
+    reports.add({"track": name, "fit": fit.to_dict(), "posterior": posterior.to_dict()}, "\n".join(lines))
+    reports.close()
+    return EXIT_OK if posterior.converged else EXIT_FAILED_CHECKS
+
+
 def _cmd_sample(args: argparse.Namespace) -> int:
     from ..estimators import fit_orbit
     from ..formatting import measurement
     from ..inference.posterior import sample_posterior
-    from ..outputs.figures import corner_figure, save_figure, trace_figure
     from ..outputs.report import write_report
 
     if args.save and args.resume:
         raise InputError("give --save FILE for a new chain or --resume FILE to continue one, not both.")
+    if args.projected:
+        return _cmd_sample_projected(args)
     status, reports = EXIT_OK, Reports(args.json)
     tracks = read_tracks(args.file, args)
     for track in tracks:
@@ -58,25 +113,17 @@ def _cmd_sample(args: argparse.Namespace) -> int:
         chain = args.resume or args.save
         if chain and len(tracks) > 1:
             chain = Path(chain).with_name(f"{Path(chain).stem}_{track.name}{Path(chain).suffix}")
-        posterior = sample_posterior(
-            fit, walkers=args.walkers, max_steps=args.max_steps, priors=dict(args.prior),
-            noise=args.noise, correlated=not args.independent, progress=not args.json, rng=args.seed,
-            save=chain, resume=bool(args.resume))
+        posterior = sample_posterior(fit, **_sampling(args, chain))
         if not posterior.converged:
             status = EXIT_FAILED_CHECKS
-        if args.figures:
-            folder = Path(args.figures)
-            folder.mkdir(parents=True, exist_ok=True)
-            save_figure(corner_figure(posterior), folder / f"{track.name}_corner.png")
-            save_figure(trace_figure(posterior), folder / f"{track.name}_trace.png")
+        figures = _figures(posterior, Path(args.figures), track.name) if args.figures else None
         page = write_report(fit, args.report, track=track, posterior=posterior) if args.report else None
         lines = [f"{track.name} — orbit fit: n = {measurement(fit.exponent, fit.exponent_stderr)}",
                  posterior.to_text()]
         if page is not None:
             lines.append(f"report: {page}")
-        if args.figures:
-            lines.append(f"figures: {Path(args.figures) / (track.name + '_corner.png')}, "
-                         f"{Path(args.figures) / (track.name + '_trace.png')}")
+        if figures:
+            lines.append(figures)
         reports.add({"track": track.name, "fit": fit.to_dict(), "posterior": posterior.to_dict(),
                      "report": str(page) if page else None}, "\n".join(lines))
     reports.close()
@@ -90,6 +137,9 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
         help="sample the posterior of the orbit fit (emcee): intervals you can trust",
         description="Fit the orbit, then sample the posterior of its parameters until converged.")
     parser.add_argument("file", metavar="FILE")
+    parser.add_argument("--projected", action="store_true",
+                        help="positions on the sky (rho/theta or ddec/dra, at epochs): sample the law "
+                             "with the orbit's inclination and node")
     add_centre_option(parser)
     add_orbit_options(parser)
     sampling = parser.add_argument_group("sampling")
@@ -108,4 +158,6 @@ def register(commands: Any, loading: argparse.ArgumentParser) -> None:
     sampling.add_argument("--figures", metavar="DIR", help="write corner and trace plots (PNG) here")
     sampling.add_argument("--report", metavar="DIR", help="write an HTML report with the posterior into DIR")
     sampling.add_argument("--json", action="store_true", help="print JSON instead of a table")
-    parser.set_defaults(handler=_cmd_sample)
+    parser.set_defaults(handler=_cmd_sample, parser=parser)
+    defaults = vars(parser.parse_args(["FILE"]))
+    parser.set_defaults(defaults={name: value for name, value in defaults.items() if name != "defaults"})

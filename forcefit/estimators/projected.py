@@ -326,6 +326,27 @@ def _derived(model: ProjectedOrbitModel, vector: FloatArray, branch: float, radi
     return values
 
 
+def physical_values(fit: ProjectedFit, vector: FloatArray) -> dict[str, float]:
+    """The physical numbers of a parameter vector of ``fit.model``, as the fit derives its own.
+
+    Parameters
+    ----------
+    fit : ProjectedFit
+        Its model, node branch and reference radius fix the reading.
+    vector : ndarray, shape (n_params,)
+        In the order of ``fit.model.names``.
+
+    Returns
+    -------
+    dict
+        ``inclination`` and ``node`` (deg), the true ``strength`` (L**(1-n) T**-2),
+        ``force_at_reference``, ``angular_momentum``, ``strength_per_h2`` and ``scale``; with the
+        exponent held at -2, the Kepler elements too (`kepler_elements`).
+    """
+    kepler = "exponent" not in fit.parameter_names and fit.exponent == -2.0
+    return _derived(fit.model, np.asarray(vector, dtype=float), fit.branch, fit.reference_radius, kepler)
+
+
 def _propagate(function: Callable[[FloatArray], dict[str, float]], vector: FloatArray, columns: list[int],
                steps: FloatArray, covariance: FloatArray, periods: Mapping[str, float]) -> dict[str, float]:
     """Standard errors of derived numbers by the delta method: central differences of
@@ -571,9 +592,18 @@ def _require_resolved_excursion(track: Track, model: ProjectedOrbitModel, vector
             "seen at an angle, looks like any other, so the exponent cannot be read from this path.")
 
 
+TURN_SAMPLES = 4096
+"""Times at which the fitted orbit is followed to count its turns: the epochs alone may be
+years apart, far more than the half turn an unwrapped angle can tell."""
+
+
 def _turns(model: ProjectedOrbitModel, vector: FloatArray) -> float:
-    """Turns the fitted orbit sweeps about the centre between the first and last epochs."""
-    position, _, ok = model.canonical(vector[None, :])
+    """Turns the fitted orbit sweeps about the centre between the first and last epochs, followed
+    at TURN_SAMPLES even times (and the epochs) however sparse the epochs are."""
+    times = model.position_times
+    dense = np.union1d(np.linspace(times[0], times[-1], TURN_SAMPLES), times)
+    followed = replace(model, position_times=dense, velocity_times=np.empty(0))
+    position, _, ok = followed.canonical(vector[None, :])
     if not ok[0]:
         return math.nan
     angle = np.unwrap(np.arctan2(position[0, :, 1], position[0, :, 0]))
@@ -686,7 +716,8 @@ def _result(data: Astrometry, problem: _Problem, solution: _Solution, branch: fl
         angular_momentum=elements["angular_momentum"], fitted_positions=prediction.positions[0],
         fitted_velocities=prediction.radial_velocities[0], branch_chi2=branch_chi2,
         parallax=parallax[0], parallax_stderr=parallax[1], correlation_time=solution.correlation_time,
-        white_stderrs=solution.white_stderrs or {})
+        white_stderrs=solution.white_stderrs or {}, observed=problem.observed,
+        whitening=problem.weights.positions, velocity_sigma=problem.weights.velocities, branch=branch)
 
 
 def _noise_level(problem: _Problem) -> float:

@@ -585,6 +585,18 @@ class ProjectedFit(LawFit):
         The fitted orbit on the sky at the epochs (L); read-only.
     fitted_velocities : ndarray, shape (n_velocities,)
         The fitted radial velocities (empty without); read-only.
+    observed : ndarray, shape (n_observations,)
+        What was fitted, in ``model.observe``'s order: x, y of each epoch, then the radial
+        velocities (L, and the velocities' unit); read-only.
+    whitening : ndarray, shape (n_points, 2, 2)
+        Each position's inverse Cholesky factor of its error ellipse at the fit's noise scale
+        (as given, or as the residuals showed it; 1/L): W (observed - predicted) is in units
+        of the errors; read-only.
+    velocity_sigma : ndarray, shape (n_velocities,)
+        The radial velocities' errors (their unit); read-only.
+    branch : float
+        +1 when the node is the one in [0, 180) deg, -1 when radial velocities chose the one
+        180 deg on (`forcefit.dynamics.sky.plane_state`).
     """
 
     model: ProjectedOrbitModel
@@ -613,6 +625,10 @@ class ProjectedFit(LawFit):
     parallax_stderr: float = NAN
     correlation_time: float = 1.0
     white_stderrs: Mapping[str, float] = field(default_factory=dict)
+    observed: FloatArray = field(default_factory=lambda: np.empty(0))
+    whitening: FloatArray = field(default_factory=lambda: np.empty((0, 2, 2)))
+    velocity_sigma: FloatArray = field(default_factory=lambda: np.empty(0))
+    branch: float = 1.0
 
     def __post_init__(self) -> None:
         super().__post_init__()
@@ -627,6 +643,9 @@ class ProjectedFit(LawFit):
         object.__setattr__(self, "branch_chi2", tuple(float(v) for v in self.branch_chi2))
         object.__setattr__(self, "fitted_positions", frozen_array(self.fitted_positions))
         object.__setattr__(self, "fitted_velocities", frozen_array(self.fitted_velocities))
+        for name in ("observed", "whitening", "velocity_sigma"):
+            object.__setattr__(self, name, frozen_array(getattr(self, name)))
+        object.__setattr__(self, "branch", float(self.branch))
 
     @property
     def vector(self) -> FloatArray:

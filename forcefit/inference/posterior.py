@@ -33,7 +33,7 @@ import pandas as pd
 from .._types import FloatArray
 from ..dynamics.orbit_model import OrbitModel, observed
 from ..errors import FitError, InputError
-from ..estimators.result import LawFit, OrbitFit
+from ..estimators.result import LawFit, OrbitFit, ProjectedFit
 from ..formatting import estimate, interval
 from ..units import strength_unit
 
@@ -60,6 +60,7 @@ DEFAULT_BOUNDS: Mapping[str, tuple[float, float]] = {
     "exponent": (-20.0, 20.0),
     "drag": (0.0, math.inf),
     "log_noise_scale": (-10.0, 10.0),
+    "parallax": (0.0, math.inf),
 }
 """Physical bounds applied unless the caller gives a prior for the parameter."""
 
@@ -329,8 +330,9 @@ def sample_posterior(
 
     Parameters
     ----------
-    fit : OrbitFit
-        A fit from `fit_orbit`; its least-squares covariance places the walkers.
+    fit : OrbitFit or ProjectedFit
+        A fit from `fit_orbit`, or from `fit_projected` (then `sample_projected` runs); its
+        least-squares covariance places the walkers.
     walkers : int, optional
         Ensemble size; default max(32, 2 x parameters + 2).
     max_steps : int
@@ -339,7 +341,7 @@ def sample_posterior(
         Shortest run, converged or not (for tests and for resuming).
     priors : mapping, optional
         Per parameter ("uniform", low, high) or ("normal", mean, sd); other parameters
-        get flat priors within physical bounds (n in [-20, 20], drag >= 0).
+        get flat priors within physical bounds (n in [-20, 20], drag >= 0, parallax > 0).
     noise : {"known", "fit"}, optional
         Take sigma as given, or sample a noise scale factor too (default: "known" when
         the tracks carry sigma, else "fit").
@@ -366,8 +368,14 @@ def sample_posterior(
     -------
     Posterior
     """
+    if isinstance(fit, ProjectedFit):
+        from .projected_posterior import sample_projected
+
+        return sample_projected(fit, walkers=walkers, max_steps=max_steps, min_steps=min_steps,
+                                priors=priors, noise=noise, correlated=correlated, moves=moves,
+                                progress=progress, rng=rng, save=save, resume=resume)
     if not isinstance(fit, OrbitFit):
-        raise InputError("sampling needs a fit from fit_orbit (the orbit method); "
+        raise InputError("sampling needs a fit from fit_orbit (the orbit method) or fit_projected; "
                          f"this one is a {fit.method} fit.")
     noise = noise or ("known" if fit.sigma_known else "fit")
     problem, best, covariance = _problem(fit, noise, dict(priors or {}),
@@ -534,12 +542,18 @@ def expected_steps(tau: float, done: int, cap: int) -> int:
     return int(min(cap, max(wanted, done + CHECK_EVERY)))
 
 
-def _collect(sampler: emcee.EnsembleSampler, problem: _Problem, fit: OrbitFit, converged: bool,
-             reason: str) -> Posterior:
+def kept_chain(sampler: emcee.EnsembleSampler) -> tuple[FloatArray, FloatArray, int, int]:
+    """The chain that counts: burn-in (two autocorrelation times, at most half the run) dropped
+    and thinned by half the shortest one; returns it flat, with tau, the burn-in and the thinning."""
     tau = sampler.get_autocorr_time(tol=0)
     burn_in = min(int(2 * np.max(tau)), sampler.iteration // 2)
     thin = max(1, int(0.5 * np.min(tau)))
-    chain = sampler.get_chain(discard=burn_in, thin=thin, flat=True)
+    return sampler.get_chain(discard=burn_in, thin=thin, flat=True), tau, burn_in, thin
+
+
+def _collect(sampler: emcee.EnsembleSampler, problem: _Problem, fit: OrbitFit, converged: bool,
+             reason: str) -> Posterior:
+    chain, tau, burn_in, thin = kept_chain(sampler)
     samples = pd.DataFrame(chain, columns=list(problem.names))
     model = problem.model
     exponent = samples["exponent"] if "exponent" in samples else problem.template[0]
