@@ -143,6 +143,14 @@ def test_four_years_of_mars_give_inverse_square_and_the_suns_gm(write):
     assert comma.diagnostics["correlation"].passed is False
 
 
+@pytest.mark.parametrize("layout", ["comma", "labelled"])
+def test_a_header_without_its_output_type_line_still_reads(write, layout):
+    text = horizons_text(layout, days=50.0).replace("Output type     : GEOMETRIC cartesian states\n", "")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ForcefitWarning)
+        assert load_track(write("short_header.txt", text)).n_points == 11
+
+
 def test_a_table_about_a_barycentre_is_read_with_a_warning(write):
     path = write("bary.txt", horizons_text(days=100.0, centre="Solar System Barycenter (0)"))
     with pytest.warns(ForcefitWarning, match="Solar System Barycenter.*not about a body"):

@@ -71,3 +71,30 @@ def test_a_wide_swing_is_corrected_in_full_not_to_first_order():
     assert abs(corrected.omega_squared - G / length) < 3 * corrected.omega_squared_stderr
     assert abs(corrected.exponent - 1.0) < 3 * corrected.exponent_stderr
     assert corrected.omega_squared_stderr < 2e-5 * G / length      # a precise test of g
+
+
+def test_g_is_printed_in_si_whatever_the_track_units(swing):
+    # the same swing in mm and ms: g/L in s^-2 and g in m/s^2, as for the track in m and s
+    track, fit = swing
+    corrected = pendulum_correction(fit, track, length=2.0)
+    scaled = Track(t=np.asarray(track.t) * 1e3, x=np.asarray(track.x) * 1e3, y=np.asarray(track.y) * 1e3,
+                   length_unit="mm", time_unit="ms")
+    in_mm = pendulum_correction(fit_orbit(scaled), scaled, length=2000.0)
+    rows = {row.label: row for row in in_mm.rows()}
+    assert rows["g"].unit.startswith("m/s^2") and rows["g / L"].unit == "s^-2"
+    assert float(rows["g"].text.split(" ± ")[0]) == pytest.approx(corrected.gravity, rel=1e-5)
+
+
+def test_notes_say_what_the_user_may_have_got_wrong(swing):
+    track, fit = swing
+    # the Earth's rotation (left out here) moves n by up to 4 Omega_E / omega: 1.3e-4 for L = 2 m
+    # (a rotating frame turns a Hooke ellipse by Omega P per period; common practice)
+    notes = pendulum_correction(fit, track, length=2.0).notes
+    assert any("turns with the Earth" in note and "--latitude" in note for note in notes)
+    turning = fit_orbit(track, rotation_rate=-5.4e-5)
+    assert not any("turns with the Earth" in note
+                   for note in pendulum_correction(turning, track, length=2.0).notes)
+    # times in ms read as seconds: g comes out a million times too small, and the note says why
+    slow = Track(t=np.asarray(track.t) * 1e3, x=track.x, y=track.y, length_unit="m", time_unit="s")
+    notes = pendulum_correction(fit_orbit(slow), slow, length=2.0).notes
+    assert len(notes) == 1 and "far from the Earth's 9.8 m/s^2" in notes[0] and "ms read as s" in notes[0]

@@ -26,13 +26,14 @@ import numpy as np
 
 from .._json import json_safe
 from .._types import Row
+from ..dynamics.laws import EARTH_ROTATION_RATE
 from ..dynamics.simulate import spherical_pendulum_states
 from ..errors import FitError, InputError
 from ..estimators.orbit import fit_orbit
 from ..estimators.result import OrbitFit
 from ..formatting import measurement
 from ..track import Track
-from ..units import PIXEL, strength_unit
+from ..units import PIXEL, length_factor, strength_unit, time_factor
 
 MAX_ITERATIONS = 8
 """Most refinements of the ideal pendulum's g/L and state (two to four suffice up to a/L = 0.3)."""
@@ -73,20 +74,34 @@ class PendulumCorrection:
     length_unit: str
     time_unit: str
     length_stderr: float = 0.0
+    notes: tuple[str, ...] = ()
+
+    def _si(self) -> tuple[float, float] | None:
+        """Factors to metres and to seconds, or None when the units are not lengths and times."""
+        try:
+            return length_factor(self.length_unit, "m"), time_factor(self.time_unit, "s")
+        except InputError:
+            return None
 
     def rows(self) -> list[Row]:
-        """The correction as rows with units."""
+        """The correction as rows with units (g/L in s^-2 and g in m/s^2 when the track's units
+        convert, else in its own)."""
+        si = self._si()
+        per_time, per_g = (1.0, 1.0) if si is None else (1.0 / si[1] ** 2, si[0] / si[1] ** 2)
+        omega_unit = strength_unit(self.length_unit, self.time_unit, 1.0) if si is None else "s^-2"
+        g_unit = f"{self.length_unit} {self.time_unit}^-2" if si is None else "m/s^2"
         return [
             Row("ideal pendulum of this swing", f"n = {self.ideal_exponent:.6f}, "
                                                 f"omega^2 x {self.ideal_strength_ratio:.6f}",
                 "(what the fit finds on the exact motion)"),
             Row("exponent, finite amplitude removed",
                 measurement(self.exponent, self.exponent_stderr)),
-            Row("g / L", measurement(self.omega_squared, self.omega_squared_stderr),
-                strength_unit(self.length_unit, self.time_unit, 1.0)),
-            Row("g", measurement(self.gravity, self.gravity_stderr),
-                f"{self.length_unit} {self.time_unit}^-2 (with L = "
+            Row("g / L", measurement(self.omega_squared * per_time, self.omega_squared_stderr * per_time),
+                omega_unit),
+            Row("g", measurement(self.gravity * per_g, self.gravity_stderr * per_g),
+                f"{g_unit} (with L = "
                 f"{measurement(self.length, self.length_stderr or None, self.length_unit)})"),
+            *(Row("note", note) for note in self.notes),
         ]
 
     def to_text(self) -> str:
@@ -163,11 +178,41 @@ def pendulum_correction(
     exponent = fit.exponent - (model.exponent - 1.0)
     corrected, corrected_se = omega2 / ratio, omega2_se / ratio
     return PendulumCorrection(
+        notes=_notes(fit, track, corrected * length, length),
         length=float(length), ideal_exponent=model.exponent, ideal_strength_ratio=ratio, exponent=exponent,
         exponent_stderr=fit.exponent_stderr, omega_squared=corrected, omega_squared_stderr=corrected_se,
         gravity=corrected * length, length_stderr=float(length_stderr),
         gravity_stderr=math.hypot(corrected_se * length, corrected * length_stderr),
         length_unit=track.length_unit, time_unit=track.time_unit)
+
+
+def _notes(fit: OrbitFit, track: Track, gravity: float, length: float) -> tuple[str, ...]:
+    """What the user may have got wrong: a g far from the Earth's (the time or length unit), an
+    Earth's rotation left out that moves n beyond its errors, a mirrored picture in a turning lab."""
+    notes: list[str] = []
+    try:
+        metre, second = length_factor(track.length_unit, "m"), time_factor(track.time_unit, "s")
+    except InputError:
+        return ()
+    g = gravity * metre / second**2
+    if not 2.0 < g < 50.0:
+        return (
+            f"g = {g:.3g} m/s^2 is far from the Earth's 9.8 m/s^2: check the time unit (ms "
+            f"read as s?), the length unit and the scale ({track.time_unit} and "
+            f"{track.length_unit} were used).",)
+    omega = math.sqrt(max(gravity / length, 0.0))                 # rad per time unit
+    turning = fit.model.fit_rotation or fit.model.rotation_rate != 0.0
+    shift = 4.0 * EARTH_ROTATION_RATE * second / omega if omega > 0 else 0.0
+    if not turning and shift > 0.5 * fit.exponent_stderr:
+        notes.append(f"a camera fixed in the lab turns with the Earth (Omega_E sin(latitude)), which "
+                     f"moves n by up to {shift:.2g} ({shift / fit.exponent_stderr:.2g} standard errors) "
+                     "and g with it; give the latitude (--latitude) to take it out.")
+    calibration = track.metadata.get("calibration")
+    if turning and isinstance(calibration, dict) and not calibration.get("flip_y", True):
+        notes.append("the positions are image pixels calibrated without flipping y: image rows count "
+                     "downwards, so the picture is mirrored and the lab's rotation runs the wrong "
+                     "way; give --flip-y if y pointed down in the video.")
+    return tuple(notes)
 
 
 def _tolerance(omega2: float, omega2_se: float, noise: float) -> np.ndarray:

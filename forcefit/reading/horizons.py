@@ -102,7 +102,11 @@ def read_horizons(text: str, source: str) -> HorizonsTable:
     header = {key.strip().lower(): value.strip() for key, _, value in
               (line.partition(":") for line in lines[:start] if ":" in line)}
     kind = header.get("output type", "") + " " + header.get("ephemeris", "")
-    if "cartesian" not in kind.lower() and not _has_positions(lines[start + 1:end]):
+    column_line = next((lines[i] for i in range(start - 1, -1, -1)
+                        if lines[i].strip() and not set(lines[i].strip()) <= {"*"}), "")
+    names = {cell.strip().upper() for cell in column_line.split(",")}
+    if ("cartesian" not in kind.lower() and not {"X", "Y", "Z"} <= names
+            and not _has_positions(lines[start + 1:end])):
         raise InputError(
             f"{source}: a Horizons table without x, y, z positions (lines {start + 2}-{end}); it looks "
             "like an observer (RA/Dec) or orbital-elements table. Ask Horizons for a vector table "
@@ -117,8 +121,6 @@ def read_horizons(text: str, source: str) -> HorizonsTable:
     if not body:
         raise InputError(f"{source}: the Horizons table between lines {start + 1} and {end + 1} is "
                          "empty. Widen the time span or shorten the step.")
-    column_line = next((lines[i] for i in range(start - 1, -1, -1)
-                        if lines[i].strip() and not set(lines[i].strip()) <= {"*"}), "")
     if "," in body[0][1]:
         epochs, positions, rows, scale = _comma_rows(body, column_line, source)
     else:
