@@ -110,3 +110,14 @@ def test_without_timestamps_only_the_deviation_is_given():
     assert math.isnan(law.strength) and law.strength_unit == "" and math.isnan(law.gravity)
     assert law.rows()[0].text == "not determined (no timestamps)"
     assert law.delta == pytest.approx(-0.01) and law.significance == pytest.approx(5.0)
+
+
+def test_a_fit_that_failed_its_checks_is_no_test_of_the_law(screened):
+    # a screened force F = exp(-r/lambda)/r^2 is no power law: the fit's checks fail, so however
+    # many standard errors n lies from -2, the verdict must not read as a measurement of it
+    fit = fit_orbit(screened())
+    assert not fit.passed
+    deviation = deviation_from(fit)
+    assert deviation.significance > 3
+    assert "not a test of the inverse-square law" in deviation.verdict()
+    assert "differs from" not in deviation.verdict() and deviation.to_dict()["fit_passed"] is False

@@ -78,6 +78,8 @@ class Deviation:
     precession_per_century, precession_per_century_stderr : float
         The same in seconds of arc per Julian century, when the time unit is a time.
     time_unit : str or None
+    fit_passed : bool
+        Whether the fit passed its checks; when not, the verdict says the law was not tested.
     """
 
     nominal: float
@@ -103,6 +105,7 @@ class Deviation:
     precession_per_century: float = math.nan
     precession_per_century_stderr: float = math.nan
     time_unit: str | None = None
+    fit_passed: bool = True
 
     @property
     def name(self) -> str:
@@ -119,6 +122,9 @@ class Deviation:
         size = significance(self.delta, self.delta_stderr)
         if not math.isfinite(self.p_value):
             return size
+        if not self.fit_passed:
+            return (f"({size}, {p_phrase(self.p_value)}): not a test of {self.name}, for the fit "
+                    "failed its checks and its errors may not hold")
         word = "consistent with" if self.consistent else "differs from"
         return f"({size}, {p_phrase(self.p_value)}): {word} {self.name}"
 
@@ -203,6 +209,7 @@ def deviation_from(
     size = abs(delta) / error if error > 0 else (math.inf if delta else 0.0)
     common: dict[str, Any] = {"nominal": nominal, "delta": delta, "delta_stderr": error, "significance": size,
               "p_value": float(2.0 * stats.norm.sf(size)), "time_unit": fit.time_unit,
+              "fit_passed": bool(fit.passed),
               **_strength_at_nominal(fit, nominal, pendulum_length, pendulum_length_stderr)}
     if not isinstance(fit, OrbitFit) or nominal != NEWTON:
         return Deviation(**common)
