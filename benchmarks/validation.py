@@ -333,6 +333,10 @@ def scenarios() -> list[Scenario]:
                                               (-2.0, 80.0, True, ("projected",))):
         add(Scenario("projected", f"n={n:g} i={inclination:g} uneven" + ("" if given else ", no sigma"),
                      projected(n, inclination=inclination, errors_given=given), estimators))
+    for ratio in (0.1, 0.2):     # wide swings: the finite-amplitude correction must hold in full
+        add(Scenario("pendulum", f"a/L={ratio:g}, length given",
+                     pendulum(amplitude=ratio * 1.2, length=1.2, noise=2e-4, length_given=True),
+                     ("pendulum",)))
     return cells
 
 
