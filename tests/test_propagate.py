@@ -137,3 +137,51 @@ def test_orbit_into_the_centre_is_marked_failed():
     batch = propagate_batch(np.linspace(0, 5, 50), [1.0, 0.0], [0.0, 0.0], exponent=-2.0, strength=1.0,
                             epoch=0.0)
     assert not batch.ok[0] and np.isnan(batch.position[0]).all()
+
+
+@pytest.mark.parametrize("eccentricity", [0.5, 0.9])
+def test_dense_output_matches_keplers_equation(eccentricity):
+    # As test_batch_matches_keplers_equation (Murray & Dermott 1999, §2.4), with samples far
+    # denser than the steps, read off the continuous extension: the same bound.
+    a, mu = 1.0, 1.0
+    t = np.linspace(0.0, 5 * 2 * np.pi, 6000)
+    epoch = t[3000]
+    anomaly = epoch
+    for _ in range(60):
+        anomaly -= (anomaly - eccentricity * np.sin(anomaly) - epoch) / (1 - eccentricity * np.cos(anomaly))
+    factor = 1.0 / (1 - eccentricity * np.cos(anomaly))
+    velocity = factor * np.array([-np.sin(anomaly), np.sqrt(1 - eccentricity**2) * np.cos(anomaly)])
+    position = _kepler_positions(np.array([epoch]), a, eccentricity, mu)[0]
+    batch = propagate_batch(t, position, velocity, exponent=-2.0, strength=mu, epoch=epoch, dense=True)
+    assert batch.ok[0]
+    assert np.abs(batch.position[0] - _kepler_positions(t, a, eccentricity, mu)).max() < 1e-9 * 2 * a
+
+
+def test_dense_output_of_a_densely_filmed_pendulum_matches_the_oscillator():
+    # x = A cos(wt), y = B sin(wt) with w^2 = k (common practice): 30 samples per second over
+    # 13 periods, at the sampler's tolerance (1e-10), within 1e-8 of the amplitude; positions
+    # and velocities, forwards and backwards from an epoch between samples.
+    k = 0.89
+    w = np.sqrt(k)
+    t = np.arange(2631) / 30.0
+    epoch = 43.71
+    phase = w * epoch
+    start = [0.55 * np.cos(phase), 0.2 * np.sin(phase)]
+    speed = [-0.55 * w * np.sin(phase), 0.2 * w * np.cos(phase)]
+    batch = propagate_batch(t, start, speed, exponent=1.0, strength=k, epoch=epoch, rtol=1e-10,
+                            dense=True)
+    np.testing.assert_allclose(batch.position[0, :, 0], 0.55 * np.cos(w * t), atol=1e-8 * 0.55)
+    np.testing.assert_allclose(batch.position[0, :, 1], 0.2 * np.sin(w * t), atol=1e-8 * 0.55)
+    np.testing.assert_allclose(batch.velocity[0, :, 0], -0.55 * w * np.sin(w * t), atol=1e-8 * 0.55)
+
+
+def test_the_parallel_batch_is_the_serial_one_and_marks_failures():
+    t = np.linspace(-3.0, 6.0, 300)
+    starts = np.array([[1.0, 0.2], [2.0, 0.0], [1.0, 0.0]])
+    speeds = np.array([[0.1, 1.1], [0.0, 0.5], [0.0, 0.0]])            # the last falls in
+    options = {"exponent": [-1.5, 1.0, -2.0], "strength": [1.3, 0.5, 1.0], "epoch": 0.0}
+    for dense in (False, True):
+        serial = propagate_batch(t, starts, speeds, dense=dense, **options)
+        parallel = propagate_batch(t, starts, speeds, dense=dense, parallel=True, **options)
+        np.testing.assert_array_equal(parallel.position, serial.position)
+        assert list(parallel.ok) == [True, True, False] and np.isnan(parallel.position[2]).all()

@@ -6,12 +6,20 @@ interpolation error is added). The Butcher tableau and the error estimate are th
 of DOP853 (Hairer, Norsett & Wanner 1993, section II.10); forcefit reads the coefficient
 tables from the public `scipy.integrate.DOP853` solver class (its ``A``, ``B``, ``C``, ``E3``
 and ``E5``, already cut to its ``n_stages``) rather than retyping them.
+
+On request (``dense``) an orbit instead takes the steps its error control wants and reads
+the sample times off DOP853's seventh-order continuous extension (Hairer, Norsett & Wanner
+1993, section II.6 and II.10; the class's ``A_EXTRA``, ``C_EXTRA`` and ``D``, evaluated as
+scipy's ``Dop853DenseOutput`` does): far cheaper when the samples are much closer than the
+steps (a pendulum filmed at 30 frames per second), at an interpolation error of the order
+of the step tolerance. ``integrate_batch_parallel`` spreads the orbits of a batch over the
+processor's cores.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
 from scipy.integrate import DOP853
 
 STAGES = int(DOP853.n_stages)
@@ -20,6 +28,14 @@ B = np.ascontiguousarray(DOP853.B, dtype=np.float64)
 C = np.ascontiguousarray(DOP853.C, dtype=np.float64)
 E3 = np.ascontiguousarray(DOP853.E3, dtype=np.float64)
 E5 = np.ascontiguousarray(DOP853.E5, dtype=np.float64)
+A_EXTRA = np.ascontiguousarray(DOP853.A_EXTRA, dtype=np.float64)
+C_EXTRA = np.ascontiguousarray(DOP853.C_EXTRA, dtype=np.float64)
+D = np.ascontiguousarray(DOP853.D, dtype=np.float64)
+EXTENDED = STAGES + 1 + C_EXTRA.size
+"""Stages of a step with its continuous extension: the step's, the derivative at its end and
+the extension's own."""
+POWER = 3 + D.shape[0]
+"""Terms of the continuous extension's polynomial in the step fraction."""
 
 SAFETY, MIN_FACTOR, MAX_FACTOR = 0.9, 0.2, 10.0
 BASE_STEPS, STEPS_PER_SAMPLE = 50_000, 500
@@ -113,6 +129,27 @@ def step_error(y, y_new, k, atol, rtol, h, n_state):  # type: ignore[no-untyped-
     return abs(h) * err5 / np.sqrt((err5 + 0.01 * err3) * n_state)
 
 
+@njit(cache=True, inline="always")
+def _take_step(y, t, h, k, y_new, stage, exponent, strength, forces, table_t, table_xy, rtol, atol):  # type: ignore[no-untyped-def]
+    """One DOP853 step of size h from (t, y) with k[0] = f(t, y): fills y_new, k[1:STAGES + 1]
+    and returns the step's scaled error."""
+    n_state = 4
+    for s in range(1, STAGES):
+        for i in range(n_state):
+            acc = 0.0
+            for j in range(s):
+                acc += A[s, j] * k[j][i]
+            stage[i] = y[i] + h * acc
+        _derivative(stage, t + C[s] * h, k[s], exponent, strength, forces, table_t, table_xy)
+    for i in range(n_state):
+        acc = 0.0
+        for j in range(STAGES):
+            acc += B[j] * k[j][i]
+        y_new[i] = y[i] + h * acc
+    _derivative(y_new, t + h, k[STAGES], exponent, strength, forces, table_t, table_xy)
+    return step_error(y, y_new, k, atol, rtol, h, n_state)
+
+
 @njit(cache=True)
 def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy, rtol, atol, out):  # type: ignore[no-untyped-def]
     """Integrate from times[start]'s epoch state y0 through times[order] (one direction)."""
@@ -140,20 +177,8 @@ def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy,
                 if steps > limit or h_abs < 1e-15 * max(abs(t), 1.0):
                     return FAILED
                 h = min(h_abs, abs(target - t)) * direction
-                for s in range(1, STAGES):
-                    for i in range(n_state):
-                        acc = 0.0
-                        for j in range(s):
-                            acc += A[s, j] * k[j][i]
-                        stage[i] = y[i] + h * acc
-                    _derivative(stage, t + C[s] * h, k[s], exponent, strength, forces, table_t, table_xy)
-                for i in range(n_state):
-                    acc = 0.0
-                    for j in range(STAGES):
-                        acc += B[j] * k[j][i]
-                    y_new[i] = y[i] + h * acc
-                _derivative(y_new, t + h, k[STAGES], exponent, strength, forces, table_t, table_xy)
-                error = step_error(y, y_new, k, atol, rtol, h, n_state)
+                error = _take_step(y, t, h, k, y_new, stage, exponent, strength, forces, table_t,
+                                   table_xy, rtol, atol)
                 if error < 1.0:
                     factor = MAX_FACTOR if error == 0.0 else min(MAX_FACTOR, SAFETY * error ** (-1.0 / 8.0))
                     accepted = True
@@ -174,25 +199,153 @@ def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy,
     return OK
 
 
-@njit(cache=True)
-def integrate_batch(times, epoch, states, exponent, strength, forces, table_t, table_xy, rtol, atol, out,  # type: ignore[no-untyped-def]
-                    status):
-    """Fill out[b, i, :] with the state of orbit b at times[i]; status[b] = OK or FAILED.
+@njit(cache=True, inline="always")
+def _extension(y, y_new, t, h, k, stage, poly, exponent, strength, forces, table_t, table_xy):  # type: ignore[no-untyped-def]
+    """DOP853's continuous extension of the step from (t, y) to y_new: the extra stages into
+    k[STAGES + 1:] and the polynomial's coefficients into poly (as scipy's DOP853)."""
+    n_state = 4
+    for e in range(C_EXTRA.size):
+        s = STAGES + 1 + e
+        for i in range(n_state):
+            acc = 0.0
+            for j in range(s):
+                acc += A_EXTRA[e, j] * k[j][i]
+            stage[i] = y[i] + h * acc
+        _derivative(stage, t + C_EXTRA[e] * h, k[s], exponent, strength, forces, table_t, table_xy)
+    for i in range(n_state):
+        delta = y_new[i] - y[i]
+        poly[0, i] = delta
+        poly[1, i] = h * k[0][i] - delta
+        poly[2, i] = 2.0 * delta - h * (k[STAGES][i] + k[0][i])
+        for m in range(D.shape[0]):
+            acc = 0.0
+            for j in range(EXTENDED):
+                acc += D[m, j] * k[j][i]
+            poly[3 + m, i] = h * acc
 
-    ``forces[b]`` holds orbit b's extra forces (columns as in N_FORCES); ``table_t`` and
-    ``table_xy`` the perturbing body's positions (empty when there is none)."""
-    n_times = times.size
-    first_after = 0
-    while first_after < n_times and times[first_after] < epoch:
-        first_after += 1
-    forward = np.arange(first_after, n_times)
-    backward = np.arange(first_after - 1, -1, -1)
-    for b in range(states.shape[0]):
+
+@njit(cache=True)
+def _leg_dense(times, order, start, y0, exponent, strength, forces, table_t, table_xy, rtol, atol, out):  # type: ignore[no-untyped-def]
+    """As `_leg`, with free steps and the sample times read off the continuous extension."""
+    n_state = 4
+    k = np.empty((EXTENDED, n_state))
+    poly = np.empty((POWER, n_state))
+    y = y0.copy()
+    y_new = np.empty(n_state)
+    stage = np.empty(n_state)
+    t = start
+    _derivative(y, t, k[0], exponent, strength, forces, table_t, table_xy)
+    speed = np.sqrt(y[2] ** 2 + y[3] ** 2)
+    accel = np.sqrt(k[0][2] ** 2 + k[0][3] ** 2)
+    radius = np.sqrt(y[0] ** 2 + y[1] ** 2)
+    h_abs = 0.01 * min(radius / max(speed, 1e-300), np.sqrt(radius / max(accel, 1e-300)))
+    steps = 0
+    limit = BASE_STEPS + STEPS_PER_SAMPLE * order.size
+    closest2 = (CLOSEST * radius) ** 2
+    position = 0
+    while position < order.size and times[order[position]] == t:
+        for i in range(n_state):
+            out[order[position], i] = y[i]
+        position += 1
+    if position == order.size:
+        return OK
+    last = times[order[order.size - 1]]
+    direction = 1.0 if last > t else -1.0
+    while position < order.size:
+        steps += 1
+        if steps > limit or h_abs < 1e-15 * max(abs(t), 1.0):
+            return FAILED
+        final = abs(last - t) <= h_abs * (1 + 1e-12)
+        h = (last - t) if final else h_abs * direction
+        error = _take_step(y, t, h, k, y_new, stage, exponent, strength, forces, table_t, table_xy,
+                           rtol, atol)
+        if error >= 1.0:
+            h_abs = abs(h) * max(MIN_FACTOR, SAFETY * error ** (-1.0 / 8.0))
+            continue
+        factor = MAX_FACTOR if error == 0.0 else min(MAX_FACTOR, SAFETY * error ** (-1.0 / 8.0))
+        t_new = last if final else t + h
+        extended = False
+        while position < order.size:
+            index = order[position]
+            target = times[index]
+            if final and position == order.size - 1 or target == t_new:
+                for i in range(n_state):
+                    out[index, i] = y_new[i]
+            elif (target - t_new) * direction < 0.0:
+                if not extended:
+                    _extension(y, y_new, t, h, k, stage, poly, exponent, strength, forces, table_t,
+                               table_xy)
+                    extended = True
+                x = (target - t) / h
+                for i in range(n_state):
+                    acc = 0.0
+                    for m in range(POWER - 1, -1, -1):
+                        acc += poly[m, i]
+                        acc *= x if (POWER - 1 - m) % 2 == 0 else 1.0 - x
+                    out[index, i] = y[i] + acc
+            else:
+                break
+            position += 1
+        h_abs = abs(h) * factor
+        t = t_new
+        for i in range(n_state):
+            y[i] = y_new[i]
+            k[0][i] = k[STAGES][i]
+        if y[0] * y[0] + y[1] * y[1] < closest2 or not np.isfinite(y[0] + y[1]):
+            return FAILED
+    return OK
+
+
+@njit(cache=True, inline="always")
+def _orbit(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t, table_xy,  # type: ignore[no-untyped-def]
+           rtol, atol, dense, out, status):
+    """Orbit b of a batch, forwards and backwards from the epoch."""
+    if dense:
+        code = _leg_dense(times, forward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
+                          table_xy, rtol, atol[b], out[b])
+        if code == OK:
+            code = _leg_dense(times, backward, epoch, states[b], exponent[b], strength[b], forces[b],
+                              table_t, table_xy, rtol, atol[b], out[b])
+    else:
         code = _leg(times, forward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
                     table_xy, rtol, atol[b], out[b])
         if code == OK:
             code = _leg(times, backward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
                         table_xy, rtol, atol[b], out[b])
-        status[b] = code
-        if code != OK:
-            out[b, :, :] = np.nan
+    status[b] = code
+    if code != OK:
+        out[b, :, :] = np.nan
+
+
+@njit(cache=True)
+def _split(times, epoch):  # type: ignore[no-untyped-def]
+    """The sample indices after the epoch (ascending) and before it (descending)."""
+    n_times = times.size
+    first_after = 0
+    while first_after < n_times and times[first_after] < epoch:
+        first_after += 1
+    return np.arange(first_after, n_times), np.arange(first_after - 1, -1, -1)
+
+
+@njit(cache=True)
+def integrate_batch(times, epoch, states, exponent, strength, forces, table_t, table_xy, rtol, atol, out,  # type: ignore[no-untyped-def]
+                    status, dense=False):
+    """Fill out[b, i, :] with the state of orbit b at times[i]; status[b] = OK or FAILED.
+
+    ``forces[b]`` holds orbit b's extra forces (columns as in N_FORCES); ``table_t`` and
+    ``table_xy`` the perturbing body's positions (empty when there is none); ``dense`` reads
+    the samples off the continuous extension instead of stepping onto each."""
+    forward, backward = _split(times, epoch)
+    for b in range(states.shape[0]):
+        _orbit(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t, table_xy,
+               rtol, atol, dense, out, status)
+
+
+@njit(cache=True, parallel=True)
+def integrate_batch_parallel(times, epoch, states, exponent, strength, forces, table_t, table_xy, rtol,  # type: ignore[no-untyped-def]
+                             atol, out, status, dense=False):
+    """`integrate_batch` with the orbits spread over the processor's cores."""
+    forward, backward = _split(times, epoch)
+    for b in prange(states.shape[0]):
+        _orbit(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t, table_xy,
+               rtol, atol, dense, out, status)

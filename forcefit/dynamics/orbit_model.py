@@ -36,7 +36,11 @@ DragKind = str | None
 
 @dataclass(frozen=True)
 class OrbitModel:
-    """Maps parameter vectors to predicted positions for a set of tracks."""
+    """Maps parameter vectors to predicted positions for a set of tracks.
+
+    ``rtol``, ``dense`` and ``parallel`` are passed to `propagate_batch`: the fits step onto
+    every sample; the sampler reads the samples off the continuous extension, on every core.
+    """
 
     tracks: tuple[Track, ...]
     epochs: tuple[float, ...]
@@ -47,6 +51,8 @@ class OrbitModel:
     shared_centre: bool = True
     rtol: float = BATCH_RTOL
     extra: ExtraForces | None = None
+    dense: bool = False
+    parallel: bool = False
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -107,6 +113,7 @@ class OrbitModel:
                 linear_drag=drag if self.drag == "linear" else 0.0,
                 quadratic_drag=drag if self.drag == "quadratic" else 0.0, rtol=self.rtol,
                 extra=self.extra, yukawa_alpha=alpha, centre=vectors[:, cx:cy + 1],
+                dense=self.dense, parallel=self.parallel,
             )
             ok &= batch.ok
             position = batch.position

@@ -224,6 +224,8 @@ def propagate_batch(
     yukawa_alpha: ArrayLike = 0.0,
     centre: ArrayLike = (0.0, 0.0),
     rtol: float = BATCH_RTOL,
+    dense: bool = False,
+    parallel: bool = False,
 ) -> BatchStates:
     """Integrate r'' = -k |r|**(n-1) r - c1 v - c2 |v| v for many parameter sets at once.
 
@@ -258,6 +260,12 @@ def propagate_batch(
         Where each orbit's centre sits in the coordinates of ``extra.perturber``'s table (L).
     rtol : float
         Relative tolerance of the step control.
+    dense : bool
+        Take the steps the error control wants and read the sample times off DOP853's
+        continuous extension, instead of stepping onto each: several times faster when the
+        samples are much denser than the steps, at an added error of the order of ``rtol``.
+    parallel : bool
+        Spread the orbits over the processor's cores (for large batches).
 
     Returns
     -------
@@ -271,7 +279,7 @@ def propagate_batch(
     >>> bool(np.allclose(batch.position[:, -1], [[1.0, 0.0], [2.0, 0.0]], atol=1e-9))
     True
     """
-    from ._kernel import integrate_batch
+    from ._kernel import integrate_batch, integrate_batch_parallel
 
     times = np.ascontiguousarray(times, dtype=np.float64)
     start = np.atleast_2d(np.asarray(start, dtype=np.float64))
@@ -294,8 +302,9 @@ def propagate_batch(
     atol = rtol * np.column_stack((radius, radius, speed, speed))
     out = np.empty((n_orbits, times.size, 4))
     status = np.zeros(n_orbits, dtype=np.int64)
-    integrate_batch(times, float(epoch), states, n, k, forces, table_t, table_xy,
-                    float(rtol), np.ascontiguousarray(atol), out, status)
+    kernel = integrate_batch_parallel if parallel and n_orbits > 1 else integrate_batch
+    kernel(times, float(epoch), states, n, k, forces, table_t, table_xy, float(rtol),
+           np.ascontiguousarray(atol), out, status, bool(dense))
     return BatchStates(position=out[:, :, :2], velocity=out[:, :, 2:], ok=status == 0)
 
 

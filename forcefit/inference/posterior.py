@@ -1,8 +1,9 @@
 """Posterior sampling of an orbit fit with emcee: converged, with honest intervals.
 
 The log-probability is evaluated for all walkers at once (emcee's ``vectorize``) on the
-compiled batch propagator. Walkers start in a ball drawn from the least-squares
-covariance. The run stops by itself once the chain is longer than ``TAU_FACTOR``
+compiled batch propagator, its orbits spread over the processor's cores. Walkers start in
+a ball drawn from the least-squares covariance. The run stops by itself once the chain is
+longer than ``TAU_FACTOR``
 integrated autocorrelation times and the estimate of those times has settled (emcee's
 own autocorrelation tools), or at ``max_steps``; burn-in is discarded and the chain
 thinned from the autocorrelation time.
@@ -51,7 +52,10 @@ FIRST_GUESS = 2000
 
 SAMPLING_RTOL = 1e-10
 """Integration tolerance while sampling: orbit errors near 1e-8 of the size, far below any
-noise, at half the cost of the fitting tolerance."""
+noise, at half the cost of the fitting tolerance. While sampling, the orbits take the steps
+this tolerance wants and the samples are read off the integrator's continuous extension (no
+step per sample: several times faster on densely sampled tracks), the walkers' orbits spread
+over the processor's cores."""
 
 Prior = tuple[str, float, float]
 """("uniform", low, high) or ("normal", mean, standard deviation)."""
@@ -251,7 +255,7 @@ def _problem(
     fit: OrbitFit, noise: str, priors: Mapping[str, Prior], correlation_time: float = 1.0,
 ) -> tuple[_Problem, FloatArray, FloatArray]:
     """The log-probability, the best-fit point and the covariance to start the walkers from."""
-    model: OrbitModel = replace(fit.model, rtol=SAMPLING_RTOL)
+    model: OrbitModel = replace(fit.model, rtol=SAMPLING_RTOL, dense=True, parallel=True)
     varying = list(fit.parameter_names)
     template = np.array([fit.values[name] for name in model.names])
     best = np.array([fit.values[name] for name in varying])
