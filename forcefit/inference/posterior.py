@@ -3,9 +3,8 @@
 The log-probability is evaluated for all walkers at once (emcee's ``vectorize``) on the
 compiled batch propagator, its orbits spread over the processor's cores. Walkers start in
 a ball drawn from the least-squares covariance. The run stops by itself once the chain is
-longer than ``TAU_FACTOR``
-integrated autocorrelation times and the estimate of those times has settled (emcee's
-own autocorrelation tools), or at ``max_steps``; burn-in is discarded and the chain
+longer than ``TAU_FACTOR`` integrated autocorrelation times and the estimate of those times
+has settled (emcee's own autocorrelation tools), or at ``max_steps``; burn-in is discarded and the chain
 thinned from the autocorrelation time.
 
 References
