@@ -12,6 +12,22 @@ PLAN = {"exponent": -1.5, "strength": 1.0, "start": (1.0, 0.0), "velocity": (0.0
         "noise": 0.005}
 
 
+def test_forecast_agrees_with_the_fits_stated_errors():
+    # The Cramer-Rao bound (Fisher 1925; Rao 1945; Cramer 1946; common practice) is the inverse
+    # Fisher matrix J^T J / sigma^2 at the truth; the orbit fit states the same matrix at its
+    # estimate (sigma given, residuals independent), so the two agree to within the change of
+    # J over a few standard errors: 5% here. The scatter of replicate fits against the forecast
+    # is the slow study below.
+    forecast = forecast_precision(duration=20.0, **PLAN)
+    for seed in range(3):
+        fit = fit_orbit(simulate_orbit(duration=20.0, rng=seed, **PLAN))
+        assert fit.correlation_time == 1.0
+        assert fit.exponent_stderr == pytest.approx(forecast.exponent_stderr, rel=0.05)
+    wider = forecast_precision(duration=20.0, **{**PLAN, "noise": 2 * PLAN["noise"]})
+    assert wider.exponent_stderr == pytest.approx(2 * forecast.exponent_stderr, rel=1e-6)
+
+
+@pytest.mark.slow
 def test_forecast_agrees_with_monte_carlo_within_fifteen_percent():
     # The Cramer-Rao bound (Fisher 1925; Rao 1945; Cramer 1946; common practice) against the
     # scatter of 120 replicate fits.
