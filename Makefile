@@ -22,7 +22,7 @@ demo: $(VENV)/.installed
 	$(BIN)/forcefit demo
 
 test: $(VENV)/.installed-test
-	OPENBLAS_NUM_THREADS=1 OMP_NUM_THREADS=1 $(BIN)/python -m pytest -q -n auto --dist load
+	OPENBLAS_NUM_THREADS=1 OMP_NUM_THREADS=1 NUMBA_NUM_THREADS=1 $(BIN)/python -m pytest -q -n auto --dist load
 
 slow: $(VENV)/.installed-test
 	$(BIN)/python -m pytest -q -m slow
