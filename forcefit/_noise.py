@@ -25,7 +25,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import comb
 
 from ._types import FloatArray
 
@@ -56,8 +55,8 @@ def _differences(values: FloatArray, lag: int, parameter: FloatArray | None = No
         return np.zeros(0)
     columns = np.stack([values[j * lag: j * lag + size] for j in range(k + 1)])
     if parameter is None:
-        weights = np.array([(-1) ** j * comb(k, j) for j in range(k + 1)], dtype=float)
-        return (weights @ columns) / math.sqrt(float(comb(2 * k, k)))
+        weights = np.array([(-1) ** j * math.comb(k, j) for j in range(k + 1)], dtype=float)
+        return (weights @ columns) / math.sqrt(float(math.comb(2 * k, k)))
     where = np.asarray(parameter, dtype=float)
     nodes = np.stack([where[j * lag: j * lag + size] for j in range(k + 1)])
     nodes = (nodes - nodes[0]) / np.maximum(np.abs(nodes[-1] - nodes[0]), 1e-300)   # on [0, 1]

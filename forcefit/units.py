@@ -10,10 +10,12 @@ from __future__ import annotations
 import math
 import re
 from functools import lru_cache
-
-import pint
+from typing import TYPE_CHECKING
 
 from .errors import InputError
+
+if TYPE_CHECKING:  # pint loads on the first unit it must look up (building its registry takes a while)
+    import pint
 
 PIXEL = "px"
 _PIXEL_NAMES = frozenset({"px", "pixel", "pixels", "pix", "pxl"})
@@ -30,9 +32,17 @@ _SKY_NAMES = {**{name: symbol for symbol, name in SKY_ANGLES.items()}, **{s: s f
               "µas": "uas", "μas": "uas", "degrees": "deg", "arcminutes": "arcmin"}
 
 
+COMMON_LENGTHS = frozenset({"m", "mm", "cm", "km", "au"})
+COMMON_TIMES = frozenset({"s", "ms", "min", "h", "d", "yr"})
+"""Symbols that are already canonical: taken as they are, without building pint's registry
+(tests/test_units.py checks that pint gives each back unchanged)."""
+
+
 @lru_cache(maxsize=1)
 def registry() -> pint.UnitRegistry:
     """The shared pint registry forcefit uses for every unit."""
+    import pint
+
     return pint.UnitRegistry()
 
 
@@ -73,6 +83,8 @@ def parse_length_unit(name: str) -> str:
     text = name.strip()
     if text.lower() in _PIXEL_NAMES:
         return PIXEL
+    if text in COMMON_LENGTHS:
+        return text
     if text in _SKY_NAMES or text.lower() in _SKY_NAMES:
         return _SKY_NAMES.get(text, _SKY_NAMES.get(text.lower(), text))
     unit = _lookup(text, "[length]")
@@ -95,6 +107,8 @@ def parse_time_unit(name: str) -> str:
     if not isinstance(name, str):
         raise InputError(f"time unit {name!r} must be text such as s, ms or d.")
     text = name.strip()
+    if text in COMMON_TIMES:
+        return text
     unit = _lookup(text, "[time]")
     if unit is None:
         raise InputError(

@@ -53,3 +53,14 @@ def test_time_unit_aliases():
 def test_strength_unit_is_length_to_one_minus_n_over_time_squared(exponent, expected):
     # Dimensional analysis of F = k r^n (common practice).
     assert strength_unit("m", "s", exponent) == expected
+
+
+def test_the_common_symbols_taken_without_pint_are_pints_own():
+    # The shortcut for common symbols must answer as the registry lookup does.
+    from forcefit.units import COMMON_LENGTHS, COMMON_TIMES, _lookup
+
+    for symbol in COMMON_LENGTHS:
+        assert parse_length_unit(symbol) == symbol == f"{_lookup(symbol, '[length]'):~}".replace(" ", "")
+    for symbol in COMMON_TIMES:
+        pint_symbol = f"{_lookup(symbol, '[time]'):~}".replace(" ", "")
+        assert parse_time_unit(symbol) == symbol == ("yr" if pint_symbol == "a" else pint_symbol)

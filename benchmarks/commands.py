@@ -1,0 +1,180 @@
+"""The speed issue's command rows, each beside its reference, measured in one run.
+
+(a) ``forcefit apsides``, ``inspect`` and ``fit`` on a 2 600-point pendulum, each in a fresh
+    interpreter: the wall time, the same work done in this (warm) process, and what is left
+    (start-up) beside ``python -c "import numpy, pandas"`` -- target: start-up within 1.5 times
+    that import;
+(b) ``forcefit sample`` on a 2 631-point pendulum: the converged posterior's wall time in a
+    fresh interpreter -- target < 30 s on two cores; beside it, the same chain's steps with the
+    orbits stepped onto every sample on one core (the earlier sampler), timed on a stretch of
+    steps and scaled to the run;
+(c) ``forcefit fit`` on a 100-year Mercury-like orbit sampled every 5 days (7 300 samples,
+    centre free) -- target < 30 s; beside it, the 600-sample rosette's fit and the exponent's
+    distance from the truth in its own standard errors.
+
+Usage
+-----
+python benchmarks/commands.py            # all rows, about two minutes on two idle cores
+python benchmarks/commands.py --only a   # one row group (a, b or c)
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum
+from forcefit.estimators import fit, fit_orbit
+from forcefit.reading.loaders import load_track, save_track
+from forcefit.track import Track
+
+GAUSS_K2 = 2.959122082855911e-4
+"""Gauss's gravitational constant squared, au^3 d^-2 (IAU 1976; from memory)."""
+START_UP_TARGET = 1.5
+TARGET_SECONDS = 30.0
+CLI = [sys.executable, "-m", "forcefit.cli"]
+
+
+def _pendulum(points: int, rng: int) -> Track:
+    """An 11 m pendulum filmed from above at 30 frames per second (m, s; noise 1 mm)."""
+    return simulate_pendulum(length=11.0, gravity=9.8105, start=(0.55, 0.0), velocity=(0.0, 0.25),
+                             duration=(points - 1) / 30.0, rate=30.0, latitude=52.0, noise=1e-3, rng=rng,
+                             name="pendulum")
+
+
+def _seconds(action: Callable[[], object]) -> float:
+    start = time.perf_counter()
+    action()
+    return time.perf_counter() - start
+
+
+def _run(command: list[str]) -> float:
+    """Wall seconds of a command; exit 0 or 1 (a fit that failed its checks) count, 2 is an error."""
+    start = time.perf_counter()
+    done = subprocess.run(command, check=False, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    if done.returncode not in (0, 1):
+        raise SystemExit(f"{' '.join(command)} failed: {done.stderr.strip()}")
+    return time.perf_counter() - start
+
+
+def commands(folder: Path, repeats: int) -> None:
+    from forcefit.analysis.apsides import measure_apsides
+    from forcefit.reading.inspection import inspect_track
+
+    path = save_track(_pendulum(2600, 1), folder / "pendulum.csv")
+    track = load_track(path)
+    work: dict[str, Callable[[], object]] = {
+        "apsides": lambda: measure_apsides(load_track(path)),
+        "inspect": lambda: inspect_track(load_track(path)),
+        "fit": lambda: fit(load_track(path)),
+    }
+    for action in work.values():                                 # warm: compiled, imported
+        action()
+    print(f"(a) commands on a {track.n_points}-point pendulum (median of {repeats} runs, seconds)")
+    print(f"    {'command':10} {'wall':>7} {'work':>7} {'start-up':>9} {'x import':>9}")
+    worst = 0.0
+    for name, action in work.items():
+        walls, references = [], []
+        for _ in range(repeats):                                 # interleaved with the reference
+            references.append(_run([sys.executable, "-c", "import numpy, pandas"]))
+            walls.append(_run([*CLI, name, str(path), "--json"]))
+        reference = statistics.median(references)
+        wall = statistics.median(walls)
+        busy = statistics.median(_seconds(action) for _ in range(repeats))
+        ratio = max(wall - busy, 0.0) / reference
+        worst = max(worst, ratio)
+        print(f"    {name:10} {wall:7.2f} {busy:7.2f} {wall - busy:9.2f} {ratio:9.2f}")
+    print(f"    import numpy, pandas: {reference:.2f} s; slowest start-up {worst:.2f} x that import "
+          f"(target <= {START_UP_TARGET:g} x): {'met' if worst <= START_UP_TARGET else 'NOT met'}")
+
+
+def sampling(folder: Path) -> None:
+    from dataclasses import replace
+
+    from forcefit.inference.posterior import _problem, run_ensemble
+
+    track = _pendulum(2631, 2)
+    path = save_track(track, folder / "pendulum_2631.csv")
+    subprocess.run([*CLI, "sample", str(path), "--max-steps", "20", "--json"], check=False,
+                   stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)       # compile, cache
+    start = time.perf_counter()
+    done = subprocess.run([*CLI, "sample", str(path), "--json"], check=False, capture_output=True,
+                          text=True)
+    wall = time.perf_counter() - start
+    import json
+
+    (report,) = json.loads(done.stdout)
+    steps = int(report["posterior"]["n_steps"])
+    walkers = int(report["posterior"]["n_walkers"])
+    fitted = fit_orbit(load_track(path))
+    problem, best, covariance = _problem(fitted, "known" if fitted.sigma_known else "fit", {})
+    earlier = replace(problem, model=replace(problem.model, dense=False, parallel=False))
+    probe = 20
+    run_ensemble(earlier, best, covariance, rng=1, max_steps=2, min_steps=2)       # warm
+    per_step = _seconds(lambda: run_ensemble(earlier, best, covariance, rng=1, max_steps=probe,
+                                             min_steps=probe)) / probe
+    print(f"\n(b) forcefit sample, {track.n_points}-point pendulum, {walkers} walkers")
+    print(f"    converged: {report['posterior']['converged']} after {steps} steps")
+    print(f"    this sampler (fresh interpreter, fit included)  {wall:7.1f} s "
+          f"(target < {TARGET_SECONDS:g} s): {'met' if wall < TARGET_SECONDS else 'NOT met'}")
+    print(f"    earlier sampler, one core, stepped onto every sample: {1e3 * per_step:.0f} ms/step over "
+          f"{probe} steps, {per_step * steps:7.1f} s for {steps} steps ({per_step * steps / wall:.1f} x)")
+
+
+def century(folder: Path) -> None:
+    a, e = 0.387, 0.206
+    pericentre = a * (1 - e)
+    speed = math.sqrt(GAUSS_K2 * (1 + e) / pericentre)
+    truth = simulate_orbit(exponent=-2.0, strength=GAUSS_K2, start=(pericentre, 0.0), velocity=(0.0, speed),
+                           duration=100 * 365.25 - 1, rate=0.2, noise=1e-6, length_unit="au", time_unit="d",
+                           rng=5)
+    track = Track(t=truth.t, x=truth.x, y=truth.y, length_unit="au", time_unit="d", name="century")
+    path = save_track(track, folder / "century.csv")
+    rosette = simulate_orbit(exponent=-1.5, noise=0.005, rng=1)
+    fit_orbit(rosette)                                                          # warm
+    wall = _run([*CLI, "fit", str(path), "--json"])
+    result = None
+
+    def work() -> None:
+        nonlocal result
+        result = fit_orbit(load_track(path))
+
+    busy = _seconds(work)
+    small = _seconds(lambda: fit_orbit(rosette))
+    assert result is not None
+    print(f"\n(c) fit, Mercury-like orbit every 5 days for 100 years ({track.n_points} samples, centre free)")
+    print(f"    forcefit fit (fresh interpreter)  {wall:6.1f} s (target < {TARGET_SECONDS:g} s): "
+          f"{'met' if wall < TARGET_SECONDS else 'NOT met'}")
+    print(f"    fit_orbit in this process        {busy:6.1f} s; the {rosette.n_points}-sample rosette's "
+          f"{small:.2f} s ({busy / small:.0f} x)")
+    print(f"    n = {result.exponent:.12f} +- {result.exponent_stderr:.1e}: "
+          f"{(result.exponent + 2.0) / result.exponent_stderr:+.1f} standard errors from -2; "
+          f"checks {'passed' if result.passed else 'FAILED'}")
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__,
+                                     formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--only", choices=("a", "b", "c"))
+    parser.add_argument("--repeats", type=int, default=3)
+    args = parser.parse_args()
+    with tempfile.TemporaryDirectory() as name:
+        folder = Path(name)
+        if args.only in (None, "a"):
+            commands(folder, args.repeats)
+        if args.only in (None, "b"):
+            sampling(folder)
+        if args.only in (None, "c"):
+            century(folder)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
