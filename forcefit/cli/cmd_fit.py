@@ -176,24 +176,30 @@ def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, An
     report and its text."""
     from ..analysis.apsides import MIN_SECULAR_ORBITS
     from ..analysis.deviation import Deviation
-    from ..analysis.duality_check import check_duality
     from ..estimators import OrbitFit, force_profile
-    from ..inference.comparison import compare_laws
-    from ..outputs.report import write_report
 
     fit = fit_track(track, args)
     profile = force_profile(track, bins=args.profile, centre=fit.centre) if args.profile else None
     comparison = None
     if args.compare:
+        from ..inference.comparison import compare_laws
+
         options = orbit_options(args, track)
         del options["exponent"]                       # each law of the comparison holds its own
         comparison = compare_laws(track, args.compare, **options)
-    duality = check_duality(track, fit) if args.check_duality else None
+    duality = None
+    if args.check_duality:
+        from ..analysis.duality_check import check_duality
+
+        duality = check_duality(track, fit)
     passed = fit.passed and (duality is None or duality.passed)
     beside = companions(fit, track, args)
-    page = (write_report(fit, args.report, track=track, options=recorded_options(args),
-                         extras=[(TITLES.get(key, key), result.rows()) for key, result in beside])
-            if args.report else None)
+    page = None
+    if args.report:                                   # the report's libraries load only for it
+        from ..outputs.report import write_report
+
+        page = write_report(fit, args.report, track=track, options=recorded_options(args),
+                            extras=[(TITLES.get(key, key), result.rows()) for key, result in beside])
     report = {**fit.to_dict(), **camera_record(track), **{key: result.to_dict() for key, result in beside}}
     lines = [fit.to_text(), *camera_lines(track)]
     if duality is not None:
