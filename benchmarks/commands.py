@@ -27,6 +27,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import warnings
 from collections.abc import Callable
 from pathlib import Path
 
@@ -117,7 +118,9 @@ def sampling(folder: Path) -> None:
     problem, best, covariance = _problem(fitted, "known" if fitted.sigma_known else "fit", {})
     earlier = replace(problem, model=replace(problem.model, dense=False, parallel=False))
     probe = 20
-    run_ensemble(earlier, best, covariance, rng=1, max_steps=2, min_steps=2)       # warm
+    with warnings.catch_warnings():                      # two steps leave emcee's tau undefined
+        warnings.simplefilter("ignore", RuntimeWarning)
+        run_ensemble(earlier, best, covariance, rng=1, max_steps=2, min_steps=2)   # warm
     per_step = _seconds(lambda: run_ensemble(earlier, best, covariance, rng=1, max_steps=probe,
                                              min_steps=probe)) / probe
     print(f"\n(b) forcefit sample, {track.n_points}-point pendulum, {walkers} walkers")

@@ -265,7 +265,8 @@ def propagate_batch(
         continuous extension, instead of stepping onto each: several times faster when the
         samples are much denser than the steps, at an added error of the order of ``rtol``.
     parallel : bool
-        Spread the orbits over the processor's cores (for large batches).
+        Spread the orbits over numba's threads (for large batches; ``NUMBA_NUM_THREADS``, by
+        default one per core); with one thread the serial kernel runs.
 
     Returns
     -------
@@ -279,6 +280,8 @@ def propagate_batch(
     >>> bool(np.allclose(batch.position[:, -1], [[1.0, 0.0], [2.0, 0.0]], atol=1e-9))
     True
     """
+    from numba import get_num_threads
+
     from ._kernel import integrate_batch, integrate_batch_parallel
 
     times = np.ascontiguousarray(times, dtype=np.float64)
@@ -302,7 +305,8 @@ def propagate_batch(
     atol = rtol * np.column_stack((radius, radius, speed, speed))
     out = np.empty((n_orbits, times.size, 4))
     status = np.zeros(n_orbits, dtype=np.int64)
-    kernel = integrate_batch_parallel if parallel and n_orbits > 1 else integrate_batch
+    spread = parallel and n_orbits > 1 and get_num_threads() > 1     # one thread: not even compiled
+    kernel = integrate_batch_parallel if spread else integrate_batch
     kernel(times, float(epoch), states, n, k, forces, table_t, table_xy, float(rtol),
            np.ascontiguousarray(atol), out, status, bool(dense))
     return BatchStates(position=out[:, :, :2], velocity=out[:, :, 2:], ok=status == 0)
