@@ -298,20 +298,27 @@ def _leg_dense(times, order, start, y0, exponent, strength, forces, table_t, tab
 
 @njit(cache=True, inline="always")
 def _orbit(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t, table_xy,  # type: ignore[no-untyped-def]
-           rtol, atol, dense, out, status):
-    """Orbit b of a batch, forwards and backwards from the epoch."""
-    if dense:
-        code = _leg_dense(times, forward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
-                          table_xy, rtol, atol[b], out[b])
-        if code == OK:
-            code = _leg_dense(times, backward, epoch, states[b], exponent[b], strength[b], forces[b],
-                              table_t, table_xy, rtol, atol[b], out[b])
-    else:
-        code = _leg(times, forward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
+           rtol, atol, out, status):
+    """Orbit b of a batch, stepped onto each sample, forwards and backwards from the epoch."""
+    code = _leg(times, forward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
+                table_xy, rtol, atol[b], out[b])
+    if code == OK:
+        code = _leg(times, backward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
                     table_xy, rtol, atol[b], out[b])
-        if code == OK:
-            code = _leg(times, backward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
-                        table_xy, rtol, atol[b], out[b])
+    status[b] = code
+    if code != OK:
+        out[b, :, :] = np.nan
+
+
+@njit(cache=True, inline="always")
+def _orbit_dense(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t,  # type: ignore[no-untyped-def]
+                 table_xy, rtol, atol, out, status):
+    """Orbit b of a batch, its samples read off the continuous extension."""
+    code = _leg_dense(times, forward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
+                      table_xy, rtol, atol[b], out[b])
+    if code == OK:
+        code = _leg_dense(times, backward, epoch, states[b], exponent[b], strength[b], forces[b], table_t,
+                          table_xy, rtol, atol[b], out[b])
     status[b] = code
     if code != OK:
         out[b, :, :] = np.nan
@@ -329,23 +336,38 @@ def _split(times, epoch):  # type: ignore[no-untyped-def]
 
 @njit(cache=True)
 def integrate_batch(times, epoch, states, exponent, strength, forces, table_t, table_xy, rtol, atol, out,  # type: ignore[no-untyped-def]
-                    status, dense=False):
+                    status):
     """Fill out[b, i, :] with the state of orbit b at times[i]; status[b] = OK or FAILED.
 
     ``forces[b]`` holds orbit b's extra forces (columns as in N_FORCES); ``table_t`` and
-    ``table_xy`` the perturbing body's positions (empty when there is none); ``dense`` reads
-    the samples off the continuous extension instead of stepping onto each."""
+    ``table_xy`` the perturbing body's positions (empty when there is none)."""
     forward, backward = _split(times, epoch)
     for b in range(states.shape[0]):
         _orbit(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t, table_xy,
-               rtol, atol, dense, out, status)
+               rtol, atol, out, status)
+
+
+@njit(cache=True)
+def integrate_batch_dense(times, epoch, states, exponent, strength, forces, table_t, table_xy, rtol,  # type: ignore[no-untyped-def]
+                          atol, out, status):
+    """`integrate_batch`, the samples read off the continuous extension (compiled on its own, so
+    that the fits never wait for it)."""
+    forward, backward = _split(times, epoch)
+    for b in range(states.shape[0]):
+        _orbit_dense(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t,
+                     table_xy, rtol, atol, out, status)
 
 
 @njit(cache=True, parallel=True)
 def integrate_batch_parallel(times, epoch, states, exponent, strength, forces, table_t, table_xy, rtol,  # type: ignore[no-untyped-def]
-                             atol, out, status, dense=False):
-    """`integrate_batch` with the orbits spread over the processor's cores."""
+                             atol, out, status, dense):
+    """`integrate_batch` (or, with ``dense``, `integrate_batch_dense`) with the orbits spread over
+    numba's threads."""
     forward, backward = _split(times, epoch)
     for b in prange(states.shape[0]):
-        _orbit(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t, table_xy,
-               rtol, atol, dense, out, status)
+        if dense:
+            _orbit_dense(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t,
+                         table_xy, rtol, atol, out, status)
+        else:
+            _orbit(b, times, forward, backward, epoch, states, exponent, strength, forces, table_t,
+                   table_xy, rtol, atol, out, status)

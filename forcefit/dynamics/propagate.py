@@ -282,7 +282,7 @@ def propagate_batch(
     """
     from numba import get_num_threads
 
-    from ._kernel import integrate_batch, integrate_batch_parallel
+    from ._kernel import integrate_batch, integrate_batch_dense, integrate_batch_parallel
 
     times = np.ascontiguousarray(times, dtype=np.float64)
     start = np.atleast_2d(np.asarray(start, dtype=np.float64))
@@ -305,10 +305,14 @@ def propagate_batch(
     atol = rtol * np.column_stack((radius, radius, speed, speed))
     out = np.empty((n_orbits, times.size, 4))
     status = np.zeros(n_orbits, dtype=np.int64)
-    spread = parallel and n_orbits > 1 and get_num_threads() > 1     # one thread: not even compiled
-    kernel = integrate_batch_parallel if spread else integrate_batch
-    kernel(times, float(epoch), states, n, k, forces, table_t, table_xy, float(rtol),
-           np.ascontiguousarray(atol), out, status, bool(dense))
+    arguments = (times, float(epoch), states, n, k, forces, table_t, table_xy, float(rtol),
+                 np.ascontiguousarray(atol), out, status)
+    if parallel and n_orbits > 1 and get_num_threads() > 1:      # one thread: not even compiled
+        integrate_batch_parallel(*arguments, bool(dense))
+    elif dense:
+        integrate_batch_dense(*arguments)
+    else:
+        integrate_batch(*arguments)
     return BatchStates(position=out[:, :, :2], velocity=out[:, :, 2:], ok=status == 0)
 
 
