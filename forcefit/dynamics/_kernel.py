@@ -18,8 +18,16 @@ processor's cores.
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 from numba import njit, prange
+
+# The parallel kernel's threads wait for work asleep, not spinning: on a machine whose cores are
+# shared (another process, a second test worker) spinning threads took twice the time of one
+# thread (tests/test_cli.py's sampling, measured). Read when numba first loads OpenMP; a value
+# the user set is kept.
+os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
 from scipy.integrate import DOP853
 
 STAGES = int(DOP853.n_stages)
