@@ -156,8 +156,8 @@ def interval(low: float, high: float, unit: str = "") -> str:
 
     Examples
     --------
-    >>> interval(0.95, 1.05), interval(-2.0004001, -2.0003999)
-    ('[0.950, 1.050]', '[-2.00040010, -2.00039990]')
+    >>> interval(0.95, 1.05), interval(-2.0004002, -2.0003998)
+    ('[0.950, 1.050]', '[-2.00040020, -2.00039980]')
     """
     return estimate(0.5 * (low + high), low, high, unit)[1]
 

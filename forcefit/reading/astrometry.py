@@ -84,7 +84,7 @@ def besselian_to_julian_year(besselian: FloatArray) -> FloatArray:
     Examples
     --------
     >>> round(float(besselian_to_julian_year(np.array([1950.0]))[0]), 6)   # B1950.0 = JD 2433282.4235
-    1949.999790
+    1949.99979
     """
     jd = BESSELIAN_ZERO + TROPICAL_YEAR * (np.asarray(besselian, dtype=float) - 1900.0)
     return julian_year_of(jd)
