@@ -88,7 +88,7 @@ def test_fit_prints_a_table_with_units(capsys):
     path = DEMO / "class_pendulum" / "run_01.csv"
     status = main(["fit", str(path), "--method", "curvature", "--profile", "5"])
     out = capsys.readouterr().out
-    assert status in (0, 1)
+    assert status == 0                                     # run_01 passes every check of the fit
     assert "exponent n" in out and "px" in out and "s^-2" in out and "force profile" in out
 
 
@@ -97,8 +97,9 @@ def test_fit_json_of_the_comet_with_the_sun_as_centre(capsys):
     assert main(["fit", str(DEMO / "comet_heliocentric.csv"), "--centre", "0,0", "--json"]) == 0
     (report,) = json.loads(capsys.readouterr().out)
     assert report["method"] == "orbit" and report["strength_unit"] == "au^3 d^-2"
-    assert report["exponent"] == pytest.approx(-2.0, abs=5 * report["exponent_stderr"])
-    assert report["strength"] == pytest.approx(0.01720209895**2, rel=1e-4)
+    assert abs(report["exponent"] + 2.0) < 4 * report["exponent_stderr"]
+    assert abs(report["strength"] - 0.01720209895**2) < 4 * report["strength_stderr"]
+    assert 0 < report["strength_stderr"] < 1e-5 * report["strength"]
 
 
 def test_fit_of_a_circle_exits_2_with_the_reason(tmp_path, capsys):
@@ -116,9 +117,10 @@ def test_fit_uses_the_orbit_method_with_drag_and_comparison(capsys):
                    "--json"])
     (report,) = json.loads(capsys.readouterr().out)
     assert status == 0 and report["method"] == "orbit"
-    assert report["exponent"] == pytest.approx(1.0, abs=4 * report["exponent_stderr"])
-    assert report["strength"] == pytest.approx((2 * np.pi / 2.2) ** 2, rel=1e-3)
-    assert report["details"]["drag"] == pytest.approx(0.04, rel=1e-3)
+    assert abs(report["exponent"] - 1.0) < 4 * report["exponent_stderr"]
+    assert abs(report["strength"] - (2 * np.pi / 2.2) ** 2) < 4 * report["strength_stderr"]
+    assert abs(report["details"]["drag"] - 0.04) < 4 * report["details"]["drag_stderr"]
+    assert 0 < report["strength_stderr"] < 1e-3 * report["strength"] and report["details"]["drag_stderr"] < 1e-4
     laws = {row["law"]: row for row in report["comparison"]}
     assert laws["n = 1"]["p_value"] > 0.01 and laws["n = -2"]["p_value"] < 1e-6
 
@@ -142,8 +144,9 @@ def test_sample_reports_an_unconverged_run_and_resumes_it(tmp_path, capsys):
     (report,) = json.loads(capsys.readouterr().out)
     assert report["posterior"]["converged"] is False and "Run longer" in report["posterior"]["reason"]
     assert main(["sample", path, "--max-steps", "600", "--resume", str(chain), "--json",
-                 "--figures", str(tmp_path / "plots")]) in (0, 1)
+                 "--figures", str(tmp_path / "plots")]) == 1     # 600 steps are still too few
     (report,) = json.loads(capsys.readouterr().out)
+    assert report["posterior"]["converged"] is False and "after 600 steps" in report["posterior"]["reason"]
     assert report["posterior"]["n_steps"] == 600
     assert (tmp_path / "plots" / "run_02_corner.png").stat().st_size > 10_000
     assert main(["sample", path, "--save", str(chain), "--resume", str(chain)]) == 2
@@ -229,7 +232,7 @@ def test_fit_prints_k_at_the_nominal_exponent_g_and_the_deviation(tmp_path, caps
                  "--duration", "20", "--rate", "30", "--noise", "0.0002", "--seed", "2",
                  "--out", str(path)]) == 0
     capsys.readouterr()
-    main(["fit", str(path), "--pendulum-length", "2.000+-0.002 m", "--center", "0,0"])
+    assert main(["fit", str(path), "--pendulum-length", "2.000+-0.002 m", "--center", "0,0"]) == 0
     out = capsys.readouterr().out
     assert "against Hooke's law (a linear restoring force), n = 1:" in out
     k = re.search(r"k at n = 1 +([0-9.]+) ± ([0-9.]+) s\^-2", out)
@@ -244,7 +247,7 @@ def test_fit_prints_k_at_the_nominal_exponent_g_and_the_deviation(tmp_path, caps
     g_corrected = re.search(r"\n  g +([0-9.]+) ± ([0-9.]+) m/s\^2", out)
     assert g_corrected and float(g_corrected[2]) == pytest.approx(0.0098, rel=0.1)
     assert abs(float(g_corrected[1]) - 9.81) < 3 * float(g_corrected[2])
-    assert main(["fit", str(path), "--json", "--nominal", "1"]) in (0, 1)
+    assert main(["fit", str(path), "--json", "--nominal", "1"]) == 0
     report = json.loads(capsys.readouterr().out)[0]
     assert report["deviation"]["nominal"] == 1.0 and report["deviation"]["strength_unit"] == "s^-2"
     assert "pendulum" not in report                                   # no length, no correction

@@ -184,18 +184,21 @@ def test_fit_dispatches_with_the_options():
     assert fit(track, method="curvature", centre=(0.0, 0.0)).centre == (0.0, 0.0)
 
 
-# The time-free estimators and the acceleration estimator over a range of laws, each with its
-# tolerance on n (the orbit estimator's own sweep is in test_orbit.py).
-SWEEP = {"curvature": 0.05, "acceleration": 0.05, "shape": 0.01}
+# The time-free estimators and the acceleration estimator over a range of laws (the orbit
+# estimator's own sweep is in test_orbit.py): the truth within 4 stated errors, and each stated
+# error below a ceiling (on n, on k / k) so that an error blown up cannot pass. On these tracks
+# the errors are 5e-5..2e-3 (shape) and 3e-3..6e-2 (curvature, acceleration) on n, <= 0.4% on k.
+SWEEP = {"curvature": (0.1, 0.01), "acceleration": (0.1, 0.01), "shape": (0.005, 0.002)}
 
 
 @pytest.mark.parametrize("exponent", [-2.5, -2.0, -1.5, -1.0, -0.5, 0.0, 0.5, 1.0, 2.0])
 @pytest.mark.parametrize("method", sorted(SWEEP))
 def test_exponent_recovered_with_unknown_centre(method, exponent, noisy_orbit):
     result = ESTIMATORS[method].function(noisy_orbit(exponent, rng=int(10 * exponent) + 100))
-    assert abs(result.exponent - exponent) < SWEEP[method]
-    assert abs(result.exponent - exponent) < 4 * result.exponent_stderr + 1e-3
-    assert result.strength == pytest.approx(1.0, rel=0.05)
+    ceiling_n, ceiling_k = SWEEP[method]
+    assert 0 < result.exponent_stderr < ceiling_n and 0 < result.strength_stderr < ceiling_k
+    assert abs(result.exponent - exponent) < 4 * result.exponent_stderr      # the truth is k = 1
+    assert abs(result.strength - 1.0) < 4 * result.strength_stderr
 
 
 @pytest.mark.slow

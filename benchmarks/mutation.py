@@ -1,0 +1,272 @@
+"""Mutation study of the physics core: how many small code changes the default tests catch.
+
+Mutants come from mutmut's mutation engine (operators, numbers, names, keywords, arguments,
+and/or, assignments; its ``string`` and ``fstring`` mutations are left out: they touch messages
+and labels, which tests/test_bad_input.py checks by pattern, not the physics). The population
+is every such mutant of the modules in ``TARGETS`` (only the named functions and classes where
+a module lists some); a uniform random sample of it (fixed seed) is run. Each mutant is
+written into a scratch copy of the repository, and only the tests of its module run against it
+(its tests/test_<module>.py files and the module's doctests, ``-x -q -p no:xdist``), in one
+process at low priority. A mutant is killed when those tests fail, error or time out.
+
+Mutants judged equivalent (no observable change: see ``EQUIVALENT`` for each reason) leave the
+score; the score is killed / (sampled - equivalent) with its exact (Clopper-Pearson) binomial
+95% interval. Target: >= 90%.
+
+Run (about an hour on one core for 150 mutants; numba-compiled modules recompile per mutant)::
+
+    nice -n 10 .venv/bin/python benchmarks/mutation.py --sample 150 --log mutation.jsonl
+
+``--log FILE`` appends each mutant's outcome to FILE, and a rerun with the same FILE resumes
+where an interrupted study stopped. ``--list`` prints the population per module and exits;
+``--only FILE:LINE:INDEX`` runs one mutant (to check that a new test kills it); ``--baseline``
+runs each module's tests unmutated, which must all pass before the score means anything.
+"""
+
+from __future__ import annotations
+
+import argparse
+import ast
+import json
+import os
+import random
+import resource
+import shutil
+import signal
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+from types import SimpleNamespace
+
+from mutmut import Context, RelativeMutationID, list_mutations, mutate
+from scipy.stats import binomtest
+
+ROOT = Path(__file__).resolve().parent.parent
+
+# module -> (its tests, the functions/classes mutated (None: the whole module), the CPU seconds
+# its tests take unmutated on one core; a mutant's tests get 3x that + 60 s of CPU time, so a
+# busy machine does not turn slow mutants into timeouts)
+TARGETS: dict[str, tuple[tuple[str, ...], tuple[str, ...] | None, float]] = {
+    "forcefit/dynamics/laws.py": (("tests/test_laws.py",), None, 4),
+    "forcefit/dynamics/propagate.py": (("tests/test_propagate.py",), None, 90),
+    "forcefit/dynamics/_kernel.py": (("tests/test_propagate.py",), None, 110),
+    "forcefit/geometry/curves.py": (("tests/test_curves.py",), None, 4),
+    "forcefit/geometry/centre.py": (("tests/test_centre.py",), None, 18),
+    "forcefit/estimators/orbit.py": (("tests/test_orbit.py",), None, 90),
+    "forcefit/estimators/shape.py": (("tests/test_shape.py",), None, 40),
+    "forcefit/estimators/curvature.py": (("tests/test_curvature.py",), None, 12),
+    "forcefit/estimators/acceleration.py": (("tests/test_acceleration.py",), None, 10),
+    "forcefit/inference/posterior.py": (("tests/test_posterior.py",), None, 120),
+    "forcefit/analysis/duality_check.py": (("tests/test_duality_check.py",), None, 30),
+    "forcefit/units.py": (("tests/test_units.py",), None, 10),
+    "forcefit/apps/grading.py": (("tests/test_grading.py",), ("GradingRule", "_class_strength"), 60),
+}
+
+TYPES = {"operator", "keyword", "number", "name", "argument", "or_test", "and_test", "lambdef",
+         "expr_stmt", "decorator", "annassign"}
+
+# (module, the mutated line stripped, mutmut's index on that line) -> why no test can see it
+EQUIVALENT: dict[tuple[str, str, int], str] = {}
+
+
+@dataclass(frozen=True)
+class Mutant:
+    module: str
+    line_number: int     # 1-based
+    index: int
+    line: str
+
+    @property
+    def key(self) -> str:
+        return f"{self.module}:{self.line_number}:{self.index}"
+
+
+def _config() -> SimpleNamespace:
+    return SimpleNamespace(mutation_types_to_apply=TYPES, covered_lines_by_filename=None)
+
+
+def _spans(source: str, names: tuple[str, ...] | None) -> list[tuple[int, int]] | None:
+    if names is None:
+        return None
+    tree = ast.parse(source)
+    return [(node.lineno, node.end_lineno or node.lineno) for node in tree.body
+            if isinstance(node, (ast.FunctionDef, ast.ClassDef)) and node.name in names]
+
+
+def population() -> list[Mutant]:
+    mutants = []
+    for module, (_, names, _) in TARGETS.items():
+        source = (ROOT / module).read_text()
+        spans = _spans(source, names)
+        ids = list_mutations(Context(source=source, filename=module, config=_config()))
+        for mid in ids:
+            line_number = mid.line_number + 1
+            if spans is not None and not any(a <= line_number <= b for a, b in spans):
+                continue
+            mutants.append(Mutant(module, line_number, mid.index, mid.line))
+    return mutants
+
+
+def mutated_source(mutant: Mutant) -> str:
+    source = (ROOT / mutant.module).read_text()
+    mid = RelativeMutationID(line=mutant.line, index=mutant.index,
+                             line_number=mutant.line_number - 1, filename=mutant.module)
+    context = Context(source=source, filename=mutant.module, mutation_id=mid, config=_config())
+    new, count = mutate(context)
+    if count != 1:
+        raise RuntimeError(f"{mutant.key}: mutmut applied {count} mutations, expected 1")
+    return new
+
+
+def _changed_line(mutant: Mutant, new: str) -> str:
+    return new.split("\n")[mutant.line_number - 1].strip()
+
+
+def _command(module: str) -> list[str]:
+    tests = TARGETS[module][0]
+    return [sys.executable, "-m", "pytest", "-x", "-q", "-p", "no:xdist", "-p", "no:cacheprovider",
+            *tests, module]
+
+
+def _cpu_limit(seconds: float) -> Callable[[], None]:
+    def limit() -> None:
+        resource.setrlimit(resource.RLIMIT_CPU, (int(seconds), int(seconds) + 5))
+    return limit
+
+
+def _run(scratch: Path, module: str, cpu_seconds: float) -> tuple[str, float]:
+    env = dict(os.environ, PYTHONPATH=str(scratch), OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1",
+               NUMBA_NUM_THREADS="1", PYTHONDONTWRITEBYTECODE="1", PYTHONHASHSEED="0")
+    if "njit" in (scratch / module).read_text():
+        # a fresh numba cache: the compiled kernel of another mutant must never be reused
+        env["NUMBA_CACHE_DIR"] = tempfile.mkdtemp(prefix="numba-", dir=scratch.parent)
+    start = time.perf_counter()
+    try:
+        done = subprocess.run(_command(module), cwd=scratch, env=env, timeout=20 * cpu_seconds,
+                              stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True,
+                              preexec_fn=_cpu_limit(cpu_seconds))
+        outcome = "survived" if done.returncode == 0 else "killed"
+        if done.returncode == -signal.SIGXCPU:
+            outcome = "killed (timeout)"
+        elif done.returncode not in (0, 1):
+            outcome = f"killed (pytest exit {done.returncode})"
+    except subprocess.TimeoutExpired:
+        outcome = "killed (timeout)"
+    finally:
+        if "NUMBA_CACHE_DIR" in env:
+            shutil.rmtree(env["NUMBA_CACHE_DIR"], ignore_errors=True)
+    return outcome, time.perf_counter() - start
+
+
+def _scratch_copy() -> Path:
+    scratch = Path(tempfile.mkdtemp(prefix="forcefit-mutation-")) / "repo"
+    listing = ["git", "ls-files", "--cached", "--others", "--exclude-standard"]
+    files = subprocess.run(listing, cwd=ROOT, check=True, stdout=subprocess.PIPE, text=True).stdout.split()
+    for name in files:
+        target = scratch / name
+        target.parent.mkdir(parents=True, exist_ok=True)
+        shutil.copy2(ROOT / name, target)
+    return scratch
+
+
+def _interval(killed: int, total: int) -> tuple[float, float]:
+    ci = binomtest(killed, total).proportion_ci(confidence_level=0.95, method="exact")
+    return ci.low, ci.high
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--sample", type=int, default=150, help="mutants run (0: all)")
+    parser.add_argument("--seed", type=int, default=20)
+    parser.add_argument("--log", type=Path, help="append outcomes here; resume from it")
+    parser.add_argument("--list", action="store_true", help="print the population and exit")
+    parser.add_argument("--only", help="run the one mutant FILE:LINE:INDEX")
+    parser.add_argument("--baseline", action="store_true",
+                        help="run each module's tests unmutated (they must pass) and exit")
+    args = parser.parse_args(argv)
+
+    everyone = population()
+    if args.list:
+        for module in TARGETS:
+            print(f"{sum(m.module == module for m in everyone):5d}  {module}")
+        print(f"{len(everyone):5d}  in all")
+        return 0
+    if args.only:
+        chosen = [m for m in everyone if m.key == args.only]
+        if not chosen:
+            parser.error(f"no mutant {args.only}; see --list")
+    elif args.sample and args.sample < len(everyone):
+        shuffled = list(everyone)
+        random.Random(args.seed).shuffle(shuffled)      # a larger sample extends a smaller one
+        chosen = shuffled[:args.sample]
+    else:
+        chosen = everyone
+    print(f"population {len(everyone)} mutants in {len(TARGETS)} modules; running {len(chosen)}"
+          f" (seed {args.seed})", flush=True)
+
+    done: dict[str, dict[str, object]] = {}
+    if args.log and args.log.exists():
+        for line in args.log.read_text().splitlines():
+            record = json.loads(line)
+            done[record["key"]] = record
+
+    scratch = _scratch_copy()
+    if args.baseline:
+        for module in TARGETS:
+            outcome, seconds = _run(scratch, module, 3 * TARGETS[module][2] + 60)
+            print(f"unmutated {module}: {outcome} ({seconds:.0f} s)", flush=True)
+        shutil.rmtree(scratch.parent, ignore_errors=True)
+        return 0
+    try:
+        for i, mutant in enumerate(chosen, 1):
+            if mutant.key in done and not args.only:
+                record = done[mutant.key]
+            else:
+                path = scratch / mutant.module
+                original = path.read_text()
+                stat = path.stat()
+                new = mutated_source(mutant)
+                path.write_text(new)
+                try:
+                    outcome, seconds = _run(scratch, mutant.module,
+                                            3 * TARGETS[mutant.module][2] + 60)
+                finally:
+                    path.write_text(original)
+                    os.utime(path, ns=(stat.st_atime_ns, stat.st_mtime_ns))
+                record = {"key": mutant.key, "outcome": outcome, "seconds": round(seconds, 1),
+                          "was": mutant.line.strip(), "now": _changed_line(mutant, new)}
+                if args.log and not args.only:
+                    with args.log.open("a") as log:
+                        log.write(json.dumps(record) + "\n")
+            print(f"[{i}/{len(chosen)}] {record['outcome']:<10s} {record['key']}"
+                  f"  {record['was']}  ->  {record['now']}", flush=True)
+            done[mutant.key] = record
+    finally:
+        shutil.rmtree(scratch.parent, ignore_errors=True)
+
+    records = [done[m.key] for m in chosen]
+    equivalent = [(m, EQUIVALENT[(m.module, m.line.strip(), m.index)]) for m, r in
+                  zip(chosen, records) if r["outcome"] == "survived"
+                  and (m.module, m.line.strip(), m.index) in EQUIVALENT]
+    survived = [r for m, r in zip(chosen, records) if r["outcome"] == "survived"
+                and (m.module, m.line.strip(), m.index) not in EQUIVALENT]
+    killed = sum(r["outcome"] != "survived" for r in records)
+    scored = len(records) - len(equivalent)
+    low, high = _interval(killed, scored) if scored else (float("nan"), float("nan"))
+    print(f"\nkilled {killed}, survived {len(survived)}, equivalent {len(equivalent)}"
+          f" of {len(records)} run ({len(everyone)} in the population)")
+    if scored:
+        print(f"score {killed / scored:.1%} (95% interval {low:.1%} to {high:.1%}); target >= 90%")
+    for mutant, why in equivalent:
+        print(f"  equivalent {mutant.key}: {why}")
+    for record in survived:
+        print(f"  survived   {record['key']}  {record['was']}  ->  {record['now']}")
+    return 0 if scored and killed / scored >= 0.9 else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())
