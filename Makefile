@@ -3,7 +3,7 @@ PYTHON ?= python3
 VENV   := .venv
 BIN    := $(VENV)/bin
 
-.PHONY: demo test slow lint bench clean
+.PHONY: demo test slow lint bench mutation clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -32,7 +32,11 @@ lint: $(VENV)/.installed-test
 	$(BIN)/mypy
 
 bench: $(VENV)/.installed-test
-	for b in benchmarks/*.py; do $(BIN)/python $$b || exit 1; done
+	for b in benchmarks/*.py; do [ $$b = benchmarks/mutation.py ] || $(BIN)/python $$b || exit 1; done
+
+# The sampled mutation study of the physics core (DEVELOPERS.md): hours, one core, low priority.
+mutation: $(VENV)/.installed-test
+	nice -n 10 $(BIN)/python benchmarks/mutation.py --sample 150 --log mutation.jsonl
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache
