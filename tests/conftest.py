@@ -58,6 +58,37 @@ def _screened_track(n_points: int = 1500, *, with_sigma: bool = True, scale: flo
                  sigma=0.002 if with_sigma else None, name="screened")
 
 
+def _bent_track(bend: float = 0.15):
+    """A noisy orbit (noise 0.002, sigma given) in F = r^(-2 + bend ln r), whose local exponent
+    d ln F / d ln r = -2 + 2 bend ln r is exactly linear in ln r, integrated by scipy's DOP853.
+    Returns the track and the true change of the local exponent across its radial range,
+    2 bend ln(r_max / r_min)."""
+    import numpy as np
+    from scipy.integrate import solve_ivp
+
+    from forcefit.track import Track
+
+    def derivative(_, s):
+        r = np.hypot(s[0], s[1])
+        a = -(r ** (-2.0 + bend * np.log(r)))
+        return [s[2], s[3], a * s[0] / r, a * s[1] / r]
+
+    t = np.linspace(0.0, 60.0, 1500)
+    solution = solve_ivp(derivative, (0, 60), [1.5, 0, 0, 0.5], t_eval=t, rtol=1e-11, atol=1e-13,
+                         method="DOP853")
+    r = np.hypot(solution.y[0], solution.y[1])
+    rng = np.random.default_rng(4)
+    track = Track(t=t, x=solution.y[0] + 0.002 * rng.standard_normal(t.size),
+                  y=solution.y[1] + 0.002 * rng.standard_normal(t.size), sigma=0.002, name="bent")
+    return track, 2 * bend * float(np.log(r.max() / r.min()))
+
+
+@pytest.fixture(scope="session")
+def bent():
+    """`_bent_track()`: an orbit whose local exponent changes by a known amount."""
+    return _bent_track()
+
+
 def _noisy_orbit(exponent: float, rng: int, n_points: int = 1000):
     """Three circular periods of F = r^n (k = 1), n_points samples, noise 0.2% of the orbit's
     size, centre at (0.25, -0.15) m."""

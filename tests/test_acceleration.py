@@ -1,5 +1,7 @@
 """The acceleration estimator: the radial acceleration against r, and its torque check."""
 
+import re
+
 import pytest
 
 from forcefit.dynamics.propagate import Drag
@@ -22,3 +24,17 @@ def test_a_drag_shows_as_a_torque_against_the_motion():
     assert check.passed is False and "against the motion" in check.message
     clean = simulate_orbit(exponent=1.0, strength=4.0, noise=2e-4, duration=20.0, rate=50.0, rng=3)
     assert fit_acceleration(clean, centre=(0.0, 0.0)).diagnostics["transverse acceleration"].passed
+
+
+def test_the_power_law_check_measures_how_much_the_local_exponent_changes(bent):
+    # F = r^(-2 + b ln r) has the local exponent -2 + 2 b ln r (differentiate ln F by ln r; common
+    # practice): across the track's radial range it changes by 2 b ln(r_max / r_min), which the
+    # check must report within 4 of its stated errors (its change over its number of standard
+    # errors) and call significant.
+    track, truth = bent
+    check = fit_acceleration(track, centre=(0.0, 0.0)).diagnostics["power law"]
+    found = re.search(r"changes by ([-+0-9.e]+) across the radial range \(([0-9.]+) standard errors\)",
+                      check.message)
+    assert found and check.passed is False
+    change, z = float(found[1]), float(found[2])
+    assert z > 5 and abs(change - truth) < 4 * abs(change) / z

@@ -1,5 +1,7 @@
 """The curvature estimator: the force-curvature relation as a straight line in log-log."""
 
+import re
+
 import numpy as np
 import pytest
 
@@ -30,3 +32,17 @@ def test_each_points_own_h_makes_it_immune_to_drag():
     assert abs(fit.exponent - 1.0) < 4 * fit.exponent_stderr
     assert abs(fit.strength - 4.0) < 4 * fit.strength_stderr
     assert fit.diagnostics["angular momentum"].passed is False         # but h is not constant
+
+
+def test_the_power_law_check_measures_how_much_the_local_exponent_changes(bent):
+    # F = r^(-2 + b ln r) has the local exponent -2 + 2 b ln r (differentiate ln F by ln r; common
+    # practice): across the track's radial range it changes by 2 b ln(r_max / r_min), which the
+    # check must report within 4 of its stated errors (its change over its number of standard
+    # errors) and call significant.
+    track, truth = bent
+    check = fit_curvature(track, centre=(0.0, 0.0)).diagnostics["power law"]
+    found = re.search(r"changes by ([-+0-9.e]+) across the radial range \(([0-9.]+) standard errors\)",
+                      check.message)
+    assert found and check.passed is False
+    change, z = float(found[1]), float(found[2])
+    assert z > 5 and abs(change - truth) < 4 * abs(change) / z
