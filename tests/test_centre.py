@@ -84,3 +84,18 @@ def test_centre_errors_of_the_fits_are_honest_over_many_seeds(estimator, exponen
     z = np.array(z)
     assert 0.8 < np.std(z) < 1.25, np.std(z)
     assert 0.90 <= np.mean(np.abs(z) < 1.96) <= 0.98 or np.std(z) < 1.1
+
+
+def test_centre_of_a_narrow_ellipse_whose_acceleration_lies_along_one_axis():
+    # Newton (1687), Principia, Book I, Prop. X: x = cos 2t, y = 0.1 sin 2t is an orbit of a force
+    # towards the ellipse's centre (0, 0); its acceleration, -4 (x, y), lies almost along x. The
+    # acceleration is significant wherever |x| is not small, so the centre is found, within its
+    # stated errors on both axes.
+    rng = np.random.default_rng(3)
+    t = np.linspace(0.0, 12.0, 600)
+    track = Track(t=t, x=np.cos(2 * t) + 0.003 * rng.standard_normal(t.size),
+                  y=0.1 * np.sin(2 * t) + 0.003 * rng.standard_normal(t.size))
+    estimate = find_centre(track)
+    assert estimate.method == "acceleration lines"
+    for axis in (0, 1):
+        assert 0 < estimate.stderr[axis] < 0.05 and abs(estimate.centre[axis]) < 4 * estimate.stderr[axis]
