@@ -11,6 +11,7 @@ from forcefit.geometry.curves import (
     interior,
     is_straight,
     polar_about,
+    relation_residual,
     turning_sense,
 )
 from forcefit.geometry.pspline import SmoothedCurve
@@ -86,3 +87,28 @@ def test_straight_and_bent_paths():
     line = (s + 1e-3 * rng.standard_normal(s.size), 2 * s + 1e-3 * rng.standard_normal(s.size))
     assert is_straight(*line, noise)
     assert not is_straight(np.cos(3 * s), np.sin(3 * s), noise)
+
+
+def test_the_relation_residual_vanishes_on_an_exact_hooke_orbit():
+    # Newton (1687), Principia, Book I, Prop. X: x = a cos wt, y = b sin wt moves under
+    # F = w^2 r towards the centre (n = 1, f_ref = w^2 r_ref), with h = a b w. With exact
+    # derivatives in time, and in arc length (T = v/|v|, d2r/ds2 = (acc - (acc.T) T)/|v|^2;
+    # common practice), both forms of the relation hold to rounding, and a wrong exponent or
+    # centre breaks them.
+    a, b, w, r_ref = 0.3, 0.1, 2.0, 0.2
+    t = np.linspace(0.0, np.pi, 60)
+    value = np.column_stack((a * np.cos(w * t), b * np.sin(w * t)))
+    velocity = np.column_stack((-a * w * np.sin(w * t), b * w * np.cos(w * t)))
+    acceleration = -(w**2) * value
+    speed = np.hypot(velocity[:, 0], velocity[:, 1])[:, None]
+    tangent = velocity / speed
+    along = np.sum(acceleration * tangent, axis=1)[:, None]
+    in_arc = (acceleration - along * tangent) / speed**2
+    h = a * b * w
+    for first, second, timed, log_force in ((velocity, acceleration, True, np.log(w**2 * r_ref)),
+                                            (tangent, in_arc, False, np.log(w**2 * r_ref / h**2))):
+        def residual(exponent, cx=0.0, log_force=log_force, first=first, second=second, timed=timed):
+            return relation_residual(np.array([exponent, log_force, cx, 0.0]), value, first, second,
+                                     sense=1.0, reference_radius=r_ref, timed=timed)
+        assert np.abs(residual(1.0)).max() < 1e-10                # terms of size 0.1 to 30
+        assert np.abs(residual(1.1)).max() > 1e-3 and np.abs(residual(1.0, cx=0.01)).max() > 1e-3
