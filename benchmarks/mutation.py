@@ -50,6 +50,18 @@ ROOT = Path(__file__).resolve().parent.parent
 # the propagators' drag is tested in test_propagate.py, their other forces here
 EXTRA_FORCES = "tests/test_forces.py::test_the_compiled_propagator_adds_each_force_as_the_reference_does"
 
+# the contract every estimator keeps (tests/test_registry.py), for one estimator: one fit
+CONTRACT = ("test_the_result_is_the_registered_type", "test_every_number_is_a_finite_float_of_the_right_sign",
+            "test_covariance_matches_the_parameter_names", "test_residuals_are_one_per_value_used",
+            "test_units_are_the_tracks", "test_truth_within_the_stated_errors",
+            "test_the_derived_numbers_agree_with_each_other", "test_the_checks_say_something",
+            "test_the_relation_points_follow_the_law", "test_rows_text_and_dict_show_the_same_fit")
+
+
+def _contract(method: str) -> tuple[str, ...]:
+    return tuple(f"tests/test_registry.py::{name}[{method}]" for name in CONTRACT)
+
+
 # module -> (its tests, the functions/classes mutated (None: the whole module), the CPU seconds
 # its tests take unmutated on one core; a mutant's tests get 3x that + 60 s of CPU time, so a
 # busy machine does not turn slow mutants into timeouts)
@@ -59,10 +71,10 @@ TARGETS: dict[str, tuple[tuple[str, ...], tuple[str, ...] | None, float]] = {
     "forcefit/dynamics/_kernel.py": (("tests/test_propagate.py", EXTRA_FORCES), None, 115),
     "forcefit/geometry/curves.py": (("tests/test_curves.py",), None, 4),
     "forcefit/geometry/centre.py": (("tests/test_centre.py",), None, 18),
-    "forcefit/estimators/orbit.py": (("tests/test_orbit.py",), None, 90),
-    "forcefit/estimators/shape.py": (("tests/test_shape.py",), None, 40),
-    "forcefit/estimators/curvature.py": (("tests/test_curvature.py",), None, 12),
-    "forcefit/estimators/acceleration.py": (("tests/test_acceleration.py",), None, 10),
+    "forcefit/estimators/orbit.py": (("tests/test_orbit.py", *_contract("orbit")), None, 110),
+    "forcefit/estimators/shape.py": (("tests/test_shape.py", *_contract("shape")), None, 50),
+    "forcefit/estimators/curvature.py": (("tests/test_curvature.py", *_contract("curvature")), None, 20),
+    "forcefit/estimators/acceleration.py": (("tests/test_acceleration.py", *_contract("acceleration")), None, 18),
     "forcefit/inference/posterior.py": (("tests/test_posterior.py",), None, 120),
     "forcefit/analysis/duality_check.py": (("tests/test_duality_check.py",), None, 30),
     "forcefit/units.py": (("tests/test_units.py",), None, 10),
