@@ -62,13 +62,19 @@ def test_posterior_of_an_orbit_agrees_with_least_squares(rosette_fit):
 
 
 def test_unknown_noise_is_sampled_as_a_scale():
+    # The samples' sigma stated at half the true noise (0.004): with a noise scale s sampled
+    # (Gaussian likelihood chi2 / s^2 + 2N ln s, common practice) the scale finds the factor 2
+    # back, within its posterior spread (about 0.04), however the residual level compares to 1.
     track = simulate_orbit(exponent=1.0, noise=0.004, rng=3)
-    bare = type(track)(t=track.t, x=track.x, y=track.y, name="no sigma")
-    fit = fit_orbit(bare)
-    posterior = sample_posterior(fit, rng=3, progress=False, max_steps=1000)   # the scale mixes
-    assert "noise_scale" in posterior.samples                                   # long before n
-    noise = float(np.median(posterior.samples["noise_scale"])) * float(np.median(fit.sigma))
-    assert noise == pytest.approx(0.004, rel=0.1)
+    halved = Track(t=track.t, x=track.x, y=track.y, sigma=0.002, name="sigma halved")
+    posterior = sample_posterior(fit_orbit(halved), noise="fit", rng=3, progress=False,
+                                 max_steps=1000)                     # the scale mixes long before n
+    scale = posterior.samples["noise_scale"]
+    assert 0 < float(np.std(scale)) < 0.1
+    assert abs(float(np.median(scale)) - 2.0) < 4 * float(np.std(scale))
+    # without sigma the scale is sampled by default (a short run suffices to see it)
+    bare = Track(t=track.t, x=track.x, y=track.y, name="no sigma")
+    assert "noise_scale" in sample_posterior(fit_orbit(bare), rng=3, progress=False, max_steps=300).samples
 
 
 def test_a_short_run_says_it_has_not_converged(rosette_fit):
