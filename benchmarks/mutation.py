@@ -67,8 +67,8 @@ def _contract(method: str) -> tuple[str, ...]:
 # busy machine does not turn slow mutants into timeouts)
 TARGETS: dict[str, tuple[tuple[str, ...], tuple[str, ...] | None, float]] = {
     "forcefit/dynamics/laws.py": (("tests/test_laws.py",), None, 4),
-    "forcefit/dynamics/propagate.py": (("tests/test_propagate.py", EXTRA_FORCES), None, 95),
-    "forcefit/dynamics/_kernel.py": (("tests/test_propagate.py", EXTRA_FORCES), None, 115),
+    "forcefit/dynamics/propagate.py": ((EXTRA_FORCES, "tests/test_propagate.py"), None, 95),
+    "forcefit/dynamics/_kernel.py": ((EXTRA_FORCES, "tests/test_propagate.py"), None, 115),
     "forcefit/geometry/curves.py": (("tests/test_curves.py",), None, 4),
     "forcefit/geometry/centre.py": (("tests/test_centre.py",), None, 18),
     "forcefit/estimators/orbit.py": (("tests/test_orbit.py", *_contract("orbit")), None, 110),
@@ -89,6 +89,10 @@ TYPES = {"operator", "keyword", "number", "name", "argument", "or_test", "and_te
 EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/dynamics/_kernel.py", "e5 += E5[j] * k[j][i]", 1):
         "e5 starts at 0 and is used only squared: -= gives exactly -e5, the same (e5 / scale)**2",
+    ("forcefit/dynamics/_kernel.py", '@njit(cache=True, inline="always")', 0):
+        "cache=False only stops numba keeping the compiled code on disk: the same machine code runs",
+    ("forcefit/dynamics/_kernel.py", "@njit(cache=True)", 0):
+        "cache=False only stops numba keeping the compiled code on disk: the same machine code runs",
 }
 
 
