@@ -31,6 +31,9 @@ def test_pixels_are_their_own_length():
     assert parse_length_unit("pixels") == "px"
     with pytest.raises(InputError, match="calibration"):
         length_factor("px", "mm")
+    # a unit converts to itself, or to another name of itself, by 1 (definition; common practice)
+    assert length_factor("px", "pixels") == 1.0 and length_factor("metre", "m") == 1.0
+    assert time_factor("s", "second") == 1.0 and time_factor("yr", "yr") == 1.0
 
 
 @pytest.mark.parametrize("name", ["parsec-ish", "kg", "s"])
