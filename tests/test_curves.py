@@ -90,16 +90,17 @@ def test_straight_and_bent_paths():
 
 
 def test_the_relation_residual_vanishes_on_an_exact_hooke_orbit():
-    # Newton (1687), Principia, Book I, Prop. X: x = a cos wt, y = b sin wt moves under
-    # F = w^2 r towards the centre (n = 1, f_ref = w^2 r_ref), with h = a b w. With exact
+    # Newton (1687), Principia, Book I, Prop. X: x = a cos wt, y = b sin wt about the centre c
+    # moves under F = w^2 r towards c (n = 1, f_ref = w^2 r_ref), with h = a b w. With exact
     # derivatives in time, and in arc length (T = v/|v|, d2r/ds2 = (acc - (acc.T) T)/|v|^2;
     # common practice), both forms of the relation hold to rounding, and a wrong exponent or
     # centre breaks them.
-    a, b, w, r_ref = 0.3, 0.1, 2.0, 0.2
+    a, b, w, r_ref, c = 0.3, 0.1, 2.0, 0.2, (0.5, -0.2)
     t = np.linspace(0.0, np.pi, 60)
-    value = np.column_stack((a * np.cos(w * t), b * np.sin(w * t)))
+    relative = np.column_stack((a * np.cos(w * t), b * np.sin(w * t)))
+    value = relative + np.array(c)
     velocity = np.column_stack((-a * w * np.sin(w * t), b * w * np.cos(w * t)))
-    acceleration = -(w**2) * value
+    acceleration = -(w**2) * relative
     speed = np.hypot(velocity[:, 0], velocity[:, 1])[:, None]
     tangent = velocity / speed
     along = np.sum(acceleration * tangent, axis=1)[:, None]
@@ -107,8 +108,8 @@ def test_the_relation_residual_vanishes_on_an_exact_hooke_orbit():
     h = a * b * w
     for first, second, timed, log_force in ((velocity, acceleration, True, np.log(w**2 * r_ref)),
                                             (tangent, in_arc, False, np.log(w**2 * r_ref / h**2))):
-        def residual(exponent, cx=0.0, log_force=log_force, first=first, second=second, timed=timed):
-            return relation_residual(np.array([exponent, log_force, cx, 0.0]), value, first, second,
+        def residual(exponent, cx=c[0], log_force=log_force, first=first, second=second, timed=timed):
+            return relation_residual(np.array([exponent, log_force, cx, c[1]]), value, first, second,
                                      sense=1.0, reference_radius=r_ref, timed=timed)
         assert np.abs(residual(1.0)).max() < 1e-10                # terms of size 0.1 to 30
-        assert np.abs(residual(1.1)).max() > 1e-3 and np.abs(residual(1.0, cx=0.01)).max() > 1e-3
+        assert np.abs(residual(1.1)).max() > 1e-3 and np.abs(residual(1.0, cx=c[0] + 0.01)).max() > 1e-3

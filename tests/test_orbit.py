@@ -25,6 +25,10 @@ def test_orbit_fit_recovers_the_law(exponent):
     assert abs(fit.exponent - exponent) < 3 * fit.exponent_stderr
     assert abs(fit.strength - 1.7) < 3 * fit.strength_stderr
     assert fit.passed and fit.reduced_chi2 == pytest.approx(1.0, abs=0.2)
+    # F(r_ref) is stated at the samples' geometric mean distance from the centre (LawFit's
+    # definition), where n and ln F(r_ref) are least correlated; the fitted centre moves it <0.1%
+    r = np.hypot(track.x - fit.centre[0], track.y - fit.centre[1])
+    assert fit.reference_radius == pytest.approx(float(np.exp(np.mean(np.log(r)))), rel=1e-3)
 
 
 def test_orbit_fit_with_linear_drag():
