@@ -18,7 +18,9 @@ Run (about an hour on one core for 150 mutants; numba-compiled modules recompile
     nice -n 10 .venv/bin/python benchmarks/mutation.py --sample 150 --log mutation.jsonl
 
 ``--log FILE`` appends each mutant's outcome to FILE, and a rerun with the same FILE resumes
-where an interrupted study stopped. ``--list`` prints the population per module and exits;
+where an interrupted study stopped (the last line of a mutant counts); ``--recheck`` runs the
+logged survivors again, after tests were added to kill them. ``--list`` prints the population
+per module and exits;
 ``--only FILE:LINE:INDEX`` runs one mutant (to check that a new test kills it); ``--baseline``
 runs each module's tests unmutated, which must all pass before the score means anything.
 """
@@ -106,6 +108,10 @@ class Mutant:
     @property
     def key(self) -> str:
         return f"{self.module}:{self.line_number}:{self.index}"
+
+
+def _equivalence(mutant: Mutant) -> str | None:
+    return EQUIVALENT.get((mutant.module, mutant.line.strip(), mutant.index))
 
 
 def _config() -> SimpleNamespace:
@@ -208,6 +214,8 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--log", type=Path, help="append outcomes here; resume from it")
     parser.add_argument("--list", action="store_true", help="print the population and exit")
     parser.add_argument("--only", help="run the one mutant FILE:LINE:INDEX")
+    parser.add_argument("--recheck", action="store_true",
+                        help="run the logged survivors again (after new tests) and log the outcome")
     parser.add_argument("--baseline", action="store_true",
                         help="run each module's tests unmutated (they must pass) and exit")
     args = parser.parse_args(argv)
@@ -246,7 +254,9 @@ def main(argv: list[str] | None = None) -> int:
         return 0
     try:
         for i, mutant in enumerate(chosen, 1):
-            if mutant.key in done and not args.only:
+            recheck = (args.recheck and mutant.key in done and done[mutant.key]["outcome"] == "survived"
+                       and _equivalence(mutant) is None)
+            if mutant.key in done and not args.only and not recheck:
                 record = done[mutant.key]
             else:
                 path = scratch / mutant.module
@@ -261,7 +271,8 @@ def main(argv: list[str] | None = None) -> int:
                     path.write_text(original)
                     os.utime(path, ns=(stat.st_atime_ns, stat.st_mtime_ns))
                 record = {"key": mutant.key, "outcome": outcome, "seconds": round(seconds, 1),
-                          "was": mutant.line.strip(), "now": _changed_line(mutant, new)}
+                          "was": mutant.line.strip(), "now": _changed_line(mutant, new),
+                          "rechecked": bool(recheck)}
                 if args.log and not args.only:
                     with args.log.open("a") as log:
                         log.write(json.dumps(record) + "\n")
@@ -272,18 +283,22 @@ def main(argv: list[str] | None = None) -> int:
         shutil.rmtree(scratch.parent, ignore_errors=True)
 
     records = [done[m.key] for m in chosen]
-    equivalent = [(m, EQUIVALENT[(m.module, m.line.strip(), m.index)]) for m, r in
-                  zip(chosen, records) if r["outcome"] == "survived"
-                  and (m.module, m.line.strip(), m.index) in EQUIVALENT]
-    survived = [r for m, r in zip(chosen, records) if r["outcome"] == "survived"
-                and (m.module, m.line.strip(), m.index) not in EQUIVALENT]
+    equivalent = [(m, _equivalence(m)) for m, r in zip(chosen, records)
+                  if r["outcome"] == "survived" and _equivalence(m) is not None]
+    survived = [r for m, r in zip(chosen, records)
+                if r["outcome"] == "survived" and _equivalence(m) is None]
     killed = sum(r["outcome"] != "survived" for r in records)
+    later = [r for r in records if r.get("rechecked") and r["outcome"] != "survived"]
     scored = len(records) - len(equivalent)
     low, high = _interval(killed, scored) if scored else (float("nan"), float("nan"))
     print(f"\nkilled {killed}, survived {len(survived)}, equivalent {len(equivalent)}"
           f" of {len(records)} run ({len(everyone)} in the population)")
     if scored:
         print(f"score {killed / scored:.1%} (95% interval {low:.1%} to {high:.1%}); target >= 90%")
+    if later:
+        print(f"({len(later)} of the killed survived the first run and fell to tests added since:)")
+        for record in later:
+            print(f"  killed later {record['key']}  {record['was']}  ->  {record['now']}")
     for mutant, why in equivalent:
         print(f"  equivalent {mutant.key}: {why}")
     for record in survived:
