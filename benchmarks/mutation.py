@@ -13,16 +13,17 @@ Mutants judged equivalent (no observable change: see ``EQUIVALENT`` for each rea
 score; the score is killed / (sampled - equivalent) with its exact (Clopper-Pearson) binomial
 95% interval. Target: >= 90%.
 
-Run (about an hour on one core for 150 mutants; numba-compiled modules recompile per mutant)::
+Run (about a minute per mutant on one busy core: 150 take 2-3 hours; the compiled kernel
+recompiles for each of its mutants)::
 
     nice -n 10 .venv/bin/python benchmarks/mutation.py --sample 150 --log mutation.jsonl
 
 ``--log FILE`` appends each mutant's outcome to FILE, and a rerun with the same FILE resumes
 where an interrupted study stopped (the last line of a mutant counts); ``--recheck`` runs the
 logged survivors again, after tests were added to kill them. ``--list`` prints the population
-per module and exits;
-``--only FILE:LINE:INDEX`` runs one mutant (to check that a new test kills it); ``--baseline``
-runs each module's tests unmutated, which must all pass before the score means anything.
+per module and exits; ``--only FILE:LINE:INDEX`` runs one mutant (to check that a new test
+kills it); ``--baseline`` runs each module's tests unmutated, which must all pass before the
+score means anything.
 """
 
 from __future__ import annotations
