@@ -141,8 +141,8 @@ def population() -> list[Mutant]:
     return mutants
 
 
-def mutated_source(mutant: Mutant) -> str:
-    source = (ROOT / mutant.module).read_text()
+def mutated_source(mutant: Mutant, root: Path = ROOT) -> str:
+    source = (root / mutant.module).read_text()
     mid = RelativeMutationID(line=mutant.line, index=mutant.index,
                              line_number=mutant.line_number - 1, filename=mutant.module)
     context = Context(source=source, filename=mutant.module, mutation_id=mid, config=_config())
@@ -263,7 +263,7 @@ def main(argv: list[str] | None = None) -> int:
                 path = scratch / mutant.module
                 original = path.read_text()
                 stat = path.stat()
-                new = mutated_source(mutant)
+                new = mutated_source(mutant, scratch)          # the snapshot the study began with
                 path.write_text(new)
                 try:
                     outcome, seconds = _run(scratch, mutant.module,
