@@ -315,6 +315,15 @@ def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
     peri = np.mean([a.radius for a in apses if a.kind == "pericentre"] or [np.nan])
     apo = np.mean([a.radius for a in apses if a.kind == "apocentre"] or [np.nan])
     ratio = float(apo / peri)
+    if not ratio >= 1.0:
+        where = (f"about the centre ({path.centre[0]:.6g}, {path.centre[1]:.6g}) {track.length_unit} the "
+                 "turning points found do not alternate as near and far ones (the far ones at "
+                 f"{apo:.4g}, the near ones at {peri:.4g} {track.length_unit})")
+        why = ("the path passes too close to the centre for its near points to be located, so no "
+               "apsidal angle can be read from it" if centre is not None else
+               "that centre is probably wrong (a thin ellipse hardly fixes it along its long axis). "
+               "Give the centre (--centre X,Y)")
+        raise NotIdentifiable(f"{track.label}: {where}: {why}.")
     exponent = exponent_from_apsidal_angle(psi, ratio)
     step = max(psi_se, 1e-9)
     slope = (exponent_from_apsidal_angle(psi + step, ratio)
