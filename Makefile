@@ -36,6 +36,7 @@ bench: $(VENV)/.installed-test
 
 # The sampled mutation study of the physics core (DEVELOPERS.md): hours, one core, low priority.
 mutation: $(VENV)/.installed-test
+	$(BIN)/python -m pip install --quiet -e '.[test,mutation]'
 	nice -n 10 $(BIN)/python benchmarks/mutation.py --sample 150 --log mutation.jsonl
 
 clean:
