@@ -63,3 +63,15 @@ def test_a_wrong_strength_fails_the_duality_check(hooke_check):
     assert broken.predicted_strength > check.predicted_strength       # a deeper well, a larger E
     assert broken.strength_z_score < -3 and not broken.passed          # the refit sees the old E
     assert "INCONSISTENT" in broken.to_text()
+
+
+def test_the_predicted_dual_exponent_carries_the_fits_error(hooke_check):
+    # Dual exponents obey (a + 3)(A + 3) = 4 (Arnold 1990, Huygens and Barrow, Newton and Hooke,
+    # from memory), so dA/da = -4 / (a + 3)^2: a quarter at Hooke's a = 1, and the predicted
+    # exponent's error is that factor times the fit's. Checked by a central difference.
+    _, fit, check = hooke_check
+    a, step = fit.exponent, 1e-6
+    slope = ((4 / (a + step + 3) - 3) - (4 / (a - step + 3) - 3)) / (2 * step)
+    assert check.predicted_exponent == pytest.approx(4 / (a + 3) - 3, rel=1e-12)
+    assert check.predicted_exponent_stderr == pytest.approx(abs(slope) * fit.exponent_stderr, rel=1e-6)
+    assert check.predicted_exponent_stderr == pytest.approx(0.25 * fit.exponent_stderr, rel=1e-3)
