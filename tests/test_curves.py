@@ -1,6 +1,8 @@
 """Curve geometry from exact derivatives: curvature, polar quantities, the force-curvature
 relation, the interior and the straight-path test."""
 
+import math
+
 import numpy as np
 import pytest
 
@@ -113,3 +115,47 @@ def test_the_relation_residual_vanishes_on_an_exact_hooke_orbit():
                                      sense=1.0, reference_radius=r_ref, timed=timed)
         assert np.abs(residual(1.0)).max() < 1e-10                # terms of size 0.1 to 30
         assert np.abs(residual(1.1)).max() > 1e-3 and np.abs(residual(1.0, cx=c[0] + 0.01)).max() > 1e-3
+
+
+def _delta_method(function, values, variances, covariances=()):
+    """sqrt(g^T C g) with g the central-difference gradient of ``function`` at ``values`` (the
+    delta method; common practice), C diagonal plus the given (i, j, cov) pairs."""
+    values = np.asarray(values, dtype=float)
+    gradient = np.empty(values.size)
+    for i in range(values.size):
+        step = 1e-6 * max(abs(values[i]), 1.0)
+        up, down = values.copy(), values.copy()
+        up[i] += step
+        down[i] -= step
+        gradient[i] = (function(up) - function(down)) / (2 * step)
+    covariance = np.diag(np.asarray(variances, dtype=float))
+    for i, j, value in covariances:
+        covariance[i, j] = covariance[j, i] = value
+    return float(np.sqrt(gradient @ covariance @ gradient))
+
+
+def test_the_curvature_and_radius_errors_are_the_delta_method_of_their_formulas():
+    from types import SimpleNamespace
+
+    from forcefit.geometry.curves import curvature_of, polar_about
+
+    # one point with unequal derivatives and variances, and a first-second covariance per axis
+    dx, dy, ddx, ddy = 0.7, -1.3, 2.1, 0.4
+    var = dict(dx=1e-4, dy=4e-4, ddx=9e-4, ddy=2.5e-3)
+    cov = dict(x=2e-4, y=-5e-4)
+    curve = SimpleNamespace(
+        value=np.array([[1.5, -0.4]]), first=np.array([[dx, dy]]), second=np.array([[ddx, ddy]]),
+        value_var=np.array([[3e-6, 7e-6]]), first_var=np.array([[var["dx"], var["dy"]]]),
+        second_var=np.array([[var["ddx"], var["ddy"]]]), first_second_cov=np.array([[cov["x"], cov["y"]]]))
+    kappa, stderr = curvature_of(curve)
+
+    def curvature(v):
+        return (v[0] * v[3] - v[1] * v[2]) / (v[0] ** 2 + v[1] ** 2) ** 1.5
+
+    assert kappa[0] == pytest.approx(curvature([dx, dy, ddx, ddy]), rel=1e-12)
+    expected = _delta_method(curvature, [dx, dy, ddx, ddy], list(var.values()),
+                             [(0, 2, cov["x"]), (1, 3, cov["y"])])
+    assert stderr[0] == pytest.approx(expected, rel=1e-6)
+    polar = polar_about(curve, np.array([0.2, 0.3]))
+    expected = _delta_method(lambda p: math.hypot(p[0] - 0.2, p[1] - 0.3), [1.5, -0.4], [3e-6, 7e-6])
+    assert polar.radius_stderr[0] == pytest.approx(expected, rel=1e-6)
