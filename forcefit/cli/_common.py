@@ -15,6 +15,7 @@ from ._camera import add_plane_options, add_tracking_options, plane_mapping, tra
 if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
     from ..dynamics.forces import ExtraForces
     from ..dynamics.propagate import Drag
+    from ..reading.astrometry import Astrometry
     from ..reading.coordinates import Calibration
     from ..track import Track
 
@@ -158,6 +159,22 @@ def read_tracks(path: str, args: argparse.Namespace) -> list[Track]:
     from ..reading.loaders import load_tracks
 
     return load_tracks(path, **loading_keywords(args))  # type: ignore[arg-type]
+
+
+def read_sky_data(args: argparse.Namespace, defaults: Mapping[str, Any], allowed: Sequence[str],
+                  takes: str) -> Astrometry:
+    """The sky positions of ``args.file`` for ``--projected``, after refusing every option given
+    that the projected fit does not take (``allowed`` are its options; ``takes`` says them)."""
+    from ..reading.astrometry import load_astrometry
+
+    given = sorted(name for name, default in defaults.items()
+                   if name not in (*allowed, "file", "projected", "handler", "command", "parser")
+                   and getattr(args, name, default) != default)
+    if given:
+        listed = ", ".join("--" + name.replace("_", "-") for name in given)
+        raise InputError(f"{listed} does not apply to --projected; it takes {takes}.")
+    sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
+    return load_astrometry(args.file, length_unit=args.length_unit, sheet=sheet)
 
 
 def recorded_options(args: argparse.Namespace) -> dict[str, Any]:

@@ -19,6 +19,7 @@ from ._common import (
     add_orbit_options,
     measured_length,
     orbit_options,
+    read_sky_data,
     read_tracks,
     recorded_options,
 )
@@ -231,17 +232,9 @@ PROJECTED_OPTIONS = ("fix_exponent", "centre", "robust", "json", "length_unit", 
 def _cmd_fit_projected(args: argparse.Namespace, parser_defaults: dict[str, Any]) -> int:
     """``fit FILE --projected``: the law and the orientation of an orbit seen on the sky."""
     from ..estimators.projected import fit_projected
-    from ..reading.astrometry import load_astrometry
 
-    given = sorted(name for name, default in parser_defaults.items()
-                   if name not in (*PROJECTED_OPTIONS, "file", "projected", "handler", "command")
-                   and getattr(args, name, default) != default)
-    if given:
-        listed = ", ".join("--" + name.replace("_", "-") for name in given)
-        raise InputError(f"{listed} does not apply to --projected; it takes --fix-exponent, --centre, "
-                         "--robust, --json, --length-unit and --sheet.")
-    sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
-    data = load_astrometry(args.file, length_unit=args.length_unit, sheet=sheet)
+    data = read_sky_data(args, parser_defaults, PROJECTED_OPTIONS,
+                         "--fix-exponent, --centre, --robust, --json, --length-unit and --sheet")
     fit = fit_projected(data, exponent=args.fix_exponent, centre=args.centre,
                         loss="soft_l1" if args.robust else "linear")
     reports = Reports(args.json)

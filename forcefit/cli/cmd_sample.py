@@ -16,6 +16,7 @@ from ._common import (
     add_centre_option,
     add_orbit_options,
     orbit_options,
+    read_sky_data,
     read_tracks,
 )
 
@@ -70,17 +71,9 @@ def _cmd_sample_projected(args: argparse.Namespace) -> int:
     from ..estimators.projected import fit_projected
     from ..formatting import measurement
     from ..inference.projected_posterior import sample_projected
-    from ..reading.astrometry import load_astrometry
 
-    given = sorted(name for name, default in args.defaults.items()
-                   if name not in (*PROJECTED_OPTIONS, "file", "projected", "handler", "command", "parser")
-                   and getattr(args, name, default) != default)
-    if given:
-        listed = ", ".join("--" + name.replace("_", "-") for name in given)
-        raise InputError(f"{listed} does not apply to --projected; it takes --fix-exponent, --centre, "
-                         "--length-unit, --sheet, --json and the sampling options but --report.")
-    sheet = int(args.sheet) if str(args.sheet).isdigit() else args.sheet
-    data = load_astrometry(args.file, length_unit=args.length_unit, sheet=sheet)
+    data = read_sky_data(args, args.defaults, PROJECTED_OPTIONS, "--fix-exponent, --centre, "
+                         "--length-unit, --sheet, --json and the sampling options but --report")
     fit = fit_projected(data, exponent=args.fix_exponent, centre=args.centre)
     posterior = sample_projected(fit, **_sampling(args, args.resume or args.save))
     name = data.track.name

@@ -158,6 +158,16 @@ def _take_step(y, t, h, k, y_new, stage, exponent, strength, forces, table_t, ta
     return step_error(y, y_new, k, atol, rtol, h, n_state)
 
 
+@njit(cache=True, inline="always")
+def _first_step(y, derivative):  # type: ignore[no-untyped-def]
+    """The first step's size, a hundredth of the shorter of the time to cross the radius at the
+    current speed and under the current acceleration, and the radius itself."""
+    speed = np.sqrt(y[2] ** 2 + y[3] ** 2)
+    accel = np.sqrt(derivative[2] ** 2 + derivative[3] ** 2)
+    radius = np.sqrt(y[0] ** 2 + y[1] ** 2)
+    return 0.01 * min(radius / max(speed, 1e-300), np.sqrt(radius / max(accel, 1e-300))), radius
+
+
 @njit(cache=True)
 def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy, rtol, atol, out):  # type: ignore[no-untyped-def]
     """Integrate from times[start]'s epoch state y0 through times[order] (one direction)."""
@@ -168,10 +178,7 @@ def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy,
     stage = np.empty(n_state)
     t = start
     _derivative(y, t, k[0], exponent, strength, forces, table_t, table_xy)
-    speed = np.sqrt(y[2] ** 2 + y[3] ** 2)
-    accel = np.sqrt(k[0][2] ** 2 + k[0][3] ** 2)
-    radius = np.sqrt(y[0] ** 2 + y[1] ** 2)
-    h_abs = 0.01 * min(radius / max(speed, 1e-300), np.sqrt(radius / max(accel, 1e-300)))
+    h_abs, radius = _first_step(y, k[0])
     steps = 0
     limit = BASE_STEPS + STEPS_PER_SAMPLE * order.size
     closest2 = (CLOSEST * radius) ** 2
@@ -243,10 +250,7 @@ def _leg_dense(times, order, start, y0, exponent, strength, forces, table_t, tab
     stage = np.empty(n_state)
     t = start
     _derivative(y, t, k[0], exponent, strength, forces, table_t, table_xy)
-    speed = np.sqrt(y[2] ** 2 + y[3] ** 2)
-    accel = np.sqrt(k[0][2] ** 2 + k[0][3] ** 2)
-    radius = np.sqrt(y[0] ** 2 + y[1] ** 2)
-    h_abs = 0.01 * min(radius / max(speed, 1e-300), np.sqrt(radius / max(accel, 1e-300)))
+    h_abs, radius = _first_step(y, k[0])
     steps = 0
     limit = BASE_STEPS + STEPS_PER_SAMPLE * order.size
     closest2 = (CLOSEST * radius) ** 2
