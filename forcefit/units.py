@@ -199,7 +199,11 @@ def _power(symbol: str, exponent: float) -> str:
     if abs(exponent - 1.0) < 1e-12:
         return symbol
     rounded = round(exponent)
-    text = str(rounded) if abs(exponent - rounded) < 1e-9 else f"{exponent:.3g}"
+    if abs(exponent - rounded) < 1e-9:
+        return f"{symbol}^{rounded}"
+    # three significant digits, never in e-notation (m^-0.0000256, not m^-2.56e-05)
+    decimals = max(0, 2 - math.floor(math.log10(abs(exponent))))
+    text = f"{exponent:.{decimals}f}".rstrip("0").rstrip(".")
     return f"{symbol}^{text}"
 
 
@@ -217,6 +221,8 @@ def strength_unit(length_unit: str, time_unit: str, exponent: float) -> str:
     --------
     >>> strength_unit("m", "s", 1.0), strength_unit("au", "d", -2.0)
     ('s^-2', 'au^3 d^-2')
+    >>> strength_unit("m", "s", 1.0000256), strength_unit("px", "s", -1.2345)
+    ('m^-0.0000256 s^-2', 'px^2.23 s^-2')
     """
     if not math.isfinite(exponent):
         return f"{length_unit}^(1-n) {time_unit}^-2"
