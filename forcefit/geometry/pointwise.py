@@ -302,9 +302,9 @@ def sampling_covariance(curve: SmoothedCurve, used: np.ndarray) -> FloatArray:
     rows = np.zeros((3 * picks.size, curve.parameter.size, 3, 2))
     for order in range(3):
         rows[order::3, used[picks], order, 0] = np.eye(picks.size)
-    influence = curve.response.influence(rows)
-    probe = curve.response.covariance(influence)
-    sampled = np.stack([probe[3 * k:3 * k + 3, 3 * k:3 * k + 3] for k in range(picks.size)])
+    influence = curve.response.influence(rows) * np.sqrt(curve.response.noise_var)[None, :, None]
+    blocks = influence.reshape(picks.size, 3, curve.parameter.size, 2)
+    sampled = np.einsum("kaic,kbic->kab", blocks, blocks, optimize=True)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(np.abs(bayes[picks]) > 0, sampled / bayes[picks], 0.0)
     out = np.empty_like(bayes)
