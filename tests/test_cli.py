@@ -292,6 +292,21 @@ def test_a_commands_help_loads_none_of_the_numerical_libraries(command):
     assert result.stderr.strip() == "[]" and "usage: forcefit " + command in result.stdout
 
 
+@pytest.mark.parametrize(("command", "absent"), [
+    (["fit", "--method", "shape"], ("lmfit", "emcee")),
+    (["apsides"], ("lmfit", "emcee")),
+])
+def test_the_time_free_fit_and_apsides_load_no_orbit_optimiser(command, absent):
+    # lmfit (with scipy.stats, matplotlib and emcee behind it) is slow to import: only the orbit
+    # method needs it
+    path = str(DEMO / "class_pendulum" / "run_02.csv")
+    code = (f"import sys\nfrom forcefit.cli import main\nmain({[command[0], path, *command[1:]]!r})\n"
+            f"print([m for m in {absent!r} if m in sys.modules], file=sys.stderr)")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert result.stderr.strip().splitlines()[-1] == "[]"
+    assert ("shape fit" if command[0] == "fit" else "apsidal angle") in result.stdout
+
+
 def test_the_fit_commands_methods_are_the_registrys():
     from forcefit.cli.cmd_fit import METHODS
 
