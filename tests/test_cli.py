@@ -140,15 +140,15 @@ def test_orbit_options_are_refused_for_time_free_methods(capsys):
 def test_sample_reports_an_unconverged_run_and_resumes_it(tmp_path, capsys):
     path = str(DEMO / "class_pendulum" / "run_02.csv")
     chain = tmp_path / "chain.h5"
-    assert main(["sample", path, "--max-steps", "100", "--seed", "1", "--save", str(chain),
+    assert main(["sample", path, "--max-steps", "50", "--seed", "1", "--save", str(chain),
                  "--json"]) == 1
     (report,) = json.loads(capsys.readouterr().out)
     assert report["posterior"]["converged"] is False and "Run longer" in report["posterior"]["reason"]
-    assert main(["sample", path, "--max-steps", "200", "--resume", str(chain), "--json",
-                 "--figures", str(tmp_path / "plots")]) == 1     # 200 steps are still too few
+    assert main(["sample", path, "--max-steps", "100", "--resume", str(chain), "--json",
+                 "--figures", str(tmp_path / "plots")]) == 1     # 100 steps are still too few
     (report,) = json.loads(capsys.readouterr().out)
-    assert report["posterior"]["converged"] is False and "after 200 steps" in report["posterior"]["reason"]
-    assert report["posterior"]["n_steps"] == 200
+    assert report["posterior"]["converged"] is False and "after 100 steps" in report["posterior"]["reason"]
+    assert report["posterior"]["n_steps"] == 100
     assert (tmp_path / "plots" / "run_02_corner.png").stat().st_size > 10_000
     assert main(["sample", path, "--save", str(chain), "--resume", str(chain)]) == 2
 
