@@ -118,11 +118,11 @@ def screened():
 
 @pytest.fixture(scope="session")
 def sharp_posterior():
-    """A short posterior (500 steps) of a nearly noise-free orbit with n = -2.0004: its 68%
+    """A short posterior (200 steps) of a nearly noise-free orbit with n = -2.0004: its 68%
     interval of n is about 1e-8 wide, so printing it needs many digits."""
     from forcefit.dynamics.simulate import simulate_orbit
     from forcefit.estimators import fit_orbit
     from forcefit.inference.posterior import sample_posterior
 
     track = simulate_orbit(exponent=-2.0004, noise=2e-7, duration=20.0, rate=15.0, rng=11, name="sharp")
-    return sample_posterior(fit_orbit(track), rng=3, progress=False, max_steps=500, min_steps=500)
+    return sample_posterior(fit_orbit(track), rng=3, progress=False, max_steps=200, min_steps=200)

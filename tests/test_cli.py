@@ -140,15 +140,15 @@ def test_orbit_options_are_refused_for_time_free_methods(capsys):
 def test_sample_reports_an_unconverged_run_and_resumes_it(tmp_path, capsys):
     path = str(DEMO / "class_pendulum" / "run_02.csv")
     chain = tmp_path / "chain.h5"
-    assert main(["sample", path, "--max-steps", "300", "--seed", "1", "--save", str(chain),
+    assert main(["sample", path, "--max-steps", "50", "--seed", "1", "--save", str(chain),
                  "--json"]) == 1
     (report,) = json.loads(capsys.readouterr().out)
     assert report["posterior"]["converged"] is False and "Run longer" in report["posterior"]["reason"]
-    assert main(["sample", path, "--max-steps", "600", "--resume", str(chain), "--json",
-                 "--figures", str(tmp_path / "plots")]) == 1     # 600 steps are still too few
+    assert main(["sample", path, "--max-steps", "100", "--resume", str(chain), "--json",
+                 "--figures", str(tmp_path / "plots")]) == 1     # 100 steps are still too few
     (report,) = json.loads(capsys.readouterr().out)
-    assert report["posterior"]["converged"] is False and "after 600 steps" in report["posterior"]["reason"]
-    assert report["posterior"]["n_steps"] == 600
+    assert report["posterior"]["converged"] is False and "after 100 steps" in report["posterior"]["reason"]
+    assert report["posterior"]["n_steps"] == 100
     assert (tmp_path / "plots" / "run_02_corner.png").stat().st_size > 10_000
     assert main(["sample", path, "--save", str(chain), "--resume", str(chain)]) == 2
 
@@ -290,6 +290,21 @@ def test_a_commands_help_loads_none_of_the_numerical_libraries(command):
             "'emcee', 'cv2', 'av', 'pint') if m in sys.modules]\nprint(heavy, file=sys.stderr)")
     result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert result.stderr.strip() == "[]" and "usage: forcefit " + command in result.stdout
+
+
+@pytest.mark.parametrize(("command", "absent"), [
+    (["fit", "--method", "shape"], ("lmfit", "emcee")),
+    (["apsides"], ("lmfit", "emcee")),
+])
+def test_the_time_free_fit_and_apsides_load_no_orbit_optimiser(command, absent):
+    # lmfit (with scipy.stats, matplotlib and emcee behind it) is slow to import: only the orbit
+    # method needs it
+    path = str(DEMO / "class_pendulum" / "run_02.csv")
+    code = (f"import sys\nfrom forcefit.cli import main\nmain({[command[0], path, *command[1:]]!r})\n"
+            f"print([m for m in {absent!r} if m in sys.modules], file=sys.stderr)")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert result.stderr.strip().splitlines()[-1] == "[]"
+    assert ("shape fit" if command[0] == "fit" else "apsidal angle") in result.stdout
 
 
 def test_the_fit_commands_methods_are_the_registrys():

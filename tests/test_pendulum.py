@@ -24,6 +24,13 @@ def swing():
     return track, fit_orbit(track)
 
 
+@pytest.fixture(scope="module")
+def corrected(swing):
+    """The swing's correction for its true length, 2 m (computed once: it fits ideal pendulums)."""
+    track, fit = swing
+    return pendulum_correction(fit, track, length=2.0)
+
+
 def test_the_raw_fit_is_not_hookes_law_at_face_value(swing):
     _, fit = swing
     assert fit.passed
@@ -31,9 +38,7 @@ def test_the_raw_fit_is_not_hookes_law_at_face_value(swing):
     assert fit.exponent == pytest.approx(1 - 1.1 * 0.05**2, abs=2e-3)
 
 
-def test_the_correction_gives_back_hookes_law_and_g(swing):
-    track, fit = swing
-    corrected = pendulum_correction(fit, track, length=2.0)
+def test_the_correction_gives_back_hookes_law_and_g(corrected):
     assert abs(corrected.exponent - 1.0) < 3 * corrected.exponent_stderr
     assert abs(corrected.gravity - G) < 3 * corrected.gravity_stderr
     assert corrected.gravity_stderr < 1e-3 * G                     # and it is a precise test
@@ -73,10 +78,9 @@ def test_a_wide_swing_is_corrected_in_full_not_to_first_order():
     assert corrected.omega_squared_stderr < 2e-5 * G / length      # a precise test of g
 
 
-def test_g_is_printed_in_si_whatever_the_track_units(swing):
+def test_g_is_printed_in_si_whatever_the_track_units(swing, corrected):
     # the same swing in mm and ms: g/L in s^-2 and g in m/s^2, as for the track in m and s
-    track, fit = swing
-    corrected = pendulum_correction(fit, track, length=2.0)
+    track, _ = swing
     scaled = Track(t=np.asarray(track.t) * 1e3, x=np.asarray(track.x) * 1e3, y=np.asarray(track.y) * 1e3,
                    length_unit="mm", time_unit="ms")
     in_mm = pendulum_correction(fit_orbit(scaled), scaled, length=2000.0)
@@ -85,11 +89,11 @@ def test_g_is_printed_in_si_whatever_the_track_units(swing):
     assert float(rows["g"].text.split(" ± ")[0]) == pytest.approx(corrected.gravity, rel=1e-5)
 
 
-def test_notes_say_what_the_user_may_have_got_wrong(swing):
-    track, fit = swing
+def test_notes_say_what_the_user_may_have_got_wrong(swing, corrected):
+    track, _ = swing
     # the Earth's rotation (left out here) moves n by up to 4 Omega_E / omega: 1.3e-4 for L = 2 m
     # (a rotating frame turns a Hooke ellipse by Omega P per period; common practice)
-    notes = pendulum_correction(fit, track, length=2.0).notes
+    notes = corrected.notes
     assert any("turns with the Earth" in note and "--latitude" in note for note in notes)
     turning = fit_orbit(track, rotation_rate=-5.4e-5)
     assert not any("turns with the Earth" in note

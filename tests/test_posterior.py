@@ -6,6 +6,7 @@ import re
 import numpy as np
 import pytest
 
+from forcefit.dynamics.laws import circular_period
 from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import InputError
 from forcefit.estimators import fit_orbit, fit_shape
@@ -43,7 +44,9 @@ def test_linear_gaussian_toy_matches_the_closed_form():
 
 @pytest.fixture(scope="module")
 def rosette_fit():
-    track = simulate_orbit(exponent=-1.5, noise=0.005, rng=1)
+    # three periods of the n = -1.5 circle in 301 samples: half the default rate, half the cost
+    # of every posterior step, and still a posterior the least-squares errors must match
+    track = simulate_orbit(exponent=-1.5, noise=0.005, rng=1, rate=100 / circular_period(1.0, -1.5, 1.0))
     return fit_orbit(track)
 
 
@@ -68,13 +71,13 @@ def test_unknown_noise_is_sampled_as_a_scale():
     track = simulate_orbit(exponent=1.0, noise=0.004, rng=3)
     halved = Track(t=track.t, x=track.x, y=track.y, sigma=0.002, name="sigma halved")
     posterior = sample_posterior(fit_orbit(halved), noise="fit", rng=3, progress=False,
-                                 max_steps=1000)                     # the scale mixes long before n
+                                 max_steps=300)                      # the scale mixes long before n
     scale = posterior.samples["noise_scale"]
     assert 0 < float(np.std(scale)) < 0.1
     assert abs(float(np.median(scale)) - 2.0) < 4 * float(np.std(scale))
     # without sigma the scale is sampled by default (a short run suffices to see it)
     bare = Track(t=track.t, x=track.x, y=track.y, name="no sigma")
-    assert "noise_scale" in sample_posterior(fit_orbit(bare), rng=3, progress=False, max_steps=300).samples
+    assert "noise_scale" in sample_posterior(fit_orbit(bare), rng=3, progress=False, max_steps=100).samples
 
 
 def test_a_short_run_says_it_has_not_converged(rosette_fit):
@@ -101,7 +104,7 @@ def test_priors_are_checked_and_applied(rosette_fit):
     with pytest.raises(InputError, match="uniform"):
         sample_posterior(rosette_fit, priors={"exponent": ("flat", 0, 1)}, progress=False)
     tight = sample_posterior(rosette_fit, priors={"exponent": ("normal", -1.5, 1e-5)}, rng=6,
-                             progress=False, max_steps=1500)
+                             progress=False, max_steps=800)
     assert float(np.std(tight.samples["exponent"])) < 2e-5
 
 

@@ -120,7 +120,7 @@ def _check_estimator(track, estimator):
         assert math.isfinite(other.exponent)
 
 
-QUICK = settings(max_examples=200, deadline=None, suppress_health_check=list(HealthCheck))
+QUICK = settings(max_examples=100, deadline=None, suppress_health_check=list(HealthCheck))
 LONG = settings(max_examples=5000, deadline=None, suppress_health_check=list(HealthCheck))
 PATIENT = settings(LONG, deadline=timedelta(seconds=300))  # an answer, and in bounded time
 
@@ -137,7 +137,7 @@ def test_loaders_on_random_frames(frame):
     _check_frames(frame)
 
 
-@settings(QUICK, max_examples=60)
+@settings(QUICK, max_examples=30)
 @given(track=tracks(), estimator=st.sampled_from(ESTIMATORS))
 def test_estimators_on_random_tracks(track, estimator):
     _check_estimator(track, estimator)

@@ -21,7 +21,6 @@ from .._json import json_safe
 from .._regression import fit_line
 from .._types import FloatArray, Row
 from ..dynamics.laws import exponent_from_apsidal_angle, lab_rotation_rate
-from ..dynamics.simulate import spherical_pendulum_states
 from ..errors import InputError, NotIdentifiable
 from ..estimators.result import Diagnostic
 from ..formatting import CHECK_MARKS, measurement
@@ -461,6 +460,8 @@ def finite_amplitude_precession(semi_major: float, semi_minor: float, length: fl
     >>> round(exact / pendulum_precession_rate(0.05, 0.02, 2.0, 9.81), 3)
     0.999
     """
+    from ..dynamics.simulate import spherical_pendulum_states  # scipy.integrate: only here
+
     omega = math.sqrt(gravity / length)
     period = 2.0 * math.pi / omega
     times = np.arange(0.0, 6.0 * period, period / 400.0)

@@ -153,7 +153,6 @@ def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tupl
     the deviation from it, and with --pendulum-length an orbit fit near n = 1 with its finite
     swing taken off."""
     from ..analysis.deviation import deviation_from
-    from ..analysis.pendulum import pendulum_correction
     from ..estimators import OrbitFit
     from ..units import length_factor
 
@@ -163,6 +162,8 @@ def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tupl
                                pendulum_length_stderr=0.0 if length is None else length[1])
     beside: list[tuple[str, Companion]] = [("deviation", deviation)]
     if length is not None and isinstance(fit, OrbitFit) and abs(fit.exponent - 1.0) < NEAR_HOOKE:
+        from ..analysis.pendulum import pendulum_correction  # it refits: only when asked for
+
         try:
             scale = length_factor(length[2], track.length_unit)
             beside.append(("pendulum", pendulum_correction(fit, track, length=length[0] * scale,
@@ -244,8 +245,6 @@ def _cmd_fit_projected(args: argparse.Namespace, parser_defaults: dict[str, Any]
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
-    from ..estimators import fit_orbit
-
     if args.projected:
         return _cmd_fit_projected(args, args.defaults)
     status, reports = EXIT_OK, Reports(args.json)
@@ -254,6 +253,8 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         if len(tracks) < 2 or (args.method or "orbit") != "orbit":
             raise InputError("--joint fits several runs of one file (an id column) with the orbit "
                              f"method together; {args.file} holds {len(tracks)} track(s).")
+        from ..estimators import fit_orbit  # lmfit is slow to import: only for the orbit method
+
         joint = fit_orbit(tracks, shared_centre=not args.separate_centres, **orbit_options(args, tracks[0]))
         reports.add(joint.to_dict(), joint.to_text())
         reports.close()

@@ -15,6 +15,10 @@ from ..geometry.path import PathGeometry
 from ..track import Track
 from .result import Diagnostic
 
+RESOLVED_EXCURSION = 10.0
+"""The fitted orbit's radial half-range must exceed this many of its standard errors (the orbit
+and shape fits)."""
+
 
 def require_orbit(path: PathGeometry) -> None:
     """Refuse paths from which no exponent can be read.

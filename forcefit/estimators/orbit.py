@@ -27,7 +27,13 @@ from ..dynamics.orbit_model import OrbitModel, observed
 from ..errors import FitError, GeometryError, InputError, NotIdentifiable
 from ..geometry.noise import difference_noise
 from ..track import Track
-from ._checks import chi_square_diagnostic, require_bend, require_one_sense, runs_diagnostic
+from ._checks import (
+    RESOLVED_EXCURSION,
+    chi_square_diagnostic,
+    require_bend,
+    require_one_sense,
+    runs_diagnostic,
+)
 from ._start import StartProblem, orbit_start
 from .result import Diagnostic, OrbitFit
 
@@ -35,9 +41,6 @@ Loss = Literal["linear", "soft_l1", "huber"]
 
 MIN_SAMPLES = 12
 """Fewest samples per track the orbit fit accepts (it fits up to 7 numbers from each)."""
-
-RESOLVED_EXCURSION = 10.0
-"""The fitted orbit's radial half-range must exceed this many of its standard errors."""
 
 OUTLIER_Z = 5.0
 """Residuals beyond this many robust standard deviations are reported as outliers."""

@@ -7,18 +7,15 @@ and one contract test runs on each (tests/test_registry.py).
 
 from __future__ import annotations
 
+import importlib
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
-from typing import Any
+from typing import Any, cast
 
 from ..errors import InputError
 from ..track import Track
-from .acceleration import fit_acceleration
-from .curvature import fit_curvature
-from .orbit import fit_orbit
 from .result import AccelerationFit, CurvatureFit, LawFit, OrbitFit, ShapeFit
-from .shape import fit_shape
 
 
 @dataclass(frozen=True)
@@ -27,8 +24,12 @@ class Estimator:
 
     Attributes
     ----------
-    function : callable
-        ``function(track, *, centre=None, ...)`` returning ``result_type``.
+    module : str
+        The module that defines it, within `forcefit.estimators` (e.g. ``".orbit"``); it is
+        imported on first use, so that naming an estimator costs no start-up (the orbit fit's
+        optimiser, for one, is slow to import).
+    name : str
+        Its function's name in ``module``.
     needs_times : bool
         True when the estimator refuses a shape-only track.
     description : str
@@ -37,20 +38,28 @@ class Estimator:
         The `LawFit` subclass it returns.
     """
 
-    function: Callable[..., LawFit]
+    module: str
+    name: str
     needs_times: bool
     description: str
     result_type: type[LawFit]
 
+    @property
+    def function(self) -> Callable[..., LawFit]:
+        """``function(track, *, centre=None, ...)`` returning ``result_type``."""
+        module = importlib.import_module(self.module, __package__)
+        return cast(Callable[..., LawFit], getattr(module, self.name))
+
 
 ESTIMATORS: Mapping[str, Estimator] = MappingProxyType({
-    "orbit": Estimator(fit_orbit, True, "the integrated orbit fitted to every sample (the reference)",
-                       OrbitFit),
-    "shape": Estimator(fit_shape, False, "Binet's equation fitted to the path, time-free", ShapeFit),
-    "curvature": Estimator(fit_curvature, False, "the force-curvature relation as a line in log-log",
-                           CurvatureFit),
-    "acceleration": Estimator(fit_acceleration, True, "the radial acceleration against r",
-                              AccelerationFit),
+    "orbit": Estimator(".orbit", "fit_orbit", True,
+                       "the integrated orbit fitted to every sample (the reference)", OrbitFit),
+    "shape": Estimator(".shape", "fit_shape", False, "Binet's equation fitted to the path, time-free",
+                       ShapeFit),
+    "curvature": Estimator(".curvature", "fit_curvature", False,
+                           "the force-curvature relation as a line in log-log", CurvatureFit),
+    "acceleration": Estimator(".acceleration", "fit_acceleration", True,
+                              "the radial acceleration against r", AccelerationFit),
 })
 """The estimators by name."""
 

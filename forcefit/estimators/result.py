@@ -11,16 +11,18 @@ import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from types import MappingProxyType
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from .._json import json_safe
 from .._types import FloatArray, Row, frozen_array
-from ..dynamics.orbit_model import OrbitModel
-from ..dynamics.sky import ProjectedOrbitModel
 from ..formatting import CHECK_MARKS, matched, measurement
 from ..units import strength_per_h2_unit, strength_unit
+
+if TYPE_CHECKING:        # the models' modules load the integrators; a result only holds a model
+    from ..dynamics.orbit_model import OrbitModel
+    from ..dynamics.sky import ProjectedOrbitModel
 
 NAN = float("nan")
 

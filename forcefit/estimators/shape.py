@@ -32,6 +32,7 @@ from ..geometry.path import PathGeometry, force_relation
 from ..track import Track
 from ._binet_fit import BinetProblem, Effort, Evaluation, evaluate, fit_binet, polar
 from ._checks import (
+    RESOLVED_EXCURSION,
     chi_square_diagnostic,
     constancy_diagnostic,
     require_bend,
@@ -39,7 +40,6 @@ from ._checks import (
     runs_diagnostic,
 )
 from ._start import AREAL_TOLERANCE, areal_misfit, centre_candidates
-from .orbit import RESOLVED_EXCURSION
 from .result import CurvaturePoints, Diagnostic, ShapeFit
 
 AMBIGUITY_FACTOR = 1.5

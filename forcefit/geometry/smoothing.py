@@ -6,7 +6,6 @@ import math
 from typing import Literal
 
 import numpy as np
-from scipy.signal import savgol_coeffs, savgol_filter
 
 from .._types import FloatArray
 from ..errors import GeometryError
@@ -73,6 +72,8 @@ def _pilot(parameter: FloatArray, track: Track, level: float | None) -> Smoothed
 
 
 def _savgol(parameter: FloatArray, track: Track, window: int) -> SmoothedCurve:
+    from scipy.signal import savgol_coeffs, savgol_filter  # scipy.signal is slow to import: only here
+
     steps = np.diff(parameter)
     if track.t is not None and np.ptp(steps) > 0.01 * np.median(steps):
         raise GeometryError(
