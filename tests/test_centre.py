@@ -99,3 +99,32 @@ def test_centre_of_a_narrow_ellipse_whose_acceleration_lies_along_one_axis():
     assert estimate.method == "acceleration lines"
     for axis in (0, 1):
         assert 0 < estimate.stderr[axis] < 0.05 and abs(estimate.centre[axis]) < 4 * estimate.stderr[axis]
+
+
+def test_the_first_centre_is_the_weighted_least_squares_meeting_point_of_the_lines():
+    # The fit of the acceleration lines starts from the point nearest to all of them: it minimises
+    # sum (a x (c - p))^2 / sd^2 (the cross product is |a| times the distance from c to the line
+    # through p along a: common practice). Exact lines through (2, -1) meet there; lines bent at
+    # random meet where an independent least-squares solver (scipy's) puts the minimum.
+    from scipy.optimize import least_squares
+
+    from forcefit.geometry.centre import _first_intersection
+
+    rng = np.random.default_rng(5)
+    angle = rng.uniform(0.0, 2 * np.pi, 40)
+    points = np.column_stack((2.0 + 3.0 * np.cos(angle), -1.0 + 1.5 * np.sin(angle)))
+    towards = np.array([2.0, -1.0]) - points
+    accel = towards * rng.uniform(0.5, 4.0, 40)[:, None]
+    sd = rng.uniform(0.05, 0.5, 40)
+    magnitude = np.hypot(accel[:, 0], accel[:, 1])
+    np.testing.assert_allclose(_first_intersection(points, accel, magnitude, sd), [2.0, -1.0], atol=1e-12)
+    bent = accel + 0.3 * magnitude[:, None] * rng.standard_normal((40, 2))
+    bent_magnitude = np.hypot(bent[:, 0], bent[:, 1])
+
+    def lines(c):
+        return (bent[:, 0] * (c[1] - points[:, 1]) - bent[:, 1] * (c[0] - points[:, 0])) / sd
+
+    reference = least_squares(lines, np.zeros(2), xtol=1e-15, ftol=1e-15, gtol=1e-15).x
+    found = _first_intersection(points, bent, bent_magnitude, sd)
+    np.testing.assert_allclose(found, reference, atol=1e-9)
+    assert np.linalg.norm(found - [2.0, -1.0]) > 1e-3               # the bent lines do not meet at (2, -1)

@@ -159,3 +159,13 @@ def test_the_curvature_and_radius_errors_are_the_delta_method_of_their_formulas(
     polar = polar_about(curve, np.array([0.2, 0.3]))
     expected = _delta_method(lambda p: math.hypot(p[0] - 0.2, p[1] - 0.3), [1.5, -0.4], [3e-6, 7e-6])
     assert polar.radius_stderr[0] == pytest.approx(expected, rel=1e-6)
+
+    # gamma = atan2(r_hat . v_hat, |r_hat x v_hat|) of the position and the velocity, whose
+    # errors are independent: its error is the delta method over (x, y, vx, vy) (common practice)
+    def gamma(p):
+        rx, ry, vx, vy = p[0] - 0.2, p[1] - 0.3, p[2], p[3]
+        return math.atan2(rx * vx + ry * vy, abs(rx * vy - ry * vx))
+
+    assert polar.gamma[0] == pytest.approx(gamma([1.5, -0.4, dx, dy]), rel=1e-12)
+    expected = _delta_method(gamma, [1.5, -0.4, dx, dy], [3e-6, 7e-6, var["dx"], var["dy"]])
+    assert polar.gamma_stderr[0] == pytest.approx(expected, rel=1e-6)

@@ -432,3 +432,19 @@ def test_the_band_is_two_sided_and_holds_its_edges(side):
     for ratio, inside in ((0.05 - 1e-6, True), (0.05 + 1e-6, False)):
         assert rule.strength_within(4.905 * (1 + side * ratio)) is inside, (side, ratio)
     assert GradingRule(expect=1.0, tolerance=0.02).strength_within(123.0)   # no strength asked
+
+
+def test_a_class_without_settings_is_graded_by_the_starting_files_rule():
+    # The starting settings file states the rule's defaults (and --min-turns' help says "default
+    # 1"): a class graded with no settings file and one graded with the untouched starting file
+    # must meet the same rule, or the file would mislead whoever edits it.
+    import tomllib
+
+    from forcefit.apps.class_settings import STARTING_FILE
+    from forcefit.apps.grading import rule_with_settings
+
+    written = tomllib.loads(STARTING_FILE)["rule"]
+    rule = rule_with_settings(None, rule={"expect": written["expect"], "tolerance": written["tolerance"]},
+                              options={})
+    assert rule.min_turns == written["min_turns"] == 1.0
+    assert (rule.strength, rule.strength_tolerance, rule.strength_unit) == (None, None, None)

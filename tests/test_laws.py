@@ -1,3 +1,5 @@
+import math
+
 import numpy as np
 import pytest
 
@@ -46,3 +48,29 @@ def test_circular_periods_scale_with_radius_as_their_law_says(radius):
         speed = float(circular_speed(radius, exponent, 4.0))
         assert float(circular_period(radius, exponent, 4.0)) == pytest.approx(2 * np.pi * radius / speed,
                                                                               rel=1e-12)
+
+
+@pytest.mark.parametrize("exponent", [-2.0, -1.0, 0.5, 1.0])
+def test_the_apsidal_angle_at_equal_radii_is_the_near_circular_limit(exponent):
+    # Newton, Principia (1687), Book I, Prop. 45 (from memory): a nearly circular orbit in
+    # F = -k r^n turns through pi / sqrt(n + 3) between apsides; r_max / r_min = 1 is allowed,
+    # and just above it the exact integral agrees to the orbit's own second order.
+    from forcefit.dynamics.laws import apsidal_angle
+
+    limit = math.pi / math.sqrt(exponent + 3.0)
+    assert apsidal_angle(exponent, 1.0) == pytest.approx(limit, rel=1e-14)
+    assert apsidal_angle(exponent, 1.0 + 1e-4) == pytest.approx(limit, rel=1e-6)
+    with pytest.raises(ValueError, match="at least 1"):
+        apsidal_angle(exponent, 1.0 - 1e-12)
+
+
+@pytest.mark.parametrize("eccentricity", [0.1, 0.5, 0.8])
+def test_the_exponent_from_a_precession_finds_the_closed_laws(eccentricity):
+    # Newton, Principia (1687), Book I, Prop. X and XI (from memory): the Hooke ellipse (n = 1)
+    # is closed about its centre, apsides a quarter turn apart (precession 2 (pi/2) - 2 pi = -pi
+    # per radial period); the Kepler ellipse (n = -2) about its focus, half a turn (none).
+    from forcefit.dynamics.laws import exponent_from_precession, precession_per_orbit
+
+    assert exponent_from_precession(-math.pi, eccentricity) == pytest.approx(1.0, abs=1e-9)
+    assert exponent_from_precession(0.0, eccentricity) == pytest.approx(-2.0, abs=1e-9)
+    assert precession_per_orbit(1.0, eccentricity) == pytest.approx(-math.pi, abs=1e-12)
