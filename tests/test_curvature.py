@@ -38,11 +38,16 @@ def test_the_power_law_check_measures_how_much_the_local_exponent_changes(bent):
     # F = r^(-2 + b ln r) has the local exponent -2 + 2 b ln r (differentiate ln F by ln r; common
     # practice): across the track's radial range it changes by 2 b ln(r_max / r_min), which the
     # check must report within 4 of its stated errors (its change over its number of standard
-    # errors) and call significant.
+    # errors) and call significant. The track and its centre are moved to (3, -2) m together,
+    # which changes no radius: a radius measured from anywhere but the centre would show.
+    from dataclasses import replace
+
     track, truth = bent
-    check = fit_curvature(track, centre=(0.0, 0.0)).diagnostics["power law"]
+    moved = replace(track, x=np.asarray(track.x) + 3.0, y=np.asarray(track.y) - 2.0)
+    check = fit_curvature(moved, centre=(3.0, -2.0)).diagnostics["power law"]
     found = re.search(r"changes by ([-+0-9.e]+) across the radial range \(([0-9.]+) standard errors\)",
                       check.message)
     assert found and check.passed is False
     change, z = float(found[1]), float(found[2])
     assert z > 5 and abs(change - truth) < 4 * abs(change) / z
+
