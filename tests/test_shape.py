@@ -189,6 +189,27 @@ def test_uneven_sampling_without_times_is_fitted_about_a_free_centre():
     assert math.dist(fit.centre, (0.3, -0.2)) < 3 * math.hypot(*fit.centre_stderr)
 
 
+
+def test_a_path_with_every_sample_recorded_twice_states_the_same_errors():
+    # Every sample written twice adds no information: the least-squares covariance halves, and the
+    # residuals, each repeated once, have the integrated autocorrelation time 1 + 2 sum rho(t) =
+    # 1 + 2 (1/2) = 2 (common practice), which widens it back. The stated errors must agree
+    # to the correlation time's own scatter (~3%).
+    track = _uneven_rosette(2)
+    once = fit_shape(track, centre=(0.3, -0.2))
+    twice = fit_shape(Track(x=np.repeat(track.x, 2), y=np.repeat(track.y, 2)), centre=(0.3, -0.2))
+    assert once.correlation_time == 1.0 and twice.correlation_time == pytest.approx(2.0, rel=0.1)
+    assert twice.exponent == pytest.approx(once.exponent, abs=1e-6 * once.exponent_stderr)
+    assert twice.exponent_stderr == pytest.approx(once.exponent_stderr, rel=0.05)
+    # The Binet solution starts at a sample's polar angle in the middle of the swept angle (within
+    # the largest gap between samples), so it is integrated over half the path each way.
+    theta = np.unwrap(np.arctan2(np.asarray(track.y) + 0.2, np.asarray(track.x) - 0.3))
+    turns = (once.reference_angle - theta) / (2 * math.pi)
+    at = np.flatnonzero(np.abs(turns - np.round(turns)) < 1e-9)
+    assert at.size == 1
+    gap = float(np.max(np.abs(np.diff(theta))))
+    assert abs(theta[at[0]] - 0.5 * (theta.min() + theta.max())) <= gap
+
 def test_uneven_sampling_reports_the_noise_the_residuals_show():
     # With the centre given it worked but printed "reduced chi2 0.101": the noise was taken from a
     # smoothing against the sample index, 3 times too large. Without sigma the fit now reports the
@@ -198,6 +219,14 @@ def test_uneven_sampling_reports_the_noise_the_residuals_show():
     assert fit.noise == pytest.approx(2e-3, rel=0.1) and "chi-square" not in fit.diagnostics
     given = fit_shape(Track(x=track.x, y=track.y, sigma=2e-3), centre=(0.3, -0.2))
     assert given.diagnostics["chi-square"].passed and given.reduced_chi2 == pytest.approx(1.0, abs=0.2)
+    # The errors of a fit in the noise it finds are those of the same fit with that noise given as
+    # sigma (both are (J^T J)^-1 of the same residuals in the same units: common practice), though
+    # the provisional noise the first starts from is 5 times too large here.
+    assert fit.reduced_chi2 == pytest.approx(1.0, rel=1e-9)
+    found = fit_shape(Track(x=track.x, y=track.y, sigma=fit.noise), centre=(0.3, -0.2))
+    assert found.exponent == pytest.approx(fit.exponent, abs=1e-3 * fit.exponent_stderr)
+    for name in ("exponent_stderr", "strength_per_h2_stderr"):
+        assert getattr(found, name) == pytest.approx(getattr(fit, name), rel=1e-6), name
 
 
 def test_random_walk_spends_at_most_its_budget(monkeypatch):
