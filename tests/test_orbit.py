@@ -269,3 +269,16 @@ def test_without_sigma_the_errors_follow_the_residuals_spread():
     assert ratio == pytest.approx(np.sqrt(known.reduced_chi2), rel=0.02)
     assert unknown.strength_stderr / known.strength_stderr == pytest.approx(ratio, rel=0.02)
     assert unknown.reduced_chi2 == pytest.approx(1.0, rel=0.02)
+
+
+def test_a_perturber_that_does_not_cover_the_data_is_refused_with_both_spans():
+    # The refusal states the perturber's span and the track's, first and last times, as given.
+    from forcefit.dynamics.forces import ExtraForces, Perturber
+    from forcefit.errors import InputError
+
+    t = np.linspace(0.0, 10.0, 201)
+    track = Track(t=t, x=np.cos(t) + 0.2 * np.cos(2 * t), y=np.sin(t), time_unit="d", name="comet")
+    short = Perturber(times=np.linspace(1.0, 5.0, 9), positions=np.ones((9, 2)) * 4, gm=0.01, name="moon")
+    stated = r"moon: its positions span t = 1 to 5 d, but track 'comet' runs from 0 to 10\. "
+    with pytest.raises(InputError, match=stated):
+        fit_orbit(track, extra=ExtraForces(perturber=short))
