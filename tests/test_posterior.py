@@ -138,6 +138,17 @@ def test_the_correlated_likelihood_counts_each_residual_one_tau_th():
     gap_correlated = correlated(best[None])[0] - correlated(away[None])[0]
     gap_independent = independent(best[None])[0] - independent(away[None])[0]
     assert gap_correlated == pytest.approx(gap_independent / tau, rel=1e-9)
+    # The walkers start from the normal approximation of each posterior: its covariance C is the
+    # inverse curvature of ln p at the peak (Laplace's approximation; e.g. Gelman et al. 2013,
+    # Bayesian Data Analysis, 3rd ed., §4.1), so a step of 0.7 along any unit direction in the
+    # metric of C lowers ln p by 0.7^2 / 2, on either side, for both likelihoods.
+    directions = np.random.default_rng(0).standard_normal((4, best.size))
+    directions /= np.linalg.norm(directions, axis=1)[:, None]
+    for problem, tau_used in ((correlated, tau), (independent, 1.0)):
+        start, start_covariance = _problem(fit, "known", {}, tau_used)[1:]
+        steps = 0.7 * directions @ np.linalg.cholesky(start_covariance).T
+        log_p = problem(np.vstack((start[None], start + steps, start - steps)))
+        np.testing.assert_allclose(log_p[0] - log_p[1:], 0.7**2 / 2, rtol=0.02)
 
 
 @pytest.mark.slow
@@ -199,3 +210,23 @@ def test_a_chain_knows_its_track_model_and_priors(rosette_fit, tmp_path):
     with pytest.raises(InputError, match="belongs to another run"):
         sample_posterior(rosette_fit, rng=5, progress=False, max_steps=20, min_steps=20, save=chain,
                          resume=True, priors={"exponent": ("uniform", -3.0, 0.0)})
+
+
+def test_a_chain_whose_tau_still_changes_has_not_converged():
+    # The rule (its docstring and the README): converged when the chain is more than 50
+    # autocorrelation times long AND tau changed by less than 5% between the last two checks,
+    # 250 steps apart. Here, on a 2-d standard normal, the first holds and the second does not
+    # (both recomputed from the chain with emcee's own estimator), so the verdict must be "no".
+    import emcee
+
+    from forcefit.inference.posterior import CHECK_EVERY, TAU_FACTOR, TAU_SETTLED
+
+    def log_probability(theta):
+        return -0.5 * np.sum(theta**2, axis=1)
+
+    sampler, converged, reason = run_ensemble(log_probability, np.zeros(2), np.eye(2), rng=1, max_steps=500)
+    chain = sampler.get_chain()
+    tau = emcee.autocorr.integrated_time(chain, tol=0)
+    before = emcee.autocorr.integrated_time(chain[:-CHECK_EVERY], tol=0)
+    assert chain.shape[0] / tau.max() > TAU_FACTOR and np.max(np.abs(before - tau) / tau) > TAU_SETTLED
+    assert not converged and "tau is still changing" in reason
