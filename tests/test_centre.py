@@ -1,5 +1,7 @@
 """Finding the force centre, with and without timestamps."""
 
+import math
+
 import numpy as np
 import pytest
 
@@ -128,3 +130,55 @@ def test_the_first_centre_is_the_weighted_least_squares_meeting_point_of_the_lin
     found = _first_intersection(points, bent, bent_magnitude, sd)
     np.testing.assert_allclose(found, reference, atol=1e-9)
     assert np.linalg.norm(found - [2.0, -1.0]) > 1e-3               # the bent lines do not meet at (2, -1)
+
+
+def _exact_hooke_curve(omega=2.0, a=0.3, b=0.1, centre=(2.0, -1.0), angle=0.6, n_points=801):
+    """x = a cos(wt), y = b sin(wt) turned by ``angle`` and moved to ``centre``, with its exact
+    derivatives and no errors: an orbit of F = -w^2 r about ``centre``."""
+    from forcefit.geometry.pspline import SmoothedCurve
+
+    t = np.linspace(0.0, 2 * np.pi / omega, n_points)
+    turn = np.array([[np.cos(angle), -np.sin(angle)], [np.sin(angle), np.cos(angle)]])
+    local = np.column_stack((a * np.cos(omega * t), b * np.sin(omega * t)))
+    value = local @ turn.T + np.asarray(centre)
+    first = np.column_stack((-a * omega * np.sin(omega * t), b * omega * np.cos(omega * t))) @ turn.T
+    second = -omega**2 * local @ turn.T
+    zeros = np.zeros_like(value)
+    tiny = np.full_like(value, 1e-12)
+    return SmoothedCurve(parameter=t, value=value, first=first, second=second, value_var=tiny,
+                         first_var=tiny, second_var=tiny, first_second_cov=zeros,
+                         noise=np.zeros(t.size), level=1.0, knot_spacing=t[1] - t[0], dof=10.0,
+                         span=0.1, method="exact")
+
+
+def test_the_relation_starts_at_hookes_law_with_times_and_without():
+    # Newton (1687), Principia, Book I, Prop. X: the ellipse about its centre needs F = w^2 r, so
+    # the relation's first line has slope n = 1 and, with times, ln F(r_ref) = ln(w^2 r_ref); without
+    # them ln(F / h^2) with h = a b w, the ellipse's constant angular momentum.
+    from forcefit.geometry.centre import relation_start
+
+    curve = _exact_hooke_curve()
+    used = np.ones(curve.parameter.size, dtype=bool)
+    for timed in (True, False):
+        (slope, intercept), reference, sense = relation_start(curve, used, np.array([2.0, -1.0]), timed)
+        h2 = 1.0 if timed else (0.3 * 0.1 * 2.0) ** 2
+        assert slope == pytest.approx(1.0, abs=1e-9) and sense == 1.0
+        assert intercept == pytest.approx(np.log(4.0 * reference / h2), abs=1e-9)
+
+
+def test_the_shape_search_starts_at_the_middle_the_centroid_and_the_foci():
+    # An ellipse of semi-axes a, b has its foci sqrt(a^2 - b^2) from its centre along the major
+    # axis (Apollonius, Conics, III.45; common practice); its bounding box's middle and its
+    # evenly sampled centroid are its centre.
+    from forcefit.geometry.centre import _starting_centres
+
+    curve = _exact_hooke_curve()
+    points = curve.value[:-1]                                     # one full turn, evenly in angle
+    starts = _starting_centres(points)
+    focal = math.sqrt(0.3**2 - 0.1**2) * np.array([np.cos(0.6), np.sin(0.6)])
+    expected = [(2.0, -1.0), (2.0, -1.0), np.array([2.0, -1.0]) + focal, np.array([2.0, -1.0]) - focal]
+    assert len(starts) == 4
+    np.testing.assert_allclose(starts[0], expected[0], atol=1e-4)
+    np.testing.assert_allclose(starts[1], expected[1], atol=1e-12)
+    for found, focus in zip(sorted(starts[2:], key=lambda c: c[0]), sorted(expected[2:], key=lambda c: c[0])):
+        np.testing.assert_allclose(found, focus, atol=1e-4)

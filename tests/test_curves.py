@@ -169,3 +169,18 @@ def test_the_curvature_and_radius_errors_are_the_delta_method_of_their_formulas(
     assert polar.gamma[0] == pytest.approx(gamma([1.5, -0.4, dx, dy]), rel=1e-12)
     expected = _delta_method(gamma, [1.5, -0.4, dx, dy], [3e-6, 7e-6, var["dx"], var["dy"]])
     assert polar.gamma_stderr[0] == pytest.approx(expected, rel=1e-6)
+
+    # the relation's point ln(kappa / (r^2 cos^3 gamma)) from independent kappa, r and gamma:
+    # its error is their delta method (common practice)
+    from forcefit.geometry.curves import curvature_relation
+
+    points = curvature_relation(curve, kappa, stderr, np.array([0.2, 0.3]), np.array([True]))
+
+    def relation(p):
+        return math.log(abs(p[0])) - 2.0 * math.log(p[1]) - 3.0 * math.log(math.cos(p[2]))
+
+    values = [kappa[0], polar.radius[0], polar.gamma[0]]
+    assert points.log_force_per_h2[0] == pytest.approx(relation(values), rel=1e-12)
+    expected = _delta_method(relation, values, [stderr[0] ** 2, polar.radius_stderr[0] ** 2,
+                                                polar.gamma_stderr[0] ** 2])
+    assert points.sigma[0] == pytest.approx(expected, rel=1e-6)

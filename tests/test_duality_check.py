@@ -75,3 +75,15 @@ def test_the_predicted_dual_exponent_carries_the_fits_error(hooke_check):
     assert check.predicted_exponent == pytest.approx(4 / (a + 3) - 3, rel=1e-12)
     assert check.predicted_exponent_stderr == pytest.approx(abs(slope) * fit.exponent_stderr, rel=1e-6)
     assert check.predicted_exponent_stderr == pytest.approx(0.25 * fit.exponent_stderr, rel=1e-3)
+
+
+@pytest.mark.parametrize("sign", [-1.0, 1.0])
+def test_the_z_score_is_the_difference_in_the_combined_error(sign):
+    # z = (fitted - predicted) / sqrt(s_f^2 + s_p^2) for independent errors (common practice);
+    # with no error on either side a difference is infinitely significant, and an unknown error
+    # leaves z unknown.
+    from forcefit.analysis.duality_check import _z
+
+    assert _z(1.0 + sign * 0.5, 0.3, 1.0, 0.4) == pytest.approx(sign * 0.5 / 0.5, rel=1e-15)
+    assert abs(_z(1.0 + sign * 0.5, 0.0, 1.0, 0.0)) == math.inf
+    assert math.isnan(_z(1.5, math.nan, 1.0, 0.4)) and math.isnan(_z(1.5, 0.3, 1.0, math.inf))
