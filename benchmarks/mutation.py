@@ -96,6 +96,40 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "cache=False only stops numba keeping the compiled code on disk: the same machine code runs",
     ("forcefit/dynamics/_kernel.py", "@njit(cache=True)", 0):
         "cache=False only stops numba keeping the compiled code on disk: the same machine code runs",
+    ("forcefit/estimators/curvature.py", "starts = None", 0):
+        "'' and None are both false, and find_centre reads starts only by its truth: the same branch",
+    ("forcefit/inference/posterior.py", "FIRST_GUESS = 2000", 0):
+        "the progress bar's first guess of the chain's length, shown until the first check (250 "
+        "steps) replaces it with the estimate from tau; no sample, verdict or result depends on it",
+    ("forcefit/inference/posterior.py", "scale = np.sqrt(np.clip(np.diag(covariance), 1e-300, None))", 0):
+        "a floor against a zero variance only: a variance below 2e-300 in a fitted parameter does "
+        "not occur, and at exactly 0 the correlation's column is 0 under either floor",
+    ("forcefit/geometry/curves.py", "MIN_COS_GAMMA = 1e-6", 0):
+        "a floor against division by zero where the motion is radial: a point with cos(gamma) below "
+        "2e-6 has a relation error ~3 tan(gamma) sigma_gamma > 1e6 sigma_gamma, so its weight in "
+        "any fit is ~1e-12 of the others' under either floor",
+    ("forcefit/estimators/curvature.py",
+     "log_r = np.log(np.hypot(value[:, 0] - cx, value[:, 1] - cy) / reference)", 4):
+        "ln(r r_ref) = ln(r / r_ref) + 2 ln r_ref: b (ln(r/r_ref) + c)^2 differs from b ln(r/r_ref)^2 by "
+        "a term linear in ln r and a constant, which n and ln f_ref absorb; only b and its error are "
+        "used (the power-law check), and a linear reparametrisation leaves both unchanged",
+    ("forcefit/dynamics/propagate.py", "before = times < t0", 0):
+        "a sample at exactly the epoch goes to the backward leg instead of the forward one; either "
+        "leg returns the start state there (solve_ivp's first output at t_eval = t0 is y0)",
+    ("forcefit/inference/posterior.py", "if length > TAU_FACTOR and change < TAU_SETTLED:", 0):
+        "differs only when the chain is exactly 50.0 autocorrelation times long: a ratio of "
+        "continuous estimates that never lands on the boundary",
+    ("forcefit/inference/posterior.py", "if length > TAU_FACTOR and change < TAU_SETTLED:", 1):
+        "differs only when tau changed by exactly 5% between checks: a continuous estimate that "
+        "never lands on the boundary",
+}
+
+# the same, for a line whose text recurs in its module: (module, enclosing function, line, index)
+EQUIVALENT_IN: dict[tuple[str, str, str, int], str] = {
+    ("forcefit/dynamics/propagate.py", "_leg", "centre: tuple[float, float] = (0.0, 0.0),", 0):
+        "_leg's default centre: its only callers (both legs of propagate_reference) always pass it",
+    ("forcefit/dynamics/propagate.py", "_leg", "centre: tuple[float, float] = (0.0, 0.0),", 1):
+        "_leg's default centre: its only callers (both legs of propagate_reference) always pass it",
 }
 
 
@@ -111,8 +145,23 @@ class Mutant:
         return f"{self.module}:{self.line_number}:{self.index}"
 
 
+def _enclosing(module: str, line_number: int) -> str:
+    """The name of the innermost function or class around a line of ``module`` ("" at top level)."""
+    name, span = "", None
+    for node in ast.walk(ast.parse((ROOT / module).read_text())):
+        if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)):
+            first = min([node.lineno] + [d.lineno for d in node.decorator_list])
+            last = node.end_lineno or node.lineno
+            if first <= line_number <= last and (span is None or last - first < span):
+                name, span = node.name, last - first
+    return name
+
+
 def _equivalence(mutant: Mutant) -> str | None:
-    return EQUIVALENT.get((mutant.module, mutant.line.strip(), mutant.index))
+    line = mutant.line.strip()
+    return (EQUIVALENT.get((mutant.module, line, mutant.index))
+            or EQUIVALENT_IN.get((mutant.module, _enclosing(mutant.module, mutant.line_number), line,
+                                  mutant.index)))
 
 
 def _config() -> SimpleNamespace:
