@@ -1,5 +1,6 @@
 """The curvature estimator: the force-curvature relation as a straight line in log-log."""
 
+import math
 import re
 
 import numpy as np
@@ -51,3 +52,25 @@ def test_the_power_law_check_measures_how_much_the_local_exponent_changes(bent):
     change, z = float(found[1]), float(found[2])
     assert z > 5 and abs(change - truth) < 4 * abs(change) / z
 
+
+
+def test_a_circular_orbit_is_refused_with_the_noise_in_the_radius():
+    # A circle shows no exponent. The refusal compares the spread of r with what noise alone gives:
+    # 8 times the radius's error, which for equal errors in x and y is their common error whatever
+    # the direction (delta method, var r = ux^2 var x + uy^2 var y; common practice).
+    from forcefit.errors import NotIdentifiable
+    from forcefit.geometry.curves import interior
+    from forcefit.geometry.smoothing import smooth_track
+
+    rng = np.random.default_rng(1)
+    t = np.linspace(0.0, 20.0, 801)                                      # s
+    track = Track(t=t, x=np.cos(t) + 1e-3 * rng.standard_normal(t.size),
+                  y=np.sin(t) + 1e-3 * rng.standard_normal(t.size))     # m
+    curve = smooth_track(track)
+    inside = interior(curve)
+    np.testing.assert_allclose(curve.value_var[inside, 0], curve.value_var[inside, 1], rtol=1e-9)
+    expected = 8.0 * math.sqrt(float(np.mean(curve.value_var[inside, 0])))
+    with pytest.raises(NotIdentifiable, match="hardly changes") as refused:
+        fit_curvature(track, centre=(0.0, 0.0))
+    found = re.search(r"noise alone moves it by about ([0-9.e-]+)\)", str(refused.value))
+    assert found and float(found[1]) == pytest.approx(expected, rel=0.03)      # printed to 2 digits
