@@ -116,6 +116,9 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/dynamics/propagate.py", "before = times < t0", 0):
         "a sample at exactly the epoch goes to the backward leg instead of the forward one; either "
         "leg returns the start state there (solve_ivp's first output at t_eval = t0 is y0)",
+    ("forcefit/geometry/curves.py", "return 1.0 if angle[-1] >= angle[0] else -1.0", 3):
+        "differs only when the tangent's unwrapped angle ends exactly where it began (net turning "
+        "exactly 0): a path with no sense of turning, which the estimators refuse as straight first",
     ("forcefit/inference/posterior.py", "if length > TAU_FACTOR and change < TAU_SETTLED:", 0):
         "differs only when the chain is exactly 50.0 autocorrelation times long: a ratio of "
         "continuous estimates that never lands on the boundary",
