@@ -282,3 +282,14 @@ def test_a_perturber_that_does_not_cover_the_data_is_refused_with_both_spans():
     stated = r"moon: its positions span t = 1 to 5 d, but track 'comet' runs from 0 to 10\. "
     with pytest.raises(InputError, match=stated):
         fit_orbit(track, extra=ExtraForces(perturber=short))
+
+
+def test_a_held_exponent_and_a_given_centre_stay_as_given():
+    # Holding n (a profile's point, or a law known beforehand) and giving the centre leave both
+    # exactly as given, with no error and no place among the fitted parameters; the strength is
+    # still fitted, within its stated errors of the truth (k = 1).
+    track = simulate_orbit(exponent=-1.0, noise=0.005, rng=6)
+    fit = fit_orbit(track, exponent=-1.0, centre=(0.0, 0.0))
+    assert fit.exponent == -1.0 and tuple(fit.centre) == (0.0, 0.0)
+    assert not any(name == "exponent" or name.startswith("centre") for name in fit.parameter_names)
+    assert abs(fit.strength - 1.0) < 4 * fit.strength_stderr
