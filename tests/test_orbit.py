@@ -50,6 +50,10 @@ def test_robust_loss_shrugs_off_tracking_glitches():
     message = plain.diagnostics["outliers"].message
     assert plain.diagnostics["outliers"].passed is False
     assert all(f"sample {index + 1} of {track.n_points} (t = " in message for index in sorted(planted)[:5])
+    # least squares fails the check and says what to do; the robust loss says what it did with them
+    assert message.endswith("; refit with a robust loss (--robust) or remove them.")
+    kept = robust.diagnostics["outliers"]
+    assert kept.passed is None and kept.message.endswith("; down-weighted by the robust loss.")
 
 
 def test_outliers_are_named_by_the_files_row_and_time(tmp_path):
