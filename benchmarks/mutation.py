@@ -108,6 +108,9 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
      "return 0.01 * min(radius / max(speed, 1e-300), np.sqrt(radius / max(accel, 1e-300))), radius", 3):
         "a floor against zero speed only, 1e-300 -> 2e-300; positions identical (0 difference)",
     ("forcefit/dynamics/_kernel.py",
+     "return 0.01 * min(radius / max(speed, 1e-300), np.sqrt(radius / max(accel, 1e-300))), radius", 5):
+        "a floor against zero acceleration only, 1e-300 -> 2e-300; positions identical (0 difference)",
+    ("forcefit/dynamics/_kernel.py",
      "factor = MAX_FACTOR if error == 0.0 else min(MAX_FACTOR, SAFETY * error ** (-1.0 / 8.0))", 7):
         "the step's growth as error^(-1/9) instead of error^(-1/8); positions move by 1.3e-10",
     ("forcefit/dynamics/_kernel.py", "h_abs = abs(h) * max(MIN_FACTOR, SAFETY * error ** (-1.0 / 8.0))", 6):
