@@ -297,3 +297,23 @@ def test_a_held_exponent_and_a_given_centre_stay_as_given():
     assert fit.exponent == -1.0 and tuple(fit.centre) == (0.0, 0.0)
     assert not any(name == "exponent" or name.startswith("centre") for name in fit.parameter_names)
     assert abs(fit.strength - 1.0) < 4 * fit.strength_stderr
+
+
+def test_the_correlation_check_states_the_lag_one_autocorrelation_and_the_widening():
+    # r_1 = sum(d_i d_{i+1}) / sum(d_i^2) of the centred residuals (Box & Jenkins 1976, Time Series
+    # Analysis, eq. 2.1.12, from memory); errors widened by sqrt(tau) when tau > 1.5 samples.
+    from forcefit.estimators.orbit import _residual_checks
+
+    generator = np.random.default_rng(2)
+    radial = np.zeros(400)
+    for i in range(1, radial.size):
+        radial[i] = 0.8 * radial[i - 1] + generator.standard_normal()
+    centred = radial - radial.mean()
+    lag_one = float(np.sum(centred[1:] * centred[:-1]) / np.sum(centred**2))
+    check = _residual_checks(radial, np.full(radial.size, 2.0), "linear", 9.0)["correlation"]
+    assert check.passed is False
+    stated = (f"lag-one autocorrelation of the radial residuals {lag_one:+.2f}; the residuals stay alike "
+              "over 9 samples, so the errors are widened 3 times")
+    assert check.message.startswith(stated)
+    alike = _residual_checks(radial[::25], np.ones(16), "linear", 1.0)["correlation"]
+    assert "stay alike" not in alike.message

@@ -230,3 +230,17 @@ def test_a_chain_whose_tau_still_changes_has_not_converged():
     before = emcee.autocorr.integrated_time(chain[:-CHECK_EVERY], tol=0)
     assert chain.shape[0] / tau.max() > TAU_FACTOR and np.max(np.abs(before - tau) / tau) > TAU_SETTLED
     assert not converged and "tau is still changing" in reason
+
+
+def test_the_default_bounds_are_the_physical_ones():
+    # Without a prior of the caller's, each parameter is bounded only by physics: a drag
+    # coefficient and a parallax are never negative but may be as small as they like (an air
+    # table's drag is ~0.01-0.1 /s: common practice), and the exponent stays within +-20.
+    from forcefit.inference.posterior import _log_prior
+
+    names = ("exponent", "drag", "parallax", "x0")
+    inside = np.array([[-2.0, 0.0, 0.0, -5.0], [19.9, 0.03, 1e-6, 7.0], [-19.9, 1e3, 0.5, 0.0]])
+    outside = np.array([[-2.0, -1e-9, 0.1, 0.0], [-2.0, 0.1, -1e-9, 0.0], [20.1, 0.1, 0.1, 0.0],
+                        [-20.1, 0.1, 0.1, 0.0]])
+    assert np.all(_log_prior(inside, names, {}) == 0.0)
+    assert np.all(_log_prior(outside, names, {}) == -np.inf)
