@@ -22,8 +22,8 @@ recompiles for each of its mutants)::
 where an interrupted study stopped (the last line of a mutant counts); ``--recheck`` runs the
 logged survivors again, after tests were added to kill them. ``--list`` prints the population
 per module and exits; ``--only FILE:LINE:INDEX`` runs one mutant (to check that a new test
-kills it); ``--baseline`` runs each module's tests unmutated, which must all pass before the
-score means anything.
+kills it; with ``--recheck`` a logged survivor's new outcome is logged); ``--baseline`` runs
+each module's tests unmutated, which must all pass before the score means anything.
 """
 
 from __future__ import annotations
@@ -356,7 +356,7 @@ def main(argv: list[str] | None = None) -> int:
                 record = {"key": mutant.key, "outcome": outcome, "seconds": round(seconds, 1),
                           "was": mutant.line.strip(), "now": _changed_line(mutant, new),
                           "rechecked": bool(recheck)}
-                if args.log and not args.only:
+                if args.log and (not args.only or recheck):
                     with args.log.open("a") as log:
                         log.write(json.dumps(record) + "\n")
             print(f"[{i}/{len(chosen)}] {record['outcome']:<10s} {record['key']}"

@@ -67,3 +67,13 @@ def test_the_common_symbols_taken_without_pint_are_pints_own():
     for symbol in COMMON_TIMES:
         pint_symbol = f"{_lookup(symbol, '[time]'):~}".replace(" ", "")
         assert parse_time_unit(symbol) == symbol == ("yr" if pint_symbol == "a" else pint_symbol)
+
+
+@pytest.mark.parametrize("power, expected", [(1e-9, "m^1e-09"), (-1e-9, "m^-1e-09"), (1.5e-9, "m^1.5e-09"),
+                                             (2.0 + 5e-10, "m^2"), (-3.0 - 5e-10, "m^-3"), (2.5, "m^2.5")])
+def test_a_power_is_printed_whole_only_within_rounding_of_a_whole_number(power, expected):
+    # A power within 1e-9 of a whole number is that number (the rounding of 1 - n and the like);
+    # from 1e-9 on it is printed as it is, to 3 significant digits.
+    from forcefit.units import _power
+
+    assert _power("m", power) == expected
