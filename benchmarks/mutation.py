@@ -126,6 +126,21 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "a step whose scaled error is exactly 1.0 kept (a float equality); positions identical",
     ("forcefit/dynamics/_kernel.py", "if error >= 1.0:", 0):
         "a step whose scaled error is exactly 1.0 kept (a float equality); positions identical",
+    ("forcefit/dynamics/_kernel.py",
+     "if y[0] * y[0] + y[1] * y[1] < closest2 or not np.isfinite(y[0] + y[1]):", 9):
+        "a blown-up state is caught a step later: once x or y is not finite, the next derivative "
+        "is nan in every component, the step's error is nan (never < 1), the step shrinks to the "
+        "floor and the leg returns FAILED as before (the orbit is marked failed either way)",
+    ("forcefit/dynamics/_kernel.py",
+     "if y[0] * y[0] + y[1] * y[1] < closest2 or not np.isfinite(y[0] + y[1]):", 10):
+        "a blown-up state is caught a step later: once x or y is not finite, the next derivative "
+        "is nan in every component, the step's error is nan (never < 1), the step shrinks to the "
+        "floor and the leg returns FAILED as before (the orbit is marked failed either way)",
+    ("forcefit/dynamics/_kernel.py",
+     "if y[0] * y[0] + y[1] * y[1] < closest2 or not np.isfinite(y[0] + y[1]):", 11):
+        "a blown-up state is caught a step later: once x or y is not finite, the next derivative "
+        "is nan in every component, the step's error is nan (never < 1), the step shrinks to the "
+        "floor and the leg returns FAILED as before (the orbit is marked failed either way)",
     ("forcefit/estimators/curvature.py", "starts = None", 0):
         "'' and None are both false, and find_centre reads starts only by its truth: the same branch",
     ("forcefit/inference/posterior.py", "FIRST_GUESS = 2000", 0):
