@@ -317,3 +317,15 @@ def test_the_correlation_check_states_the_lag_one_autocorrelation_and_the_wideni
     assert check.message.startswith(stated)
     alike = _residual_checks(radial[::25], np.ones(16), "linear", 1.0)["correlation"]
     assert "stay alike" not in alike.message
+
+
+def test_the_fit_does_not_depend_on_the_unit_of_time():
+    # The same samples with their times in seconds and in milliseconds are the same orbit: the
+    # exponent and its error must agree to the integrator's accuracy (dimensional analysis:
+    # common practice), whatever steps the numerical derivatives take in each unit.
+    track = simulate_orbit(exponent=-1.5, noise=0.002, rng=3)
+    seconds = fit_orbit(Track(t=track.t, x=track.x, y=track.y, time_unit="s"))
+    millis = fit_orbit(Track(t=np.asarray(track.t) * 1e3, x=track.x, y=track.y, time_unit="ms"))
+    assert millis.exponent == pytest.approx(seconds.exponent, abs=1e-6 * seconds.exponent_stderr)
+    assert millis.exponent_stderr == pytest.approx(seconds.exponent_stderr, rel=1e-6)
+    assert millis.strength == pytest.approx(seconds.strength * 1e-6, rel=1e-6)     # m^2.5 ms^-2
