@@ -194,7 +194,7 @@ def time_factor(from_unit: str, to_unit: str) -> float:
 
 def _power(symbol: str, exponent: float) -> str:
     """``symbol`` raised to ``exponent`` as text, or "" for a zero power."""
-    if abs(exponent) < 1e-12:
+    if abs(exponent) < 1e-9:      # as close to zero as a whole power must be to print as one
         return ""
     if abs(exponent - 1.0) < 1e-12:
         return symbol

@@ -85,5 +85,6 @@ def test_the_z_score_is_the_difference_in_the_combined_error(sign):
     from forcefit.analysis.duality_check import _z
 
     assert _z(1.0 + sign * 0.5, 0.3, 1.0, 0.4) == pytest.approx(sign * 0.5 / 0.5, rel=1e-15)
-    assert abs(_z(1.0 + sign * 0.5, 0.0, 1.0, 0.0)) == math.inf
+    assert _z(1.0 + sign * 0.5, 0.0, 1.0, 0.0) == sign * math.inf     # no error: the side is kept
+    assert _z(1.0, 0.0, 1.0, 0.0) == 0.0
     assert math.isnan(_z(1.5, math.nan, 1.0, 0.4)) and math.isnan(_z(1.5, 0.3, 1.0, math.inf))

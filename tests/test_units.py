@@ -71,7 +71,7 @@ def test_the_common_symbols_taken_without_pint_are_pints_own():
 
 @pytest.mark.parametrize("power, expected", [
     (1e-9, "m^0.000000001"), (-1e-9, "m^-0.000000001"), (1.5e-9, "m^0.0000000015"),
-    (2.0 + 5e-10, "m^2"), (-3.0 - 5e-10, "m^-3"), (2.5, "m^2.5")])
+    (2.0 + 5e-10, "m^2"), (-3.0 - 5e-10, "m^-3"), (2.5, "m^2.5"), (5e-10, ""), (-5e-10, "")])
 def test_a_power_is_printed_whole_only_within_rounding_of_a_whole_number(power, expected):
     # A power within 1e-9 of a whole number is that number (the rounding of 1 - n and the like);
     # from 1e-9 on it is printed as it is, to 3 significant digits and never in e-notation.

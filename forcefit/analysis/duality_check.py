@@ -103,7 +103,10 @@ def _z(fitted: float, fitted_stderr: float, predicted: float, predicted_stderr: 
     spread = math.hypot(fitted_stderr, predicted_stderr)
     if not math.isfinite(spread):
         return math.nan
-    return (fitted - predicted) / spread if spread > 0 else math.inf
+    if spread > 0:
+        return (fitted - predicted) / spread
+    # no error at all: any difference is infinitely significant, on its own side
+    return math.copysign(math.inf, fitted - predicted) if fitted != predicted else 0.0
 
 
 def check_duality(track: Track, fit: LawFit, refit: Callable[..., LawFit] | None = None) -> DualityCheck:
