@@ -319,6 +319,21 @@ def test_the_correlation_check_states_the_lag_one_autocorrelation_and_the_wideni
     assert "stay alike" not in alike.message
 
 
+def test_outliers_are_counted_in_gaussian_standard_deviations_of_the_residuals():
+    # The robust standard deviation is 1.4826 times the median absolute deviation, which equals
+    # the standard deviation for Gaussian residuals (Rousseeuw & Croux 1993, J. Am. Statist.
+    # Assoc. 88, 1273, eq. 1.1). A residual 15% beyond OUTLIER_Z such deviations is named, one
+    # 15% inside is not, whatever sigma the residuals are stated in.
+    from forcefit.estimators.orbit import OUTLIER_Z, _residual_checks
+
+    radial = 3.0 * np.random.default_rng(4).standard_normal(4000)       # noise 3, sigma 2 stated
+    radial[100] = 3.0 * 1.15 * OUTLIER_Z
+    radial[200] = -3.0 * 0.85 * OUTLIER_Z
+    check = _residual_checks(radial, np.full(radial.size, 2.0), "linear", 1.0)["outliers"]
+    assert check.passed is False
+    assert "1 samples lie beyond" in check.message and "samples 101;" in check.message
+
+
 def test_the_fit_does_not_depend_on_the_unit_of_time():
     # The same samples with their times in seconds and in milliseconds are the same orbit: the
     # exponent and its error must agree to the integrator's accuracy (dimensional analysis:
