@@ -432,8 +432,9 @@ def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss,
         verdict = None if loss != "linear" else False
         advice = "down-weighted by the robust loss" if loss != "linear" else (
             "refit with a robust loss (--robust) or remove them")
-        checks["outliers"] = Diagnostic(verdict, f"{outliers.size} samples lie beyond {OUTLIER_Z:g} "
-                                                 f"robust standard deviations: {listed}; {advice}.")
+        count = "1 sample lies" if outliers.size == 1 else f"{outliers.size} samples lie"
+        checks["outliers"] = Diagnostic(verdict, f"{count} beyond {OUTLIER_Z:g} robust standard "
+                                                 f"deviations: {listed}; {advice}.")
     else:
         checks["outliers"] = Diagnostic(True, f"no sample beyond {OUTLIER_Z:g} robust standard deviations.")
     return checks
