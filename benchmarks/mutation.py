@@ -170,6 +170,9 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/inference/posterior.py", "if length > TAU_FACTOR and change < TAU_SETTLED:", 1):
         "differs only when tau changed by exactly 5% between checks: a continuous estimate that "
         "never lands on the boundary",
+    ("forcefit/estimators/shape.py", "if solution.chi2 > AMBIGUITY_FACTOR * solutions[0].chi2:", 0):
+        "differs only when another centre's chi-square is exactly AMBIGUITY_FACTOR times the best "
+        "one: two continuous fit results that never land on that ratio",
 }
 
 # the same, for a line whose text recurs in its module: (module, enclosing function, line, index)

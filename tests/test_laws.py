@@ -64,6 +64,18 @@ def test_the_apsidal_angle_at_equal_radii_is_the_near_circular_limit(exponent):
         apsidal_angle(exponent, 1.0 - 1e-12)
 
 
+def test_an_apsidal_angle_beyond_every_bound_orbit_is_refused():
+    # As n falls to -3 the apsidal angle grows without bound, and below -3 no power law has a
+    # bound orbit (the effective potential k r^(n+1)/(n+1) + h^2/(2 r^2) has no minimum: common
+    # practice). An angle beyond that of n = -3 + 1e-6 is refused, not answered with n near -3.
+    from forcefit.dynamics.laws import apsidal_angle, exponent_from_apsidal_angle
+
+    steepest = apsidal_angle(-3.0 + 1e-6, 4.0)
+    with pytest.raises(ValueError, match="no power law"):
+        exponent_from_apsidal_angle(1.5 * steepest, 4.0)
+    assert exponent_from_apsidal_angle(apsidal_angle(-2.9, 4.0), 4.0) == pytest.approx(-2.9, abs=1e-9)
+
+
 @pytest.mark.parametrize("eccentricity", [0.1, 0.5, 0.8])
 def test_the_exponent_from_a_precession_finds_the_closed_laws(eccentricity):
     # Newton, Principia (1687), Book I, Prop. X and XI (from memory): the Hooke ellipse (n = 1)
