@@ -170,6 +170,14 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/inference/posterior.py", "if length > TAU_FACTOR and change < TAU_SETTLED:", 1):
         "differs only when tau changed by exactly 5% between checks: a continuous estimate that "
         "never lands on the boundary",
+    ("forcefit/dynamics/_kernel.py",
+     "factor = MAX_FACTOR if error == 0.0 else min(MAX_FACTOR, SAFETY * error ** (-1.0 / 8.0))", 1):
+        "error == 1.0 never holds on an accepted step (error < 1), and at error exactly 0 the other "
+        "branch gives min(MAX_FACTOR, SAFETY * inf) = MAX_FACTOR too (numba's pow: 0 ** -0.125 is inf)",
+    ("forcefit/dynamics/_kernel.py", "if final and position == order.size - 1 or target == t_new:", 5):
+        "at the final step t_new is the last sample's time, so the first clause implies the second; "
+        "a sample exactly at a step's end then comes from the next step's dense output at x = 0, "
+        "which is y[i] + 0: the same state",
     ("forcefit/estimators/shape.py", "if solution.chi2 > AMBIGUITY_FACTOR * solutions[0].chi2:", 0):
         "differs only when another centre's chi-square is exactly AMBIGUITY_FACTOR times the best "
         "one: two continuous fit results that never land on that ratio",
