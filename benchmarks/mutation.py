@@ -178,6 +178,22 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "at the final step t_new is the last sample's time, so the first clause implies the second; "
         "a sample exactly at a step's end then comes from the next step's dense output at x = 0, "
         "which is y[i] + 0: the same state",
+    ("forcefit/dynamics/_kernel.py", "if steps > limit or h_abs < 1e-15 * max(abs(t), 1.0):", 3):
+        "the floor on a collapsing step: with / instead of * a step that collapses (a collision) "
+        "still ends in FAILED, through the step limit instead of the floor",
+    ("forcefit/geometry/curves.py", "signed = np.maximum(sense * kappa[used], 1e-300)", 1):
+        "a clip against log(0) that only points bending significantly towards the centre pass: "
+        "their curvature is many orders above 1e-300 or 2e-300",
+    ("forcefit/geometry/curves.py", "MIN_COS_GAMMA = 1e-6", 0):
+        "the floor of cos(gamma) against division by zero at an exactly radial velocity; samples "
+        "that close to radial carry no weight in the relation at 1e-6 or 2e-6",
+    ("forcefit/estimators/shape.py", "if misfit <= AREAL_TOLERANCE * min(misfits) + 1e-300]", 0):
+        "< and <= differ only when a candidate's misfit is exactly AREAL_TOLERANCE times the best "
+        "plus 1e-300 (the best itself passes both: AREAL_TOLERANCE > 1, or 0 < 1e-300)",
+    ("forcefit/estimators/orbit.py", "minimizer = lmfit.Minimizer(residual, params, scale_covar=False)", 0):
+        "lmfit's own covariance is not what the fit states: _fit_covariance computes it from the "
+        "Jacobian and the stated or fitted noise (tests/test_orbit.py: errors follow the stated "
+        "sigma) and replaces it",
     ("forcefit/estimators/shape.py", "if solution.chi2 > AMBIGUITY_FACTOR * solutions[0].chi2:", 0):
         "differs only when another centre's chi-square is exactly AMBIGUITY_FACTOR times the best "
         "one: two continuous fit results that never land on that ratio",

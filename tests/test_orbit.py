@@ -344,3 +344,18 @@ def test_the_fit_does_not_depend_on_the_unit_of_time():
     assert millis.exponent == pytest.approx(seconds.exponent, abs=1e-6 * seconds.exponent_stderr)
     assert millis.exponent_stderr == pytest.approx(seconds.exponent_stderr, rel=1e-6)
     assert millis.strength == pytest.approx(seconds.strength * 1e-6, rel=1e-6)     # m^2.5 ms^-2
+
+
+def test_with_sigma_given_the_errors_are_those_of_the_stated_sigma():
+    # With the noise given, weighted least squares states cov = (J^T W J)^-1 with W = 1/sigma^2,
+    # not rescaled by the reduced chi-square (that is the convention for an unknown noise only:
+    # NIST StRD nonlinear regression background, from memory): a sigma stated at half the true
+    # noise halves the stated errors, and the chi-square check, not the errors, shows it.
+    from dataclasses import replace
+
+    track = simulate_orbit(exponent=-1.0, noise=0.004, rng=3)
+    right = fit_orbit(replace(track, sigma=np.full(track.n_points, 0.004)))
+    small = fit_orbit(replace(track, sigma=np.full(track.n_points, 0.002)))
+    assert small.exponent_stderr / right.exponent_stderr == pytest.approx(0.5, rel=0.03)
+    assert small.reduced_chi2 == pytest.approx(4.0 * right.reduced_chi2, rel=0.03)
+    assert 0.85 < right.reduced_chi2 < 1.15
