@@ -184,9 +184,6 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/geometry/curves.py", "signed = np.maximum(sense * kappa[used], 1e-300)", 1):
         "a clip against log(0) that only points bending significantly towards the centre pass: "
         "their curvature is many orders above 1e-300 or 2e-300",
-    ("forcefit/geometry/curves.py", "MIN_COS_GAMMA = 1e-6", 0):
-        "the floor of cos(gamma) against division by zero at an exactly radial velocity; samples "
-        "that close to radial carry no weight in the relation at 1e-6 or 2e-6",
     ("forcefit/estimators/shape.py", "if misfit <= AREAL_TOLERANCE * min(misfits) + 1e-300]", 0):
         "< and <= differ only when a candidate's misfit is exactly AREAL_TOLERANCE times the best "
         "plus 1e-300 (the best itself passes both: AREAL_TOLERANCE > 1, or 0 < 1e-300)",
