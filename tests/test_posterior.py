@@ -244,3 +244,24 @@ def test_the_default_bounds_are_the_physical_ones():
                         [-20.1, 0.1, 0.1, 0.0]])
     assert np.all(_log_prior(inside, names, {}) == 0.0)
     assert np.all(_log_prior(outside, names, {}) == -np.inf)
+
+
+def test_each_sampled_parameter_carries_the_unit_of_its_quantity():
+    # Dimensional analysis (common practice): positions and the centre in the track's length
+    # unit, the starting velocity in length per time, ln F in ln(length time^-2), the exponent
+    # dimensionless; for a track in mm and ms.
+    from dataclasses import replace
+
+    from forcefit.inference.posterior import _units
+
+    track = simulate_orbit(exponent=-1.0, noise=0.004, rng=3)
+    fit = fit_orbit(replace(track, length_unit="mm", time_unit="ms"))
+    units = _units(fit, fit.parameter_names)
+    assert units["exponent"] == ""
+    assert units["log_force"] == "ln(mm ms^-2)"
+    for name in fit.parameter_names:
+        if name.startswith(("vx0", "vy0")):
+            assert units[name] == "mm/ms"
+        elif name.startswith(("x0", "y0", "centre")):
+            assert units[name] == "mm"
+    assert any(name.startswith("vx0") for name in fit.parameter_names)
