@@ -137,6 +137,11 @@ def _local_gradients(curve: SmoothedCurve, used: np.ndarray, rows: FloatArray,
     return out
 
 
+def _probes(size: int) -> np.ndarray:
+    """PROBES evenly spread positions among ``size`` used samples (all of them when fewer)."""
+    return np.unique(np.linspace(0, size - 1, min(PROBES, size)).round().astype(int))
+
+
 def _frequentist_scale(curve: SmoothedCurve, used: np.ndarray, gradient: FloatArray,
                        sd: FloatArray) -> FloatArray:
     """Factor turning the smoother's pointwise (Bayesian) standard deviations into the
@@ -148,7 +153,7 @@ def _frequentist_scale(curve: SmoothedCurve, used: np.ndarray, gradient: FloatAr
     """
     if curve.response is None:
         return np.ones(used.size)
-    picks = np.unique(np.linspace(0, used.size - 1, min(PROBES, used.size)).round().astype(int))
+    picks = _probes(used.size)
     rows = np.zeros((picks.size, used.size))
     rows[np.arange(picks.size), picks] = 1.0 / np.maximum(sd[picks], 1e-300)
     influence = curve.response.influence(_local_gradients(curve, used, rows, gradient))
@@ -298,7 +303,7 @@ def sampling_covariance(curve: SmoothedCurve, used: np.ndarray) -> FloatArray:
     bayes = curve.pointwise_covariance[used]
     if curve.response is None:
         return np.asarray(bayes)
-    picks = np.unique(np.linspace(0, used.size - 1, min(PROBES, used.size)).round().astype(int))
+    picks = _probes(used.size)
     rows = np.zeros((3 * picks.size, curve.parameter.size, 3, 2))
     for order in range(3):
         rows[order::3, used[picks], order, 0] = np.eye(picks.size)
