@@ -286,12 +286,12 @@ def _noise_bias(curve: SmoothedCurve, used: np.ndarray, gradient: FloatArray, mi
     ``gradient`` and ``mixed`` are per unit standard error of each residual and ``inverse``
     is H^-1, of the normalised problem.
     """
-    covariance = sampling_covariance(curve, used)                       # (m, 3, 3), one axis
+    covariance = _sampling_covariance(curve, used)                       # (m, 3, 3), one axis
     expected = np.einsum("mkoa,mop,mpa->k", mixed, covariance, gradient)
     return np.asarray(-inverse @ expected)
 
 
-def sampling_covariance(curve: SmoothedCurve, used: np.ndarray) -> FloatArray:
+def _sampling_covariance(curve: SmoothedCurve, used: np.ndarray) -> FloatArray:
     """Sampling covariance of the smoothed (value, first, second) of one coordinate at each
     used sample, shape (m, 3, 3).
 
