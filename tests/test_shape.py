@@ -12,6 +12,7 @@ from forcefit.dynamics.propagate import propagate_reference
 from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum
 from forcefit.errors import FitError, GeometryError, NotIdentifiable
 from forcefit.estimators import fit_curvature, fit_shape
+from forcefit.estimators._checks import RESOLVED_EXCURSION
 from forcefit.reading.loaders import load_track
 from forcefit.track import Track
 
@@ -261,6 +262,28 @@ def test_circle_about_a_free_centre_is_refused(exponent, rng):
         fit_shape(_circle(exponent, rng))
     with pytest.raises(NotIdentifiable, match="hardly changes"):
         fit_shape(_circle(exponent, rng).shape_only(), centre=(0.3, -0.2))
+
+
+@pytest.mark.parametrize(("ratio", "refused"), [(0.5, True), (2.0, False)])
+def test_the_excursion_threshold_is_the_radial_half_range_on_both_sides(ratio, refused):
+    # The refusal reads the fitted orbit's radial half-range, max(r) - min(r) over 2, against
+    # RESOLVED_EXCURSION standard errors (noise sqrt(2/N)). A near-circle (speed 0.999 of the
+    # circular speed, n = 1) whose true half-range is half that threshold is refused, one at twice
+    # it is fitted: the noise is set from the noise-free orbit's half-range (the half-range's own
+    # scatter is about one standard error, a tenth of the threshold).
+    t, x, y = _rosette(1.0, 2, 150, 0.0, 0, factor=0.999)
+    half_range = 0.5 * float(np.ptp(np.hypot(x - 0.3, y + 0.2)))
+    noise = half_range / (ratio * RESOLVED_EXCURSION * math.sqrt(2.0 / t.size))
+    _, x, y = _rosette(1.0, 2, 150, noise, 5, factor=0.999)
+    track = Track(x=x, y=y, name="near-circle")
+    if refused:
+        with pytest.raises(NotIdentifiable, match="hardly changes") as refusal:
+            fit_shape(track, centre=(0.3, -0.2))
+        said = float(refusal.value.args[0].split("(by ")[1].split()[0])
+        assert said == pytest.approx(2 * half_range, abs=3 * 2 * half_range / (ratio * RESOLVED_EXCURSION))
+    else:
+        fit = fit_shape(track, centre=(0.3, -0.2))
+        assert abs(fit.exponent - 1.0) < 4 * fit.exponent_stderr
 
 
 def _z_scores(exponent, free_centre, seeds):

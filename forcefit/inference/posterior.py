@@ -22,7 +22,7 @@ import math
 import os
 import warnings
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, Literal
 
@@ -110,7 +110,7 @@ class Posterior:
     n_walkers: int
     burn_in: int
     thin: int
-    units: dict[str, str] = field(default_factory=dict)
+    units: dict[str, str]
     sampler: Any = None
 
     def interval(self, name: str, level: float = 0.68) -> tuple[float, float]:
