@@ -2,6 +2,7 @@
 from plane marks (forcefit/reading/perspective.py), and lens distortion measured from chessboard
 photographs (forcefit/reading/lens.py)."""
 
+import functools
 import json
 import math
 
@@ -192,16 +193,24 @@ def _rotation(rx, ry, rz):
     return rot_z @ rot_y @ rot_x
 
 
-def _chessboard_view(rotation, translation, *, square=0.03, squares=(10, 7), supersample=2):
-    """A photograph of a flat chessboard through the distorted lens, rendered by tracing each
-    (sub-)pixel's ray back to the board plane."""
+@functools.cache
+def _pixel_rays(supersample):
+    """Each (sub-)pixel's ray through the distorted lens, (x, y, 1) in normalised coordinates: the
+    same for every view, so traced once."""
     width, height = LENS_SIZE
     offsets = (np.arange(supersample) + 0.5) / supersample - 0.5
     cols = (np.arange(width)[:, None] + offsets).ravel()
     rows = (np.arange(height)[:, None] + offsets).ravel()
     u, v = np.meshgrid(cols, rows)
     xn, yn = _undistort_normalised((u - K_TRUE[0, 2]) / K_TRUE[0, 0], (v - K_TRUE[1, 2]) / K_TRUE[1, 1])
-    rays = np.stack([xn, yn, np.ones_like(xn)], axis=-1)
+    return np.stack([xn, yn, np.ones_like(xn)], axis=-1)
+
+
+def _chessboard_view(rotation, translation, *, square=0.03, squares=(10, 7), supersample=2):
+    """A photograph of a flat chessboard through the distorted lens, rendered by tracing each
+    (sub-)pixel's ray back to the board plane."""
+    width, height = LENS_SIZE
+    rays = _pixel_rays(supersample)
     normal, origin = rotation[:, 2], translation                 # board plane in camera coordinates
     depth = (origin @ normal) / (rays @ normal)
     local = (rays * depth[..., None] - origin) @ rotation         # board coordinates (m)
