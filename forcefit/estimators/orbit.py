@@ -426,7 +426,7 @@ def _residual_checks(radial: FloatArray, sigma: FloatArray, loss: Loss,
     outliers = np.flatnonzero(np.abs(normalised - np.median(normalised)) > OUTLIER_Z * spread)
     if outliers.size:
         shown = outliers[:12]
-        numbers = "samples " + ", ".join(str(int(i) + 1) for i in shown)
+        numbers = ("sample " if shown.size == 1 else "samples ") + ", ".join(str(int(i) + 1) for i in shown)
         named = _sample_names(tracks, shown) if tracks else numbers
         listed = named + (" ..." if outliers.size > 12 else "")
         verdict = None if loss != "linear" else False
