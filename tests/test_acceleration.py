@@ -8,6 +8,7 @@ from forcefit.dynamics.propagate import Drag
 from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import NotIdentifiable
 from forcefit.estimators import fit_acceleration
+from forcefit.track import Track
 
 
 def test_acceleration_needs_timestamps(noisy_orbit):
@@ -17,13 +18,19 @@ def test_acceleration_needs_timestamps(noisy_orbit):
 
 def test_a_drag_shows_as_a_torque_against_the_motion():
     # A drag a = -c v has a component across the radius whenever the body moves round the centre:
-    # a torque, which no central force has (common practice).
-    track = simulate_orbit(exponent=1.0, strength=4.0, drag=Drag("linear", 0.05), noise=2e-4,
-                           duration=20.0, rate=50.0, rng=3)
-    check = fit_acceleration(track, centre=(0.0, 0.0)).diagnostics["transverse acceleration"]
+    # a torque, which no central force has (common practice). The centre sits away from the
+    # origin, so that the radius is measured from where it is said to be.
+    centre = (2.5, -1.5)
+
+    def moved(track):
+        return Track(t=track.t, x=track.x + centre[0], y=track.y + centre[1], name=track.name)
+
+    track = moved(simulate_orbit(exponent=1.0, strength=4.0, drag=Drag("linear", 0.05), noise=2e-4,
+                                 duration=20.0, rate=50.0, rng=3))
+    check = fit_acceleration(track, centre=centre).diagnostics["transverse acceleration"]
     assert check.passed is False and "against the motion" in check.message
-    clean = simulate_orbit(exponent=1.0, strength=4.0, noise=2e-4, duration=20.0, rate=50.0, rng=3)
-    assert fit_acceleration(clean, centre=(0.0, 0.0)).diagnostics["transverse acceleration"].passed
+    clean = moved(simulate_orbit(exponent=1.0, strength=4.0, noise=2e-4, duration=20.0, rate=50.0, rng=3))
+    assert fit_acceleration(clean, centre=centre).diagnostics["transverse acceleration"].passed
 
 
 def test_the_power_law_check_measures_how_much_the_local_exponent_changes(bent):

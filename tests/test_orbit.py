@@ -359,3 +359,36 @@ def test_with_sigma_given_the_errors_are_those_of_the_stated_sigma():
     assert small.exponent_stderr / right.exponent_stderr == pytest.approx(0.5, rel=0.03)
     assert small.reduced_chi2 == pytest.approx(4.0 * right.reduced_chi2, rel=0.03)
     assert 0.85 < right.reduced_chi2 < 1.15
+
+
+@pytest.mark.parametrize("loss", ["soft_l1", "huber"])
+@pytest.mark.parametrize("noise", [1.0, 3.0])
+def test_a_robust_fits_variance_factor_is_the_m_estimators_asymptotic_one(loss, noise):
+    # Huber (1964), Robust estimation of a location parameter, Ann. Math. Statist. 35, 73, and
+    # Huber (1981), Robust Statistics, sec. 7.6: an M-estimator's covariance is
+    # E[psi^2] / E[psi']^2 (J^T J)^-1 for residuals in units of sigma. On Gaussian residuals of
+    # SD `noise` the factor is an integral over the normal density, computed here by quadrature
+    # (Huber's loss at c = 1, noise 1: 1.107, an efficiency of 0.903).
+    from scipy import integrate, stats
+
+    from forcefit.estimators.orbit import covariance_from
+
+    if loss == "soft_l1":
+        psi, slope = (lambda r: r / np.sqrt(1 + r * r)), (lambda r: (1 + r * r) ** -1.5)
+    else:
+        psi, slope = (lambda r: np.clip(r, -1, 1)), (lambda r: float(abs(r) <= 1))
+    density = stats.norm(scale=noise).pdf
+
+    def mean(f):
+        return integrate.quad(lambda r: f(r) * density(r), -40 * noise, 40 * noise, points=[-1, 1],
+                              limit=200)[0]
+
+    second, first = mean(lambda r: psi(r) ** 2), mean(slope)
+    rng = np.random.default_rng(5)
+    jacobian = rng.standard_normal((200_000, 2))
+    residual = noise * rng.standard_normal(200_000)
+    factor = covariance_from(jacobian, residual, loss, True) / np.linalg.inv(jacobian.T @ jacobian)
+    assert factor == pytest.approx(np.full((2, 2), second / first**2), rel=0.02)
+    if noise == 1.0 and loss == "huber":
+        # Huber 1981, Table 4.1 (from memory)
+        assert second / first**2 == pytest.approx(1 / 0.903, rel=2e-3)
