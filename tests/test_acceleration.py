@@ -45,3 +45,22 @@ def test_the_power_law_check_measures_how_much_the_local_exponent_changes(bent):
     assert found and check.passed is False
     change, z = float(found[1]), float(found[2])
     assert z > 5 and abs(change - truth) < 4 * abs(change) / z
+
+
+def test_moving_the_track_and_its_centre_together_changes_nothing():
+    # Translation invariance (common practice): a central force depends on the position relative
+    # to its centre only, so every number of the fit, the torque check's mean included, must be
+    # the same for the track and centre moved together (the centre far from the orbit's size).
+    track = simulate_orbit(exponent=1.0, strength=4.0, drag=Drag("linear", 0.05), noise=2e-4,
+                           duration=20.0, rate=50.0, rng=3)
+    here = fit_acceleration(track, centre=(0.0, 0.0))
+    moved = Track(t=track.t, x=track.x + 25.0, y=track.y - 15.0, sigma=track.sigma)
+    there = fit_acceleration(moved, centre=(25.0, -15.0))
+    for name in ("exponent", "exponent_stderr", "strength", "strength_stderr"):           # rounding
+        assert getattr(there, name) == pytest.approx(getattr(here, name), rel=1e-4), name  # at 25 m
+
+    def numbers(fit):
+        text = fit.diagnostics["transverse acceleration"].message
+        return [float(word) for word in re.findall(r"[-+]?\d+\.?\d*(?:e[-+]?\d+)?", text)]
+
+    assert numbers(there) == pytest.approx(numbers(here), rel=1e-3)
