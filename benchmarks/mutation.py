@@ -194,6 +194,10 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/estimators/shape.py", "if solution.chi2 > AMBIGUITY_FACTOR * solutions[0].chi2:", 0):
         "differs only when another centre's chi-square is exactly AMBIGUITY_FACTOR times the best "
         "one: two continuous fit results that never land on that ratio",
+    ("forcefit/geometry/curves.py",
+     "return interior(curve) & (turning_sense(curve) * kappa > 2.0 * kappa_stderr)", 2):
+        "> and >= differ only for a sample whose signed curvature is exactly twice its standard "
+        "error: two continuous estimates that never land on that ratio",
     ("forcefit/dynamics/propagate.py", "BATCH_RTOL = 3e-13", 0):
         "the batch propagator's tolerance doubled: on benchmarks/orbit_fit.py's 32 rosettes (5 turns, "
         "n = -1.5) the largest position error against rtol = 1e-14 goes from 7.9e-12 to 8.4e-12 of the "

@@ -7,6 +7,7 @@ from forcefit.units import (
     parse_time_unit,
     strength_unit,
     time_factor,
+    velocity_scale,
 )
 
 
@@ -78,3 +79,15 @@ def test_a_power_is_printed_whole_only_within_rounding_of_a_whole_number(power, 
     from forcefit.units import _power
 
     assert _power("m", power) == expected
+
+
+@pytest.mark.parametrize(("length", "time", "velocity", "expected"), [
+    ("m", "s", "km/s", 1e-3),
+    ("km", "s", "m/s", 1e3),
+    ("mm", "ms", "m/s", 1.0),
+    ("au", "d", "km/s", 149_597_870.7 / 86_400),            # IAU 2012 B2 au; 1 d = 86 400 s (SI)
+    ("au", "yr", "km/s", 149_597_870.7 / (365.25 * 86_400)),  # Julian year (IAU 1976, from memory)
+    ("mas", "yr", "km/s", 149_597_870.7 / (365.25 * 86_400)),  # an angle on the sky: 1 au per unit
+])
+def test_one_length_per_time_in_a_velocity_unit(length, time, velocity, expected):
+    assert velocity_scale(length, time, velocity) == pytest.approx(expected, rel=1e-12)
