@@ -27,6 +27,7 @@ from ..dynamics.orbit_model import OrbitModel, observed
 from ..errors import FitError, GeometryError, InputError, NotIdentifiable
 from ..geometry.noise import difference_noise
 from ..track import Track
+from ._apsidal_start import apsidal_start
 from ._checks import (
     RESOLVED_EXCURSION,
     chi_square_diagnostic,
@@ -44,6 +45,12 @@ MIN_SAMPLES = 12
 
 OUTLIER_Z = 5.0
 """Residuals beyond this many robust standard deviations are reported as outliers."""
+
+QUICK_MISS = 1.25
+"""The fit from the apsidal start (`forcefit.estimators._apsidal_start`) stands when the robust
+spread of its residuals is within this factor of the noise the samples' differences show;
+otherwise the trial-orbit search (`forcefit.estimators._start`) starts a second fit, and the
+one with the smaller objective stands."""
 
 
 def _as_tracks(track_or_tracks: Track | Sequence[Track]) -> tuple[Track, ...]:
@@ -281,13 +288,31 @@ def fit_orbit(
     model = OrbitModel(tracks=tracks, epochs=tuple(epochs), reference_radius=provisional, drag=drag,
                        fit_rotation=rotation_rate == "fit", rotation_rate=rate,
                        shared_centre=shared_centre or len(tracks) == 1, extra=extra)
-    vector = orbit_start(StartProblem(model=model, exponent=exponent, centre=centre, sigma=sigma),
-                         indices, noise)
-    radius = _reference_radius(tracks, _centres(model, vector))
-    vector[1] += vector[0] * (math.log(radius) - math.log(provisional))   # same force, new radius
-    model = replace(model, reference_radius=radius)
-    solution, sigma, noise_level = optimise(model, _parameters(model, vector, exponent, centre), sigma,
-                                            sigma_known, loss, max_evaluations)
+    problem = StartProblem(model=model, exponent=exponent, centre=centre, sigma=sigma)
+
+    def fit_from(vector: FloatArray) -> tuple[OrbitModel, _Solution, FloatArray, float]:
+        radius = _reference_radius(tracks, _centres(model, vector))
+        vector = vector.copy()
+        vector[1] += vector[0] * (math.log(radius) - math.log(provisional))   # same force, new radius
+        moved = replace(model, reference_radius=radius)
+        return (moved, *optimise(moved, _parameters(moved, vector, exponent, centre), sigma,
+                                 sigma_known, loss, max_evaluations))
+
+    quick = apsidal_start(problem, indices, noise)
+    outcome, misses = None, np.zeros(0)
+    if quick is not None:
+        try:
+            outcome = fit_from(quick)
+            misses = _misses(*outcome[:2], sigma, loss, sigma_known)
+        except FitError:
+            outcome = None
+    if outcome is None or (_robust_spread(misses * np.repeat(sigma, 2))
+                           > QUICK_MISS * float(np.median(noise))):
+        searched = fit_from(orbit_start(problem, indices, noise))
+        if outcome is None or (_objective(_misses(*searched[:2], sigma, loss, sigma_known), loss)
+                               <= _objective(misses, loss)):
+            outcome = searched
+    model, solution, sigma, noise_level = outcome
     fitted = np.array([solution.values[name] for name in model.names])
     if exponent is None:
         _require_resolved_excursion(model, fitted, noise_level)
@@ -303,6 +328,29 @@ def fit_orbit(
             "not an orbit in a central power law; check the centre, the units and the data.",
             last_params=solution.values)
     return _law_fit(model, solution, tracks, sigma, sigma_known, loss, noise_level)
+
+
+def _misses(model: OrbitModel, solution: _Solution, sigma: FloatArray, loss: Loss,
+            sigma_known: bool) -> FloatArray:
+    """Residuals of a fit in units of ``sigma``, each sample's sigma the fit started with (a
+    robust fit without a given sigma rescales its own)."""
+    if loss == "linear" or sigma_known:
+        return solution.residual
+    vector = np.array([solution.values[name] for name in model.names])
+    predictions, _ = model.predict(vector[None, :])
+    return ((observed(model.tracks) - np.concatenate([p[0] for p in predictions]))
+            / sigma[:, None]).ravel()
+
+
+def _objective(residual: FloatArray, loss: Loss) -> float:
+    """The sum the optimiser minimises, of residuals in units of sigma."""
+    squares = residual * residual
+    if loss == "soft_l1":
+        return float(np.sum(2.0 * (np.sqrt(1.0 + squares) - 1.0)))
+    if loss == "huber":
+        size = np.abs(residual)
+        return float(np.sum(np.where(size <= 1.0, squares, 2.0 * size - 1.0)))
+    return float(np.sum(squares))
 
 
 def _checked_extra(extra: ExtraForces | None, tracks: Sequence[Track],
