@@ -2,7 +2,7 @@
 
 About the force centre the inverse radius u = 1/r of an orbit in a central power law is a
 periodic function of the swept angle, its period twice the apsidal angle psi (the orbit
-equation d²u/dphi² + u = F(1/u) / (h² u²) does not hold the angle). So:
+equation d²u/dphi² + u = F(1/u) / (h² u²) has no explicit angle in it). So:
 
 1. the centre is the given one, or the likeliest of `centre_candidates` (steady areal rate);
 2. the frequency omega = pi / psi is the one whose sinusoid in the swept angle fits u best
@@ -21,6 +21,11 @@ a radial excursion and an apsidal frequency that stand out of the noise. Elsewhe
 None and the orbit fit starts from the trial-orbit search (`forcefit.estimators._start`),
 which it also falls back on when the fit from this start misses the samples by more than
 their noise.
+
+References
+----------
+H. Goldstein, C. Poole and J. Safko (2002), Classical Mechanics, 3rd ed., chapter 3 (the
+orbit equation in u = 1/r, the apsidal angle, the areal rate h / 2).
 """
 
 from __future__ import annotations

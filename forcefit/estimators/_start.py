@@ -1,4 +1,5 @@
-"""Where the orbit fit starts: from what the samples resolve, never from a default law.
+"""Where the orbit fit starts when the path's shape does not fix the start
+(`forcefit.estimators._apsidal_start`): from what the samples resolve, never from a default law.
 
 The orbit fit is a nonlinear least-squares problem whose minimum can be far from its
 start: over many turns a small error in the period wraps the phase, and a wrong

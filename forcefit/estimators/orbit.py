@@ -6,8 +6,10 @@ coefficient and the rotation rate of the observer's frame are fitted by least
 squares (lmfit, with a robust loss on request) to all samples of one track, or of
 several tracks that share n and k. Each evaluation integrates the orbit with the
 compiled batch propagator; the Jacobian is one batch of central differences. The start
-comes from what the samples resolve (`forcefit.estimators._start`); the errors allow for
-correlated residuals and, with a robust loss, for the glitches it down-weights.
+comes from what the samples resolve: the path's shape where it is well posed
+(`forcefit.estimators._apsidal_start`), else a search of trial orbits
+(`forcefit.estimators._start`); the errors allow for correlated residuals and, with a
+robust loss, for the glitches it down-weights.
 """
 
 from __future__ import annotations
@@ -207,10 +209,14 @@ def fit_orbit(
 ) -> OrbitFit:
     """Fit the integrated orbit of F = -k r**n r_hat to every sample of timestamped tracks.
 
-    The start comes from what the samples resolve (`forcefit.estimators._start`): likely
+    The start comes from what the samples resolve. With one track (no drag, rotation or
+    extra force) that covers a radial period and a half densely: the apsidal angle, the
+    apsides and the areal rate (`forcefit.estimators._apsidal_start`). Elsewhere, or when
+    the fit from there misses the samples by more than QUICK_MISS times their noise: likely
     centres from the conic through the points and the aim of the accelerations, trial
     exponents fitted on about one turn around the epoch, then stretches doubled until
-    they cover the data. Without a sigma the noise is fitted; with a robust loss its
+    they cover the data (`forcefit.estimators._start`); of two fits the one with the
+    smaller objective stands. Without a sigma the noise is fitted; with a robust loss its
     scale and the errors come from the residuals' robust spread.
 
     Parameters
