@@ -45,6 +45,18 @@ def test_the_start_reads_the_law_and_the_pace_off_the_path(exponent):
     assert ok[0] and miss.max() < 0.05 * size
 
 
+def test_a_clockwise_orbit_starts_clockwise():
+    track = simulate_orbit(exponent=0.5, velocity=(0.0, -0.8), noise=2e-3, centre=(1.0, 2.0), rng=3)
+    problem, index, noise = _problem(track)
+    vector = apsidal_start(problem, [index], [noise])
+    assert vector is not None and vector[0] == pytest.approx(0.5, abs=0.03)
+    x, y, vx, vy = vector[4:8]
+    assert x * vy - y * vx < 0                                   # angular momentum below the plane
+    predicted, ok = problem.model.predict(vector[None, :])
+    size = float(np.ptp(track.positions, axis=0).max())
+    assert ok[0] and np.hypot(*(predicted[0][0] - track.positions).T).max() < 0.05 * size
+
+
 def test_the_exponent_matches_the_apsidal_angle_of_an_eccentric_orbit():
     # An orbit of n = 1 (Hooke) at 0.5 times the circular speed: r_max / r_min = 2, and the
     # apsidal angle of every Hooke orbit is pi / 2 (closed ellipses about their centre:
