@@ -5,7 +5,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.fft import irfft, next_fast_len, rfft
 
 from ._types import FloatArray
 
@@ -27,6 +26,8 @@ def autocorrelation_time(residuals: FloatArray) -> float:
     n = centred.size
     if n < 4 or not np.any(centred):
         return 1.0
+    from scipy.fft import irfft, next_fast_len, rfft  # scipy.fft is slow to import: only when used
+
     size = next_fast_len(2 * n, real=True)
     spectrum = rfft(centred, size)
     correlation = irfft(spectrum * np.conj(spectrum), size)[:n]

@@ -32,10 +32,16 @@ _SKY_NAMES = {**{name: symbol for symbol, name in SKY_ANGLES.items()}, **{s: s f
               "µas": "uas", "μas": "uas", "degrees": "deg", "arcminutes": "arcmin"}
 
 
-COMMON_LENGTHS = frozenset({"m", "mm", "cm", "km", "au"})
-COMMON_TIMES = frozenset({"s", "ms", "min", "h", "d", "yr"})
-"""Symbols that are already canonical: taken as they are, without building pint's registry
-(tests/test_units.py checks that pint gives each back unchanged)."""
+METRES_IN: dict[str, float] = {"m": 1.0, "mm": 1e-3, "cm": 1e-2, "km": 1e3, "au": 149597870700.0}
+"""Each common length symbol in metres, exactly (the au by IAU 2012 Resolution B2)."""
+SECONDS_IN: dict[str, float] = {"s": 1.0, "ms": 1e-3, "min": 60.0, "h": 3600.0, "d": 86400.0,
+                                "yr": 31557600.0}
+"""Each common time symbol in seconds, exactly (``yr`` is the Julian year of 365.25 d, as in pint)."""
+COMMON_LENGTHS = frozenset(METRES_IN)
+COMMON_TIMES = frozenset(SECONDS_IN)
+"""Symbols that are already canonical: taken as they are, and converted among themselves by the
+exact numbers above, without building pint's registry (tests/test_units.py checks both against
+pint)."""
 
 
 @lru_cache(maxsize=1)
@@ -132,6 +138,8 @@ def length_factor(from_unit: str, to_unit: str) -> float:
     source, target = parse_length_unit(from_unit), parse_length_unit(to_unit)
     if source == target:
         return 1.0
+    if source in METRES_IN and target in METRES_IN:
+        return METRES_IN[source] / METRES_IN[target]
     if PIXEL in (source, target):
         raise InputError(
             f"cannot convert {source} to {target}: pixels need a calibration "
@@ -187,6 +195,8 @@ def time_factor(from_unit: str, to_unit: str) -> float:
     source, target = parse_time_unit(from_unit), parse_time_unit(to_unit)
     if source == target:
         return 1.0
+    if source in SECONDS_IN and target in SECONDS_IN:
+        return SECONDS_IN[source] / SECONDS_IN[target]
     ureg = registry()
     source, target = ("year" if u == "yr" else u for u in (source, target))
     return float(ureg.Quantity(1.0, source).to(target).magnitude)

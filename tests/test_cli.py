@@ -307,6 +307,22 @@ def test_the_time_free_fit_and_apsides_load_no_orbit_optimiser(command, absent):
     assert ("shape fit" if command[0] == "fit" else "apsidal angle") in result.stdout
 
 
+@pytest.mark.parametrize(("command", "absent", "shown"), [
+    ("apsides", ("scipy.stats", "scipy.signal", "dask", "pint", "lmfit", "numba", "matplotlib"),
+     "apsidal angle"),
+    ("inspect", ("scipy", "dask", "pint", "lmfit", "numba", "matplotlib"), "points"),
+])
+def test_apsides_and_inspect_load_only_what_they_use(command, absent, shown):
+    # Start-up: scipy.stats (behind scipy.signal), pint (with dask behind it), lmfit and numba
+    # each take longer to import than these commands take to run on a few thousand samples.
+    path = str(DEMO / "class_pendulum" / "run_02.csv")
+    code = (f"import sys\nfrom forcefit.cli import main\nmain([{command!r}, {path!r}])\n"
+            f"print([m for m in {absent!r} if m in sys.modules], file=sys.stderr)")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert result.stderr.strip().splitlines()[-1] == "[]"
+    assert shown in result.stdout
+
+
 def test_the_fit_commands_methods_are_the_registrys():
     from forcefit.cli.cmd_fit import METHODS
 

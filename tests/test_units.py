@@ -70,6 +70,27 @@ def test_the_common_symbols_taken_without_pint_are_pints_own():
         assert parse_time_unit(symbol) == symbol == ("yr" if pint_symbol == "a" else pint_symbol)
 
 
+def test_the_common_units_convert_as_pints_registry_does_without_loading_it():
+    # pint's registry (its unit definitions) is the reference; the exact numbers may differ from
+    # pint's chained products in the last bit (au to km: 149597870.7 here, ...70000002 there).
+    import subprocess
+    import sys
+
+    from forcefit.units import COMMON_LENGTHS, COMMON_TIMES, registry
+
+    ureg = registry()
+    for symbols, convert in ((COMMON_LENGTHS, length_factor), (COMMON_TIMES, time_factor)):
+        for source in symbols:
+            for target in symbols:
+                names = ["year" if unit == "yr" else unit for unit in (source, target)]
+                expected = ureg.Quantity(1.0, names[0]).to(names[1]).magnitude
+                assert convert(source, target) == pytest.approx(expected, rel=3e-16, abs=0.0)
+    code = ("import sys\nfrom forcefit.units import length_factor, time_factor\n"
+            "print(length_factor('au', 'km'), time_factor('s', 'yr'), 'pint' in sys.modules)")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert done.stdout.split() == ["149597870.7", repr(1 / 31557600.0), "False"]
+
+
 @pytest.mark.parametrize("power, expected", [
     (1e-9, "m^0.000000001"), (-1e-9, "m^-0.000000001"), (1.5e-9, "m^0.0000000015"),
     (2.0 + 5e-10, "m^2"), (-3.0 - 5e-10, "m^-3"), (2.5, "m^2.5"), (5e-10, ""), (-5e-10, "")])

@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .._extrema import prominent_maxima
 from .._json import json_safe
 from .._regression import fit_line
 from .._types import FloatArray, Row
@@ -233,10 +234,8 @@ def _find_apses(track: Track, path: PathGeometry, sense: int) -> list[Apse]:
     theta += 2 * math.pi * np.round((theta_path - theta) / (2 * math.pi))
     sigma = track.sigma if track.sigma is not None else path.smoothing.noise
     prominence = 5.0 * float(np.median(path.radius_stderr)) + 1e-12 * float(path.radius.max())
-    from scipy.signal import find_peaks  # scipy.signal is slow to import: only when used
-
-    peaks = [("apocentre", i) for i in find_peaks(path.radius, prominence=prominence)[0]]
-    peaks += [("pericentre", i) for i in find_peaks(-path.radius, prominence=prominence)[0]]
+    peaks = [("apocentre", int(i)) for i in prominent_maxima(path.radius, prominence)]
+    peaks += [("pericentre", int(i)) for i in prominent_maxima(-path.radius, prominence)]
     peaks.sort(key=lambda item: item[1])
     if len(peaks) < 2:
         return []

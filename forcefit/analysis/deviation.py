@@ -19,7 +19,6 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import stats
 
 from .._json import json_safe
 from .._types import Row
@@ -205,6 +204,8 @@ def deviation_from(
     >>> deviation_from(fit).significance < 3
     True
     """
+    from scipy import stats  # scipy.stats is slow to import: only when a deviation is asked for
+
     delta, error = fit.exponent - nominal, fit.exponent_stderr
     size = abs(delta) / error if error > 0 else (math.inf if delta else 0.0)
     common: dict[str, Any] = {"nominal": nominal, "delta": delta, "delta_stderr": error, "significance": size,

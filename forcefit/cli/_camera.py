@@ -11,7 +11,6 @@ import sys
 from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any
 
-from .._json import json_safe
 from ..errors import InputError
 
 if TYPE_CHECKING:  # the command's libraries load when it runs, not for --help
@@ -165,6 +164,8 @@ def camera_lines(track: Track) -> list[str]:
 
 def camera_record(track: Track) -> dict[str, Any]:
     """The video report and the plane mapping of a track, for JSON."""
+    from .._json import json_safe  # numpy: not for the command line's --help
+
     record = {key: track.metadata[key] for key in ("video", "plane_mapping") if track.metadata.get(key)}
     return dict(json_safe(record))
 
