@@ -74,3 +74,20 @@ def test_a_circular_orbit_is_refused_with_the_noise_in_the_radius():
         fit_curvature(track, centre=(0.0, 0.0))
     found = re.search(r"noise alone moves it by about ([0-9.e-]+)\)", str(refused.value))
     assert found and float(found[1]) == pytest.approx(expected, rel=0.03)      # printed to 2 digits
+
+
+def test_a_described_path_keeps_its_centre_given_or_found():
+    # A path described about a given centre is fitted about that centre, held (stated error 0);
+    # one described with its centre found is fitted with the centre free (a stated error above 0),
+    # as fit_curvature(track, centre=...) and fit_curvature(track) do (the README's promise).
+    from forcefit.geometry.path import describe_path
+
+    orbit = simulate_orbit(exponent=1.0, strength=4.0, start=(0.5, 0.0), velocity=(0.0, 0.6),
+                           noise=2e-4, duration=8.0, rate=60.0, rng=4)
+    track = Track(t=orbit.t, x=orbit.x + 0.3, y=orbit.y - 0.2, sigma=orbit.sigma)
+    held = fit_curvature(track, path=describe_path(track, centre=(0.3, -0.2)))
+    assert held.centre == (0.3, -0.2) and held.centre_stderr == (0.0, 0.0)
+    found = fit_curvature(track, path=describe_path(track))
+    assert min(found.centre_stderr) > 0
+    for c, truth, se in zip(found.centre, (0.3, -0.2), found.centre_stderr):
+        assert abs(c - truth) < 4 * se

@@ -431,6 +431,8 @@ def test_the_band_is_two_sided_and_holds_its_edges(side):
     assert edge.exponent_within(1.0 + side * 0.25)
     for ratio, inside in ((0.05 - 1e-6, True), (0.05 + 1e-6, False)):
         assert rule.strength_within(4.905 * (1 + side * ratio)) is inside, (side, ratio)
+    strength_edge = GradingRule(expect=1.0, tolerance=0.25, strength=2.0, strength_tolerance=0.25)
+    assert strength_edge.strength_within(2.0 * (1 + side * 0.25))   # k / K - 1 = -+0.25 exactly
     assert GradingRule(expect=1.0, tolerance=0.02).strength_within(123.0)   # no strength asked
 
 
