@@ -198,6 +198,18 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
      "return interior(curve) & (turning_sense(curve) * kappa > 2.0 * kappa_stderr)", 2):
         "> and >= differ only for a sample whose signed curvature is exactly twice its standard "
         "error: two continuous estimates that never land on that ratio",
+    ("forcefit/estimators/orbit.py",
+     "covariance = None if result.covar is None else np.array(result.covar, dtype=float)", 0):
+        "lmfit's covariance read into _Solution.of is always replaced: its only caller widens the "
+        "solution with _fit_covariance's matrix (_Solution.widened) before anything reads it",
+    ("forcefit/inference/posterior.py",
+     "model: OrbitModel = replace(fit.model, rtol=SAMPLING_RTOL, dense=True, parallel=True)", 1):
+        "parallel=False runs the walkers' orbits one after another instead of on numba's threads: "
+        "each walker's orbit is integrated alone either way, so the same numbers come out, slower",
+    ("forcefit/geometry/centre.py",
+     "if np.mean(magnitude > MIN_SIGNAL * accel_sd) < MIN_SIGNIFICANT_FRACTION:", 0):
+        "> and >= differ only for a sample whose acceleration is exactly MIN_SIGNAL times its "
+        "standard deviation: continuous estimates that never land on that ratio",
     ("forcefit/dynamics/propagate.py", "BATCH_RTOL = 3e-13", 0):
         "the batch propagator's tolerance doubled: on benchmarks/orbit_fit.py's 32 rosettes (5 turns, "
         "n = -1.5) the largest position error against rtol = 1e-14 goes from 7.9e-12 to 8.4e-12 of the "
