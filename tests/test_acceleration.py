@@ -56,7 +56,8 @@ def test_moving_the_track_and_its_centre_together_changes_nothing():
     here = fit_acceleration(track, centre=(0.0, 0.0))
     moved = Track(t=track.t, x=track.x + 25.0, y=track.y - 15.0, sigma=track.sigma)
     there = fit_acceleration(moved, centre=(25.0, -15.0))
-    for name in ("exponent", "exponent_stderr", "strength", "strength_stderr"):           # rounding
+    for name in ("exponent", "exponent_stderr", "strength", "strength_stderr", "reference_radius",
+                 "force_at_reference", "force_at_reference_stderr"):                   # rounding
         assert getattr(there, name) == pytest.approx(getattr(here, name), rel=1e-4), name  # at 25 m
 
     def numbers(fit):
