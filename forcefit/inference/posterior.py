@@ -2,10 +2,12 @@
 
 The log-probability is evaluated for all walkers at once (emcee's ``vectorize``) on the
 compiled batch propagator, its orbits spread over the processor's cores. Walkers start in
-a ball drawn from the least-squares covariance. The run stops by itself once the chain is
-longer than ``TAU_FACTOR`` integrated autocorrelation times and the estimate of those times
-has settled (emcee's own autocorrelation tools), or at ``max_steps``; burn-in is discarded and the chain
-thinned from the autocorrelation time.
+a ball drawn from the least-squares covariance; by default half the steps are independence
+draws from that normal approximation (Student-t tailed, accepted by the Metropolis-Hastings
+ratio, so the target stays the exact posterior) and half differential-evolution moves. The
+run stops by itself once the chain is longer than ``TAU_FACTOR`` integrated autocorrelation
+times and the estimate of those times has settled (emcee's own autocorrelation tools), or at
+``max_steps``; burn-in is discarded and the chain thinned from the autocorrelation time.
 
 References
 ----------
@@ -13,6 +15,9 @@ D. Foreman-Mackey, D. W. Hogg, D. Lang and J. Goodman (2013), emcee: the MCMC ha
 PASP 125, 306. J. Goodman and J. Weare (2010), Ensemble samplers with affine invariance,
 Comm. App. Math. Comp. Sci. 5, 65. C. J. F. ter Braak and J. A. Vrugt (2008),
 Differential evolution Markov chain with snooker updater, Stat. Comput. 18, 435.
+W. K. Hastings (1970), Monte Carlo sampling methods using Markov chains and their
+applications, Biometrika 57, 97. L. Tierney (1994), Markov chains for exploring posterior
+distributions, Ann. Statist. 22, 1701.
 """
 
 from __future__ import annotations
@@ -288,17 +293,22 @@ def _units(fit: OrbitFit, names: Sequence[str]) -> dict[str, str]:
     return units
 
 
+def _factor(covariance: FloatArray) -> FloatArray:
+    """A lower-triangular L with L L^T the covariance (its correlation matrix nudged to be
+    positive definite; the diagonal alone when even that fails)."""
+    scale = np.sqrt(np.clip(np.diag(covariance), 1e-300, None))
+    correlation = covariance / np.outer(scale, scale)
+    try:
+        factor = np.linalg.cholesky(correlation + 1e-9 * np.eye(scale.size))
+    except np.linalg.LinAlgError:
+        factor = np.eye(scale.size)
+    return factor * scale[:, None]
+
+
 def _start(best: FloatArray, covariance: FloatArray, walkers: int,
            in_prior: Callable[[FloatArray], np.ndarray], rng: np.random.Generator) -> FloatArray:
     """Walkers drawn from the least-squares normal approximation, kept inside the prior."""
-    scale = np.sqrt(np.clip(np.diag(covariance), 1e-300, None))
-    correlation = covariance / np.outer(scale, scale)
-    jitter = 1e-9 * np.eye(best.size)
-    try:
-        factor = np.linalg.cholesky(correlation + jitter)
-    except np.linalg.LinAlgError:
-        factor = np.eye(best.size)
-    points = best + (rng.standard_normal((walkers * 4, best.size)) @ factor.T) * scale
+    points = best + rng.standard_normal((walkers * 4, best.size)) @ _factor(covariance).T
     inside = points[in_prior(points)]
     if inside.shape[0] < walkers:
         raise FitError("could not place the walkers inside the prior around the least-squares fit; "
@@ -306,12 +316,59 @@ def _start(best: FloatArray, covariance: FloatArray, walkers: int,
     return inside[:walkers]
 
 
-def _moves(kind: str) -> Any:
+APPROXIMATION_DOF = 5.0
+"""Degrees of freedom of the Student t the independence move draws from: tails heavier than
+any near-normal posterior's, so the draws cover it."""
+
+APPROXIMATION_WIDENING = 1.2
+"""Factor on the least-squares standard errors of the independence move's draws."""
+
+APPROXIMATION_SHARE = 0.5
+"""Share of the steps that are independence draws in the "mixed" moves; the others are
+differential-evolution moves, which carry the chain where the approximation is poor."""
+
+
+class _ApproximationDraws:
+    """Independence Metropolis-Hastings proposals (Hastings 1970, Biometrika 57, 97; Tierney 1994,
+    Ann. Statist. 22, 1701, section 2.3.3): every walker proposes a fresh point from a Student t
+    centred on the least-squares fit with its (widened) covariance, whatever its current place;
+    the log ratio ln g(x) - ln g(x') of the proposal densities enters the acceptance, so the
+    chain's target stays the posterior, whether or not the approximation is good. Where it is
+    good (most orbit fits: many samples, a near-normal posterior) half the draws are accepted and
+    successive samples are almost independent; where it is poor they are rejected and the
+    chain moves by the other moves alone."""
+
+    def __init__(self, best: FloatArray, covariance: FloatArray,
+                 dof: float = APPROXIMATION_DOF, widening: float = APPROXIMATION_WIDENING) -> None:
+        self.best = np.asarray(best, dtype=float)
+        self.factor = widening * _factor(np.asarray(covariance, dtype=float))
+        self.dof = dof
+
+    def log_density(self, points: FloatArray) -> FloatArray:
+        """ln g of the proposal at each point, constants dropped."""
+        whitened = np.linalg.solve(self.factor, (points - self.best).T).T
+        return -0.5 * (self.dof + self.best.size) * np.log1p(np.sum(whitened**2, axis=1) / self.dof)
+
+    def __call__(self, coords: FloatArray, random: np.random.RandomState) -> tuple[FloatArray, FloatArray]:
+        count = coords.shape[0]
+        normal = random.standard_normal((count, self.best.size))
+        stretch = np.sqrt(self.dof / random.chisquare(self.dof, count))
+        proposed = self.best + (normal * stretch[:, None]) @ self.factor.T
+        return proposed, self.log_density(coords) - self.log_density(proposed)
+
+
+def _moves(kind: str, best: FloatArray | None = None, covariance: FloatArray | None = None) -> Any:
     if kind == "stretch":
         return emcee.moves.StretchMove()
     if kind == "de":
         return [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
-    raise InputError(f'moves {kind!r} is unknown; use "de" or "stretch".')
+    if kind == "mixed":
+        if best is None or covariance is None:
+            raise InputError('moves "mixed" needs the least-squares fit and its covariance.')
+        rest = 1.0 - APPROXIMATION_SHARE
+        return [(emcee.moves.DEMove(), 0.8 * rest), (emcee.moves.DESnookerMove(), 0.2 * rest),
+                (emcee.moves.MHMove(_ApproximationDraws(best, covariance)), APPROXIMATION_SHARE)]
+    raise InputError(f'moves {kind!r} is unknown; use "mixed", "de" or "stretch".')
 
 
 def sample_posterior(
@@ -323,7 +380,7 @@ def sample_posterior(
     priors: Mapping[str, Prior] | None = None,
     noise: Literal["known", "fit"] | None = None,
     correlated: bool = True,
-    moves: Literal["de", "stretch"] = "de",
+    moves: Literal["mixed", "de", "stretch"] = "mixed",
     progress: bool = True,
     rng: np.random.Generator | int | None = None,
     save: str | os.PathLike[str] | None = None,
@@ -355,9 +412,11 @@ def sample_posterior(
         effective-sample-size approximation; e.g. B. Efron & R. Tibshirani 1993, An
         Introduction to the Bootstrap, §8.5, for dependent data). False takes the
         residuals as independent.
-    moves : {"de", "stretch"}
-        Differential-evolution moves (default; shorter autocorrelation on these
-        posteriors, see benchmarks/posterior.py) or emcee's stretch move.
+    moves : {"mixed", "de", "stretch"}
+        Half independence draws from the least-squares approximation and half
+        differential-evolution moves (default: on orbit fits' near-normal posteriors an
+        autocorrelation time of a few steps, see benchmarks/posterior.py), the
+        differential-evolution moves alone, or emcee's stretch move.
     progress : bool
         Show a progress bar.
     rng : Generator or int, optional
@@ -414,7 +473,7 @@ def run_ensemble(
     walkers: int | None = None,
     max_steps: int = 20_000,
     min_steps: int = 0,
-    moves: str = "de",
+    moves: str = "mixed",
     progress: bool = False,
     rng: np.random.Generator | int | None = None,
     save: str | os.PathLike[str] | None = None,
@@ -429,7 +488,8 @@ def run_ensemble(
     log_probability : callable
         Maps walker positions of shape (n_walkers, n_dim) to log densities (n_walkers,).
     best, covariance : ndarray
-        Centre and covariance of the normal ball the walkers start in.
+        Centre and covariance of the normal ball the walkers start in, and of the approximation
+        the "mixed" moves draw from.
     in_prior : callable, optional
         Maps positions to a mask of those inside the prior's support.
     walkers, max_steps, min_steps, moves, progress, rng, save, resume
@@ -457,7 +517,7 @@ def run_ensemble(
     elif resume:
         raise InputError("resume needs the chain file: give save=... (--resume FILE).")
     sampler = emcee.EnsembleSampler(walkers, ndim, log_probability, vectorize=True,
-                                    moves=_moves(moves), backend=backend)
+                                    moves=_moves(moves, best, covariance), backend=backend)
     if resume and backend is not None and backend.iteration > 0:
         state = sampler.get_last_sample()
     else:
@@ -529,6 +589,11 @@ def _run(sampler: emcee.EnsembleSampler, state: Any, steps: int, min_total: int,
         return False, (f"after {sampler.iteration} steps the chain is only {length:.0f} autocorrelation "
                        f"times long ({TAU_FACTOR:.0f} needed; tau up to {np.max(tau):.0f} steps). Run "
                        "longer (raise max_steps, or resume the saved chain).")
+    if math.isinf(change):
+        return False, (f"after {sampler.iteration} steps the chain is {length:.0f} autocorrelation times "
+                       f"long, but tau was estimated at one check only; it must also hold steady between "
+                       f"two checks {CHECK_EVERY} steps apart. Run longer (raise max_steps, or resume the "
+                       "saved chain).")
     return False, (f"tau is still changing ({100 * change:.0f}% between checks); run longer.")
 
 

@@ -131,7 +131,7 @@ def sample_projected(
     priors: Mapping[str, Prior] | None = None,
     noise: Literal["known", "fit"] | None = None,
     correlated: bool = True,
-    moves: Literal["de", "stretch"] = "de",
+    moves: Literal["mixed", "de", "stretch"] = "mixed",
     progress: bool = True,
     rng: np.random.Generator | int | None = None,
     save: str | os.PathLike[str] | None = None,
