@@ -120,8 +120,8 @@ def sampling(folder: Path) -> None:
     probe = 20
     with warnings.catch_warnings():                      # two steps leave emcee's tau undefined
         warnings.simplefilter("ignore", RuntimeWarning)
-        run_ensemble(earlier, best, covariance, rng=1, max_steps=2, min_steps=2)   # warm
-    per_step = _seconds(lambda: run_ensemble(earlier, best, covariance, rng=1, max_steps=probe,
+        run_ensemble(earlier, best, covariance, rng=1, max_steps=2, min_steps=2, moves="de")   # warm
+    per_step = _seconds(lambda: run_ensemble(earlier, best, covariance, rng=1, max_steps=probe, moves="de",
                                              min_steps=probe)) / probe
     print(f"\n(b) forcefit sample, {track.n_points}-point pendulum, {walkers} walkers")
     print(f"    converged: {report['posterior']['converged']} after {steps} steps")
