@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import os
 import statistics
 import subprocess
 import sys
@@ -105,10 +106,15 @@ def sampling(folder: Path) -> None:
     path = save_track(track, folder / "pendulum_2631.csv")
     subprocess.run([*CLI, "sample", str(path), "--max-steps", "20", "--json"], check=False,
                    stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)       # compile, cache
+    import resource
+
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     start = time.perf_counter()
     done = subprocess.run([*CLI, "sample", str(path), "--json"], check=False, capture_output=True,
                           text=True)
     wall = time.perf_counter() - start
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    busy = after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime
     import json
 
     (report,) = json.loads(done.stdout)
@@ -127,6 +133,8 @@ def sampling(folder: Path) -> None:
     print(f"    converged: {report['posterior']['converged']} after {steps} steps")
     print(f"    this sampler (fresh interpreter, fit included)  {wall:7.1f} s "
           f"(target < {TARGET_SECONDS:g} s): {'met' if wall < TARGET_SECONDS else 'NOT met'}")
+    print(f"    its processor time {busy:.1f} s over {wall:.1f} s wall (on a busy machine the wall "
+          f"time is the larger; load {os.getloadavg()[0]:.1f})")
     print(f"    earlier sampler, one core, stepped onto every sample: {1e3 * per_step:.0f} ms/step over "
           f"{probe} steps, {per_step * steps:7.1f} s for {steps} steps ({per_step * steps / wall:.1f} x)")
 
