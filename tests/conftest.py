@@ -36,7 +36,7 @@ def write(tmp_path: Path):
     return _write
 
 
-def _screened_track(n_points: int = 1500, *, with_sigma: bool = True, scale: float = 1.0):
+def _screened_track(n_points: int = 750, *, with_sigma: bool = True, scale: float = 1.0):
     """A noisy orbit in the screened force F = exp(-r/scale)/r^2, which no power law describes
     (its local exponent is -2 - r/scale; a Yukawa-like force, common practice)."""
     import numpy as np

@@ -137,7 +137,7 @@ def test_orbit_needs_timestamps():
 
 
 def test_an_unconverged_fit_fails_its_convergence_check(screened):
-    track = screened(1200)
+    track = screened()
     fit = fit_orbit(track, max_evaluations=2)
     assert fit.diagnostics["convergence"].passed is False and not fit.passed
 

@@ -109,7 +109,7 @@ def test_priors_are_checked_and_applied(rosette_fit):
     with pytest.raises(InputError, match="uniform"):
         sample_posterior(rosette_fit, priors={"exponent": ("flat", 0, 1)}, progress=False)
     tight = sample_posterior(rosette_fit, priors={"exponent": ("normal", -1.5, 1e-5)}, rng=6,
-                             progress=False, max_steps=800)
+                             progress=False, max_steps=400)
     assert float(np.std(tight.samples["exponent"])) < 2e-5
 
 

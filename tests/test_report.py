@@ -93,7 +93,7 @@ def test_a_failed_fit_is_marked_in_every_output(screened, tmp_path, capsys):
     # the table (fit.to_text() and what the command adds), the page (write_report) and the JSON
     # (fit.to_dict()), each as the command line writes them: two fits of the track in all
     path = tmp_path / "screened.csv"
-    save_track(screened(1200), path)
+    save_track(screened(), path)
     assert main(["fit", str(path), "--report", str(tmp_path / "report")]) == 1     # 1: checks failed
     text = capsys.readouterr().out
     assert "✗ " in text and "[FAIL]" not in text
