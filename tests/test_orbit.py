@@ -392,3 +392,17 @@ def test_a_robust_fits_variance_factor_is_the_m_estimators_asymptotic_one(loss, 
     if noise == 1.0 and loss == "huber":
         # Huber 1981, Table 4.1 (from memory)
         assert second / first**2 == pytest.approx(1 / 0.903, rel=2e-3)
+
+
+def test_the_turns_swept_are_counted_from_the_first_sample_to_the_last():
+    # The coverage the fit states is the polar angle swept about the centre from the first sample
+    # to the last, over 2 pi: here read off the noise-free simulated orbit about its true centre
+    # (noise 1e-4 moves it by ~1e-5 turns; one sample's step is 1/150 of a turn).
+    truth = simulate_orbit(exponent=1.0, strength=4.0, start=(0.5, 0.0), velocity=(0.0, 0.6),
+                           duration=8.0, rate=60.0)
+    swept = np.unwrap(np.arctan2(truth.y, truth.x))
+    expected = abs(swept[-1] - swept[0]) / (2 * math.pi)
+    fit = fit_orbit(simulate_orbit(exponent=1.0, strength=4.0, start=(0.5, 0.0), velocity=(0.0, 0.6),
+                                   duration=8.0, rate=60.0, noise=1e-4, rng=2))
+    assert fit.turns == pytest.approx(expected, abs=1e-3)
+    assert f"sweep {expected:.2f} turns" in fit.diagnostics["coverage"].message
