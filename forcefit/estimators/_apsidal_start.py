@@ -36,7 +36,7 @@ import numpy as np
 
 from .._types import FloatArray
 from ..dynamics.laws import exponent_from_apsidal_angle, potential
-from ._start import StartProblem, _local_state, _vector, centre_candidates
+from ._start import StartProblem, _local_state, _vector, centre_candidates, swept_area
 
 HARMONICS = 3
 """Harmonics of the apsidal frequency in the series for u(phi) (an eccentric orbit needs more
@@ -228,8 +228,7 @@ def apsidal_start(problem: StartProblem, indices: list[int] | tuple[int, ...],
     # h² = k H: the energy equation h² u² / 2 + V(1/u) = E at both apsides (V for k = 1).
     energy_step = float(potential(1.0 / u_min, exponent, 1.0) - potential(1.0 / u_max, exponent, 1.0))
     per_strength = 2.0 * energy_step / (u_max**2 - u_min**2)
-    swept = 0.5 * np.concatenate(([0.0], np.cumsum(offset[:-1, 0] * offset[1:, 1]
-                                                    - offset[:-1, 1] * offset[1:, 0])))
+    swept = swept_area(offset)
     h = abs(2.0 * float(np.polyfit(t - t.mean(), swept, 1)[0]))
     if not (per_strength > 0 and h > 0):
         return None

@@ -146,9 +146,10 @@ def _aim_of_accelerations(track: Track, noise: float) -> tuple[float, float] | N
     return float(point[0]), float(point[1])
 
 
-def _swept_area(track: Track) -> FloatArray:
-    """Area (L²) swept about the origin from the first sample: the polygon's running sum."""
-    x, y = np.asarray(track.x), np.asarray(track.y)
+def swept_area(positions: FloatArray) -> FloatArray:
+    """Area (L²) swept about the origin from the first of ``positions`` (N, 2): the polygon's
+    running sum."""
+    x, y = positions[:, 0], positions[:, 1]
     return 0.5 * np.concatenate(([0.0], np.cumsum(x[:-1] * y[1:] - x[1:] * y[:-1])))
 
 
@@ -157,7 +158,7 @@ def _areal_design(track: Track) -> tuple[FloatArray, FloatArray]:
     Kepler's second law makes it a + b t (+ c t² for a slow drag) about the force centre."""
     t = np.asarray(track.t)
     scaled = (t - t.mean()) / max(float(np.ptp(t)), 1e-300)
-    return np.column_stack((np.ones_like(scaled), scaled, scaled**2)), _swept_area(track)
+    return np.column_stack((np.ones_like(scaled), scaled, scaled**2)), swept_area(np.asarray(track.positions))
 
 
 def areal_centre(track: Track) -> tuple[float, float] | None:
