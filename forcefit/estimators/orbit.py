@@ -350,13 +350,22 @@ def _misses(model: OrbitModel, solution: _Solution, sigma: FloatArray, loss: Los
 
 def _objective(residual: FloatArray, loss: Loss) -> float:
     """The sum the optimiser minimises, of residuals in units of sigma."""
+    return float(np.sum(_loss_terms(residual, loss)[0]))
+
+
+def _loss_terms(residual: FloatArray, loss: Loss) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """The loss rho, its half-derivative psi and psi's slope at each residual (units of sigma),
+    scaled as scipy's least_squares takes them: rho = r² for least squares, 2 (sqrt(1 + r²) - 1)
+    for soft_l1, r² within 1 and 2 |r| - 1 beyond for Huber's loss."""
     squares = residual * residual
     if loss == "soft_l1":
-        return float(np.sum(2.0 * (np.sqrt(1.0 + squares) - 1.0)))
+        return (2.0 * (np.sqrt(1.0 + squares) - 1.0), residual / np.sqrt(1.0 + squares),
+                (1.0 + squares) ** -1.5)
     if loss == "huber":
-        size = np.abs(residual)
-        return float(np.sum(np.where(size <= 1.0, squares, 2.0 * size - 1.0)))
-    return float(np.sum(squares))
+        inside = np.abs(residual) <= 1.0
+        return (np.where(inside, squares, 2.0 * np.abs(residual) - 1.0), np.clip(residual, -1.0, 1.0),
+                inside.astype(float))
+    return squares, residual, np.ones_like(residual)
 
 
 def _checked_extra(extra: ExtraForces | None, tracks: Sequence[Track],
@@ -739,12 +748,7 @@ def covariance_from(
     if loss == "linear":
         factor = 1.0 if sigma_known else float(residual @ residual) / dof
     else:
-        if loss == "soft_l1":
-            psi = residual / np.sqrt(1.0 + residual**2)
-            slope = (1.0 + residual**2) ** -1.5
-        else:                                              # huber
-            psi = np.clip(residual, -1.0, 1.0)
-            slope = (np.abs(residual) <= 1.0).astype(float)
+        _, psi, slope = _loss_terms(residual, loss)
         mean_slope = float(np.mean(slope))
         if not mean_slope > 0:
             return None
