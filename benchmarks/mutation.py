@@ -58,7 +58,9 @@ CONTRACT = ("test_the_result_is_the_registered_type", "test_every_number_is_a_fi
             "test_covariance_matches_the_parameter_names", "test_residuals_are_one_per_value_used",
             "test_units_are_the_tracks", "test_truth_within_the_stated_errors",
             "test_the_derived_numbers_agree_with_each_other", "test_the_checks_say_something",
-            "test_the_relation_points_follow_the_law", "test_rows_text_and_dict_show_the_same_fit")
+            "test_the_relation_points_follow_the_law", "test_rows_text_and_dict_show_the_same_fit",
+            "test_moving_the_track_and_its_given_centre_together_changes_nothing",
+            "test_the_same_track_in_other_units_gives_the_same_law")
 
 
 def _contract(method: str) -> tuple[str, ...]:
@@ -215,6 +217,19 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "n = -1.5) the largest position error against rtol = 1e-14 goes from 7.9e-12 to 8.4e-12 of the "
         "orbit's size (the same at 1e-12 and 1e-11: a floor of the step control), against the 1e-9 "
         "the propagator states",
+    ("forcefit/estimators/orbit.py",
+     'scale = {"exponent": 1.0, "log_force": 1.0, "drag": 1.0 / duration, "rotation_rate": 1.0 / duration,',
+     5):
+        "the drag's central-difference step doubled (1e-6 of 2/duration): on test_orbit's linear-drag "
+        "track n moves by 4e-10 (2e-6 of its error), the errors of n and of the drag by 2e-10 of "
+        "themselves: a difference step's size changes the derivative only in its rounding",
+    ("forcefit/estimators/orbit.py", "return np.full(track.n_points, max(noise, 1e-12 * size, 1e-300))", 1):
+        "the floor under the samples' sigma when none is given, 1e-12 of the track's size -> 1e-12 / "
+        "size: it binds only when the differences show no noise (noise-free or whole-pixel tracks, "
+        "measured 1.5e-15 px); sigma is then fitted from the residuals and the covariance scaled by "
+        "the reduced chi-square, so a uniform sigma's size cancels (a noise-free orbit of size 1 and "
+        "1.5e11: n, its error and the checks identical; of size 1e-6, where the mutant's floor is "
+        "the size itself: n the same to 6e-16, its error within 0.3%)",
 }
 
 # the same, for a line whose text recurs in its module: (module, enclosing function, line, index)

@@ -182,3 +182,35 @@ def test_the_shape_search_starts_at_the_middle_the_centroid_and_the_foci():
     np.testing.assert_allclose(starts[1], expected[1], atol=1e-12)
     for found, focus in zip(sorted(starts[2:], key=lambda c: c[0]), sorted(expected[2:], key=lambda c: c[0])):
         np.testing.assert_allclose(found, focus, atol=1e-4)
+
+
+@pytest.mark.parametrize("bending_samples, heavier", [(9, True), (10, False)])
+def test_a_heavier_guide_is_drawn_only_below_the_fewest_bending_samples(monkeypatch, bending_samples,
+                                                                         heavier):
+    # The documented rule (MIN_BENDING: the fewest samples that must bend significantly): with
+    # exactly that many the fit's own smoothing guides the first line; with one fewer a heavier
+    # smoothing is tried. Checked on both sides of the boundary by fixing how many samples bend.
+    from forcefit.geometry import centre
+    from forcefit.geometry.smoothing import smooth_track
+
+    assert centre.MIN_BENDING == 10
+    track = simulate_orbit(exponent=-2.0, duration=8.0, rate=20.0, noise=1e-3, rng=4)
+    curve = smooth_track(track)
+    drawn: list[float] = []
+
+    def counted(*args, **kwargs):
+        drawn.append(kwargs.get("level", math.nan))
+        return smooth_track(*args, **kwargs)
+
+    def fixed(guide, kappa, kappa_err):
+        mask = np.zeros(guide.value.shape[0], dtype=bool)
+        mask[10:10 + bending_samples] = True
+        return mask
+
+    monkeypatch.setattr(centre, "smooth_track", counted)
+    monkeypatch.setattr(centre, "attractive_points", fixed)
+    guide, bending = centre.relation_guide(track, curve)
+    assert int(bending.sum()) == bending_samples
+    assert (guide is not curve) == heavier
+    assert drawn == ([curve.level * centre.HEAVIER * centre.HEAVIER**i for i in range(centre.HEAVIER_STEPS)]
+                     if heavier else [])

@@ -227,3 +227,50 @@ def test_moving_the_track_and_its_given_centre_together_changes_nothing(method, 
     for name in ("exponent", "exponent_stderr", "strength", "strength_stderr"):
         a, b = getattr(here, name), getattr(there, name)
         assert (math.isnan(a) and math.isnan(b)) or b == pytest.approx(a, rel=1e-4), (method, name)
+
+
+
+def _rescaled(track, length: float, time: float):
+    """The track written in a length unit ``length`` times smaller and a time unit ``time`` times
+    smaller (the numbers grow by those factors)."""
+    from forcefit.track import Track
+
+    return Track(t=track.t * time, x=track.x * length, y=track.y * length,
+                 sigma=None if track.sigma is None else track.sigma * length, name=track.name)
+
+
+@pytest.mark.parametrize("method", sorted(ESTIMATORS))
+def test_the_same_track_in_other_units_gives_the_same_law(method, track):
+    # Scale invariance (dimensional analysis, common practice): the same motion written in other
+    # units is the same law. Lengths L times larger and times T times larger (a million: metres
+    # written in micrometres or in thousands of km; seconds in microseconds) leave n and its error
+    # as they were; a = k r^n gives k -> k L^(1 - n) / T^2 exactly. k is the force at r = 1 unit,
+    # so its error moves with the unit: var(ln k) is quadratic in ln L with second difference
+    # 2 var(n) (ln L)^2 (first-order propagation of ln k(L) = ln k - (n - 1) ln L, common
+    # practice), and with T alone it does not change. Every earlier track was near unit size; a
+    # start or floor written for that (a reference radius multiplied where it should divide) shows
+    # here.
+    scale = 1e6                                   # the same metres written in micrometres, in km
+    here = fit(track, method, centre=CENTRE)
+    fits = {}
+    for length, time in ((scale, 1.0), (1.0 / scale, 1.0), (1.0, scale)):
+        fits[length, time] = fit(_rescaled(track, length, time), method,
+                                 centre=(CENTRE[0] * length, CENTRE[1] * length))
+    for (length, time), there in fits.items():
+        assert there.exponent == pytest.approx(here.exponent, abs=1e-4 * here.exponent_stderr), (length, time)
+        assert there.exponent_stderr == pytest.approx(here.exponent_stderr, rel=1e-4), (length, time)
+        factor = length ** (1.0 - here.exponent) / time**2
+        if math.isnan(here.strength):
+            assert math.isnan(there.strength)
+            continue
+        assert there.strength == pytest.approx(here.strength * factor, rel=1e-3 * there.strength_stderr
+                                                / there.strength + 1e-9), (length, time)
+    if math.isnan(here.strength):
+        return
+
+    def log_variance(result):
+        return (result.strength_stderr / result.strength) ** 2
+
+    assert log_variance(fits[1.0, scale]) == pytest.approx(log_variance(here), rel=1e-4)
+    second = log_variance(fits[scale, 1.0]) + log_variance(fits[1.0 / scale, 1.0]) - 2.0 * log_variance(here)
+    assert second == pytest.approx(2.0 * here.exponent_stderr**2 * math.log(scale) ** 2, rel=1e-3)
