@@ -96,7 +96,10 @@ def test_the_relation_residual_vanishes_on_an_exact_hooke_orbit():
     # moves under F = w^2 r towards c (n = 1, f_ref = w^2 r_ref), with h = a b w. With exact
     # derivatives in time, and in arc length (T = v/|v|, d2r/ds2 = (acc - (acc.T) T)/|v|^2;
     # common practice), both forms of the relation hold to rounding, and a wrong exponent or
-    # centre breaks them.
+    # centre breaks them. The shape-only form also holds on derivatives in time, a parameter that
+    # is not arc length: kappa = |r' x r''| / |r'|^3 in any parametrisation (do Carmo 1976,
+    # Differential Geometry of Curves and Surfaces, sec. 1-5), as a smoothing in a rescaled
+    # parameter gives it.
     a, b, w, r_ref, c = 0.3, 0.1, 2.0, 0.2, (0.5, -0.2)
     t = np.linspace(0.0, np.pi, 60)
     relative = np.column_stack((a * np.cos(w * t), b * np.sin(w * t)))
@@ -109,7 +112,8 @@ def test_the_relation_residual_vanishes_on_an_exact_hooke_orbit():
     in_arc = (acceleration - along * tangent) / speed**2
     h = a * b * w
     for first, second, timed, log_force in ((velocity, acceleration, True, np.log(w**2 * r_ref)),
-                                            (tangent, in_arc, False, np.log(w**2 * r_ref / h**2))):
+                                            (tangent, in_arc, False, np.log(w**2 * r_ref / h**2)),
+                                            (velocity, acceleration, False, np.log(w**2 * r_ref / h**2))):
         def residual(exponent, cx=c[0], log_force=log_force, first=first, second=second, timed=timed):
             return relation_residual(np.array([exponent, log_force, cx, c[1]]), value, first, second,
                                      sense=1.0, reference_radius=r_ref, timed=timed)

@@ -28,7 +28,9 @@ def _every_force():
 
 def test_the_compiled_propagator_adds_each_force_as_the_reference_does():
     # Two independent implementations: numpy terms under scipy's DOP853 (rtol 1e-13) and the
-    # compiled kernel's own; they must agree far below any noise a fit would meet.
+    # compiled kernel's own, stepping onto each sample and by its continuous extension (the
+    # sampler's path, whose extra stages meet the time-tabled perturber at their own times);
+    # they must agree far below any noise a fit would meet.
     t = np.linspace(0.0, 30.0, 301)
     extra = _every_force()
     reference = propagate_reference([1.0, 0.0], [0.0, 0.9], t, exponent=-2.0, strength=1.0, epoch=10.0,
@@ -36,8 +38,11 @@ def test_the_compiled_propagator_adds_each_force_as_the_reference_does():
     batch = propagate_batch(t, [1.0, 0.0], [0.0, 0.9], exponent=-2.0, strength=1.0, epoch=10.0, extra=extra,
                             yukawa_alpha=0.05, centre=(0.1, 0.0))
     plain = propagate_batch(t, [1.0, 0.0], [0.0, 0.9], exponent=-2.0, strength=1.0, epoch=10.0)
-    assert batch.ok[0]
+    dense = propagate_batch(t, [1.0, 0.0], [0.0, 0.9], exponent=-2.0, strength=1.0, epoch=10.0, extra=extra,
+                            yukawa_alpha=0.05, centre=(0.1, 0.0), dense=True)
+    assert batch.ok[0] and dense.ok[0]
     assert np.abs(batch.position[0] - reference.position).max() < 1e-9
+    assert np.abs(dense.position[0] - reference.position).max() < 1e-9
     assert np.abs(plain.position[0] - reference.position).max() > 0.1    # the forces do matter
 
 

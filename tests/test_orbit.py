@@ -1,6 +1,7 @@
 """The batch propagator and the full-orbit estimator against references and truth."""
 
 import math
+import re
 
 import erfa
 import numpy as np
@@ -56,6 +57,22 @@ def test_robust_loss_shrugs_off_tracking_glitches():
     assert kept.passed is None and kept.message.endswith("; down-weighted by the robust loss.")
 
 
+@pytest.mark.parametrize("loss", ["soft_l1", "huber"])
+def test_a_robust_fit_without_a_given_sigma_finds_the_law_and_the_noise(loss):
+    # The same glitched track with its sigma dropped: the robust fit must find the noise level
+    # itself (the residuals' own scale) and still cover the truth; its quick start is judged on
+    # the misses in the sigma it started with. The noise is 2 mm as simulated; the fitted level is
+    # a robust scale of ~600 residuals, within 10% (its sampling error is ~3%; common practice).
+    base = simulate_orbit(exponent=-1.5, noise=0.002, outliers=0.01, outlier_size=40, rng=8)
+    track = Track(t=base.t, x=base.x, y=base.y, name="no sigma")
+    robust = fit_orbit(track, loss=loss)
+    assert not robust.sigma_known
+    assert abs(robust.exponent + 1.5) < 3 * robust.exponent_stderr
+    assert robust.exponent_stderr < 0.01
+    level = float(re.search(r"fitted noise level ([0-9.e+-]+)", robust.diagnostics["noise"].message).group(1))
+    assert level == pytest.approx(0.002, rel=0.1)
+
+
 def test_outliers_are_named_by_the_files_row_and_time(tmp_path):
     # issue 15: outliers were reported as 0-based "sample N", not as the file's row and time
     track = simulate_orbit(exponent=1.0, strength=4.0, duration=8.0, rate=40.0, noise=0.001, rng=4)
@@ -82,6 +99,15 @@ def test_three_launches_fitted_jointly():
     assert abs(joint.exponent + 1.0) < 3 * joint.exponent_stderr
     assert joint.exponent_stderr < single.exponent_stderr
     assert joint.n_tracks == 3 and len(joint.parameter_names) == 2 + 2 + 3 * 4
+    # The residual checks see each launch against its own predicted orbit: the radial residuals,
+    # counted here from the fit's predicted positions about the shared centre, have the number of
+    # sign runs the check prints (Wald & Wolfowitz 1940 runs; common practice).
+    predicted = joint.predict()
+    data = np.concatenate([np.column_stack((track.x, track.y)) for track in tracks])
+    offset = predicted - np.array(joint.centre)
+    radial = np.sum((data - predicted) * offset, axis=1) / np.hypot(offset[:, 0], offset[:, 1])
+    runs = 1 + int(np.count_nonzero(np.diff(np.sign(radial)) != 0))
+    assert joint.diagnostics["residuals"].message.startswith(f"{runs} runs of residual signs")
 
 
 def test_mars_from_plan94_is_inverse_square_with_the_gaussian_constant():

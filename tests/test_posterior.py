@@ -192,6 +192,29 @@ def test_the_progress_bar_estimates_against_the_expected_length(capsys):
     assert totals[-1] >= sampler.iteration
 
 
+def test_a_resumed_runs_bar_counts_only_its_own_steps(tmp_path, capsys):
+    # A resumed chain's bar shows the steps this run is expected to make: the whole chain's
+    # expected length (50 autocorrelation times, capped at max_steps; expected_steps, tested by
+    # its example) less the steps already on disk. Checked at the last estimate, which is made at
+    # the step the chain converged: the bar's end plus the resumed start is the chain's expected
+    # length at that step, from tau as emcee (Foreman-Mackey et al. 2013) estimates it there.
+    from forcefit.inference.posterior import expected_steps
+
+    def log_probability(theta):
+        return -0.5 * np.sum(theta**2, axis=1)
+
+    chain = tmp_path / "chain.h5"
+    run_ensemble(log_probability, np.zeros(2), np.eye(2), rng=1, max_steps=100, save=chain,
+                 fingerprint="run A")
+    capsys.readouterr()
+    sampler, converged, _ = run_ensemble(log_probability, np.zeros(2), np.eye(2), rng=1, max_steps=20_000,
+                                         save=chain, resume=True, fingerprint="run A", progress=True)
+    totals = [int(total) for total in re.findall(r"\d+/(\d+)", capsys.readouterr().err)]
+    tau = float(np.max(sampler.get_autocorr_time(tol=0)))
+    assert converged and sampler.iteration > 100 and totals
+    assert totals[-1] == expected_steps(tau, sampler.iteration, 20_000) - 100
+
+
 def test_resume_refuses_another_runs_chain(tmp_path):
     # issue 16: sample --resume chain.h5 silently continued another run's chain
     def log_probability(theta):

@@ -62,22 +62,22 @@ class CentreEstimate:
         ``"acceleration lines"`` (timestamps) or ``"curvature relation"`` (shape only).
     reduced_chi2 : float
         Of the fit that placed it (ranks the alternatives).
-    alternatives : tuple of CentreEstimate
-        Other centres the shape supports as well (shape-only tracks).
-    covariance : ndarray, shape (2, 2), optional
+    covariance : ndarray, shape (2, 2)
         Covariance of the centre's coordinates.
-    influence : ndarray, shape (2, n_points, 2), optional
+    influence : ndarray, shape (2, n_points, 2)
         d centre / d sample (x and y) at every sample: how the centre moves with the data,
         to carry its uncertainty, with its correlations, into what is fitted about it.
+    alternatives : tuple of CentreEstimate
+        Other centres the shape supports as well (shape-only tracks).
     """
 
     centre: tuple[float, float]
     stderr: tuple[float, float]
     method: str
     reduced_chi2: float
+    covariance: FloatArray
+    influence: FloatArray
     alternatives: tuple[CentreEstimate, ...] = ()
-    covariance: FloatArray | None = None
-    influence: FloatArray | None = None
 
 
 def _estimate(fit: PointwiseFit, rows: slice, method: str) -> CentreEstimate:
@@ -85,7 +85,7 @@ def _estimate(fit: PointwiseFit, rows: slice, method: str) -> CentreEstimate:
     covariance = fit.covariance[rows, rows]
     stderr = np.sqrt(np.maximum(np.diag(covariance), 0.0))
     return CentreEstimate((float(centre[0]), float(centre[1])), (float(stderr[0]), float(stderr[1])),
-                          method, fit.reduced_chi2, covariance=covariance, influence=fit.influence[rows])
+                          method, fit.reduced_chi2, covariance, fit.influence[rows])
 
 
 def find_centre(
