@@ -51,6 +51,7 @@ from scipy.stats import binomtest
 ROOT = Path(__file__).resolve().parent.parent
 
 # the propagators' drag is tested in test_propagate.py, their other forces here
+CIRCLE_REFUSED = "tests/test_curvature.py::test_a_circular_orbit_is_refused_with_the_noise_in_the_radius[{}]"
 EXTRA_FORCES = "tests/test_forces.py::test_the_compiled_propagator_adds_each_force_as_the_reference_does"
 
 # the contract every estimator keeps (tests/test_registry.py), for one estimator: one fit
@@ -79,8 +80,8 @@ TARGETS: dict[str, tuple[tuple[str, ...], tuple[str, ...] | None, float]] = {
     "forcefit/estimators/orbit.py": ((*_contract("orbit"), "tests/test_orbit.py"), None, 110),
     "forcefit/estimators/shape.py": ((*_contract("shape"), "tests/test_shape.py"), None, 50),
     "forcefit/estimators/curvature.py": ((*_contract("curvature"), "tests/test_curvature.py"), None, 20),
-    "forcefit/estimators/acceleration.py": ((*_contract("acceleration"), "tests/test_acceleration.py"), None,
-                                            18),
+    "forcefit/estimators/acceleration.py": ((*_contract("acceleration"), "tests/test_acceleration.py",
+                                             CIRCLE_REFUSED.format("acceleration")), None, 18),
     "forcefit/inference/posterior.py": (("tests/test_posterior.py",), None, 120),
     "forcefit/analysis/duality_check.py": (("tests/test_duality_check.py",), None, 30),
     "forcefit/units.py": (("tests/test_units.py",), None, 10),
@@ -217,6 +218,9 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "n = -1.5) the largest position error against rtol = 1e-14 goes from 7.9e-12 to 8.4e-12 of the "
         "orbit's size (the same at 1e-12 and 1e-11: a floor of the step control), against the 1e-9 "
         "the propagator states",
+    ("forcefit/dynamics/propagate.py", "table_t, table_xy = np.zeros(0), np.zeros((0, 2))", 0):
+        "the perturber's time table when there is no perturber, empty -> one zero: the kernel reads "
+        "the table only when the perturber's GM is non-zero, which is set together with a real table",
     ("forcefit/estimators/orbit.py",
      'scale = {"exponent": 1.0, "log_force": 1.0, "drag": 1.0 / duration, "rotation_rate": 1.0 / duration,',
      5):
@@ -238,6 +242,10 @@ EQUIVALENT_IN: dict[tuple[str, str, str, int], str] = {
         "_leg's default centre: its only callers (both legs of propagate_reference) always pass it",
     ("forcefit/dynamics/propagate.py", "_leg", "centre: tuple[float, float] = (0.0, 0.0),", 1):
         "_leg's default centre: its only callers (both legs of propagate_reference) always pass it",
+    ("forcefit/inference/posterior.py", "_Problem", "@dataclass(frozen=True)", 0):
+        "the log-probability's private problem made mutable: it is built once per run and nothing "
+        "assigns to it, so every number is the same (the public Posterior and IntervalRow stay "
+        "frozen and are tested so)",
 }
 
 

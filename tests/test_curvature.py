@@ -54,7 +54,8 @@ def test_the_power_law_check_measures_how_much_the_local_exponent_changes(bent):
 
 
 
-def test_a_circular_orbit_is_refused_with_the_noise_in_the_radius():
+@pytest.mark.parametrize("method", ["curvature", "acceleration"])
+def test_a_circular_orbit_is_refused_with_the_noise_in_the_radius(method):
     # A circle shows no exponent. The refusal compares the spread of r with what noise alone gives:
     # 8 times the radius's error, which for equal errors in x and y is their common error whatever
     # the direction (delta method, var r = ux^2 var x + uy^2 var y; common practice).
@@ -70,8 +71,10 @@ def test_a_circular_orbit_is_refused_with_the_noise_in_the_radius():
     inside = interior(curve)
     np.testing.assert_allclose(curve.value_var[inside, 0], curve.value_var[inside, 1], rtol=1e-9)
     expected = 8.0 * math.sqrt(float(np.mean(curve.value_var[inside, 0])))
+    from forcefit.estimators import fit
+
     with pytest.raises(NotIdentifiable, match="hardly changes") as refused:
-        fit_curvature(track, centre=(0.0, 0.0))
+        fit(track, method, centre=(0.0, 0.0))
     found = re.search(r"noise alone moves it by about ([0-9.e-]+)\)", str(refused.value))
     assert found and float(found[1]) == pytest.approx(expected, rel=0.03)      # printed to 2 digits
 

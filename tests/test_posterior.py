@@ -177,6 +177,11 @@ def test_a_sharp_posterior_prints_distinct_interval_ends(sharp_posterior):
         assert low != high and float(low) < float(high)
     assert abs(float(row.median) + 2.0004) < 1e-7 and len(row.median) > len("-2.0004")
     assert f"{row.median:>14} {row.interval_68:>32}" in sharp_posterior.to_text()
+    # what a caller is handed cannot be changed behind the printed text's back (common practice)
+    from dataclasses import FrozenInstanceError
+
+    with pytest.raises(FrozenInstanceError):
+        row.median = "-2"                                          # type: ignore[misc]
 
 
 def test_the_progress_bar_estimates_against_the_expected_length(capsys):
