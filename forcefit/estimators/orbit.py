@@ -3,7 +3,7 @@
 The reference estimator. The state at an epoch in the middle of the data, the force
 law (n and the force at a reference radius), the centre, and on request a drag
 coefficient and the rotation rate of the observer's frame are fitted by least
-squares (lmfit, with a robust loss on request) to all samples of one track, or of
+squares (scipy's trust-region least squares, with a robust loss on request) to all samples of one track, or of
 several tracks that share n and k. Each evaluation integrates the orbit with the
 compiled batch propagator; the Jacobian is one batch of central differences. The start
 comes from what the samples resolve: the path's shape where it is well posed
@@ -15,11 +15,10 @@ robust loss, for the glitches it down-weights.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass, replace
 from typing import Literal
 
-import lmfit
 import numpy as np
 
 from .._regression import autocorrelation_time
@@ -37,10 +36,9 @@ from ._checks import (
     require_one_sense,
     runs_diagnostic,
 )
+from ._least_squares import Loss, Optimum, ParameterVector, run_least_squares
 from ._start import StartProblem, orbit_start
 from .result import Diagnostic, OrbitFit
-
-Loss = Literal["linear", "soft_l1", "huber"]
 
 MIN_SAMPLES = 12
 """Fewest samples per track the orbit fit accepts (it fits up to 7 numbers from each)."""
@@ -79,15 +77,13 @@ def _epoch(track: Track, epoch: Literal["middle"] | float) -> tuple[float, int]:
 
 def _parameters(
     model: OrbitModel, vector: FloatArray, exponent: float | None, centre: tuple[float, float] | None,
-) -> lmfit.Parameters:
-    """lmfit parameters at ``vector``, with the held exponent and a given centre fixed."""
-    params = lmfit.Parameters()
-    for i, name in enumerate(model.names):
-        fixed = (name == "exponent" and exponent is not None) or (
-            name.startswith("centre_") and centre is not None) or (
-            name == "rotation_rate" and not model.fit_rotation)
-        params.add(name, value=float(vector[i]), vary=not fixed)
-    return params
+) -> ParameterVector:
+    """The parameters at ``vector``, with the held exponent, a given centre and an unfitted
+    rotation rate held."""
+    return ParameterVector.of(model.names, vector, lambda name: (
+        (name == "exponent" and exponent is not None)
+        or (name.startswith("centre_") and centre is not None)
+        or (name == "rotation_rate" and not model.fit_rotation)))
 
 
 def _step_scales(model: OrbitModel) -> tuple[float, float, float]:
@@ -103,8 +99,7 @@ def _step_scales(model: OrbitModel) -> tuple[float, float, float]:
 
 @dataclass(frozen=True)
 class _Solution:
-    """Where the optimiser ended, copied out of lmfit's result so that no result holds (or
-    changes) a library object: every parameter's value and standard error (0 when held, nan
+    """Where the optimiser ended: every parameter's value and standard error (0 when held, nan
     when not estimable), the varying ones in covariance order, and the optimiser's record."""
 
     values: dict[str, float]
@@ -120,18 +115,15 @@ class _Solution:
     white_stderrs: dict[str, float] | None = None
 
     @classmethod
-    def of(cls, result: lmfit.minimizer.MinimizerResult) -> _Solution:
-        stderrs = {}
-        for name, parameter in result.params.items():
-            if not parameter.vary:
-                stderrs[name] = 0.0
-            else:
-                stderrs[name] = float(parameter.stderr) if parameter.stderr is not None else math.nan
-        covariance = None if result.covar is None else np.array(result.covar, dtype=float)
-        return cls(values={name: float(result.params[name].value) for name in result.params},
-                   stderrs=stderrs, varying=tuple(result.var_names), covariance=covariance,
-                   chi2=float(result.chisqr), residual=np.array(result.residual, dtype=float),
-                   evaluations=int(result.nfev), success=bool(result.success), message=str(result.message))
+    def of(cls, optimum: Optimum) -> _Solution:
+        """The optimiser's end point, errors not yet known (nan; 0 for the held parameters)."""
+        parameters = optimum.parameters
+        residual = np.array(optimum.residual, dtype=float)
+        unknown = {name: 0.0 if fixed else math.nan for name, fixed in zip(parameters.names, parameters.held)}
+        return cls(values=parameters.as_dict(), stderrs=unknown,
+                   varying=parameters.varying, covariance=None, chi2=float(residual @ residual),
+                   residual=residual, evaluations=optimum.evaluations, success=optimum.success,
+                   message=optimum.message)
 
     def widened(self, covariance: FloatArray | None, tau: float) -> _Solution:
         """This solution with the white-noise ``covariance`` of the varying parameters, widened by
@@ -592,7 +584,7 @@ def _law_fit(
 
 
 def optimise(
-    model: OrbitModel, params: lmfit.Parameters, sigma: FloatArray, sigma_known: bool, loss: Loss,
+    model: OrbitModel, params: ParameterVector, sigma: FloatArray, sigma_known: bool, loss: Loss,
     max_evaluations: int,
 ) -> tuple[_Solution, FloatArray, float]:
     """Least squares of the model from the starting ``params``.
@@ -622,7 +614,7 @@ def optimise(
         spread = _robust_spread(np.asarray(result.residual))
         if spread > 0 and abs(math.log(spread)) > math.log(1.2):
             sigma *= spread
-            result = _least_squares(model, result.params, data, sigma, scales, loss, max_evaluations)
+            result = _least_squares(model, result.parameters, data, sigma, scales, loss, max_evaluations)
     residual = np.asarray(result.residual)
     covariance = _fit_covariance(model, result, sigma, scales, loss, sigma_known)
     solution = _Solution.of(result).widened(covariance, residual_correlation_time(model, residual))
@@ -675,47 +667,29 @@ def _robust_spread(residuals: FloatArray) -> float:
 
 
 def _least_squares(
-    model: OrbitModel, params: lmfit.Parameters, data: FloatArray, sigma: FloatArray,
+    model: OrbitModel, params: ParameterVector, data: FloatArray, sigma: FloatArray,
     scales: tuple[float, float, float], loss: Loss, max_evaluations: int,
-) -> lmfit.minimizer.MinimizerResult:
+) -> Optimum:
+    """Trust-region least squares of the samples in units of ``sigma`` from ``params``: every
+    residual one orbit per track, every Jacobian one batch of central differences."""
     weights = 1.0 / np.repeat(sigma, 2)
     penalty = 1e4
 
-    def vector_of(values: lmfit.Parameters) -> FloatArray:
-        return np.array([values[name].value for name in model.names])
-
-    def residual(values: lmfit.Parameters) -> FloatArray:
-        predictions, ok = model.predict(vector_of(values)[None, :])
+    def residual(vector: FloatArray) -> FloatArray:
+        predictions, ok = model.predict(vector[None, :])
         if not ok[0]:
             return np.full(data.size, penalty)
         return (data - np.concatenate([p[0] for p in predictions])).ravel() * weights
 
-    def jacobian(values: lmfit.Parameters) -> FloatArray:
-        vector = vector_of(values)
-        varying = [i for i, name in enumerate(model.names) if values[name].vary]
+    def jacobian(vector: FloatArray, varying: list[int]) -> FloatArray:
         steps = _steps(model, vector, *scales)
         return np.nan_to_num(-model.jacobian(vector, steps, varying) * weights[:, None])
 
     return run_least_squares(residual, jacobian, params, loss, max_evaluations)
 
 
-def run_least_squares(
-    residual: Callable[[lmfit.Parameters], FloatArray], jacobian: Callable[[lmfit.Parameters], FloatArray],
-    params: lmfit.Parameters, loss: Loss, max_evaluations: int,
-) -> lmfit.minimizer.MinimizerResult:
-    """lmfit's trust-region least squares of normalised residuals with an analytic-shape Jacobian
-    (the loss's scale is 1: one standard error)."""
-    minimizer = lmfit.Minimizer(residual, params, scale_covar=False)
-    try:
-        return minimizer.least_squares(jac=jacobian, loss=loss, f_scale=1.0, x_scale="jac",
-                                       max_nfev=max_evaluations)
-    except (ValueError, np.linalg.LinAlgError) as exc:
-        raise FitError(f"the orbit fit failed: {exc}",
-                       last_params={name: params[name].value for name in params}) from None
-
-
 def _fit_covariance(
-    model: OrbitModel, result: lmfit.minimizer.MinimizerResult, sigma: FloatArray,
+    model: OrbitModel, result: Optimum, sigma: FloatArray,
     scales: tuple[float, float, float], loss: Loss, sigma_known: bool,
 ) -> FloatArray | None:
     """Covariance of the varying parameters where the optimiser stopped.
@@ -726,8 +700,8 @@ def _fit_covariance(
     (P. J. Huber 1981, Robust Statistics, Wiley, §7.6), which counts a down-weighted
     glitch neither as information nor as noise. None when J^T J is singular.
     """
-    vector = np.array([result.params[name].value for name in model.names])
-    varying = [model.index(name) for name in result.var_names]
+    vector = result.parameters.values
+    varying = [model.index(name) for name in result.parameters.varying]
     steps = _steps(model, vector, *scales)
     jacobian = model.jacobian(vector, steps, varying) / np.repeat(sigma, 2)[:, None]
     return covariance_from(jacobian, np.asarray(result.residual), loss, sigma_known)

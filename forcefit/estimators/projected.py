@@ -16,7 +16,6 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass, replace
 from typing import Literal
 
-import lmfit
 import numpy as np
 
 from .._types import FloatArray
@@ -27,6 +26,7 @@ from ..geometry.noise import difference_noise
 from ..track import Track
 from ..units import is_sky_angle, velocity_scale
 from ._checks import chi_square_diagnostic, require_bend
+from ._least_squares import Optimum, ParameterVector, run_least_squares
 from ._projected_start import ProjectedStart, projected_starts
 from ._start import centre_candidates
 from .orbit import (
@@ -38,7 +38,6 @@ from .orbit import (
     _Solution,
     correlation_time,
     covariance_from,
-    run_least_squares,
 )
 from .result import Diagnostic, ProjectedFit
 
@@ -145,29 +144,16 @@ class _Problem:
         return -self.weights.apply(self.model.jacobian(vector, steps, columns))
 
 
-def _minimise(problem: _Problem, params: lmfit.Parameters, loss: Loss, max_evaluations: int,
-              ) -> lmfit.minimizer.MinimizerResult:
-    names = problem.model.names
-
-    def vector_of(values: lmfit.Parameters) -> FloatArray:
-        return np.array([values[name].value for name in names])
-
-    def residual(values: lmfit.Parameters) -> FloatArray:
-        return problem.residual(vector_of(values))
-
-    def jacobian(values: lmfit.Parameters) -> FloatArray:
-        columns = [i for i, name in enumerate(names) if values[name].vary]
-        return np.nan_to_num(problem.jacobian(vector_of(values), columns))
-
+def _minimise(problem: _Problem, params: ParameterVector, loss: Loss, max_evaluations: int) -> Optimum:
     with np.errstate(all="ignore"):
-        return run_least_squares(residual, jacobian, params, loss, max_evaluations)
+        return run_least_squares(problem.residual,
+                                 lambda vector, columns: np.nan_to_num(problem.jacobian(vector, columns)),
+                                 params, loss, max_evaluations, what="the projected-orbit fit")
 
 
-def _parameters(model: ProjectedOrbitModel, vector: FloatArray, exponent: float | None) -> lmfit.Parameters:
-    params = lmfit.Parameters()
-    for name, value in zip(model.names, vector):
-        params.add(name, value=float(value), vary=not (name == "exponent" and exponent is not None))
-    return params
+def _parameters(model: ProjectedOrbitModel, vector: FloatArray, exponent: float | None) -> ParameterVector:
+    """The parameters at ``vector``, with the exponent held when it is given."""
+    return ParameterVector.of(model.names, vector, lambda name: name == "exponent" and exponent is not None)
 
 
 def _optimise(problem: _Problem, vector: FloatArray, exponent: float | None, known: bool, loss: Loss,
@@ -179,14 +165,15 @@ def _optimise(problem: _Problem, vector: FloatArray, exponent: float | None, kno
     if not known:
         count = 2 * problem.model.position_times.size
         head = np.asarray(result.residual)[:count]
-        spread = (math.sqrt(float(head @ head) / max(count - len(result.var_names), 1)) if loss == "linear"
+        free = len(result.parameters.varying)
+        spread = (math.sqrt(float(head @ head) / max(count - free, 1)) if loss == "linear"
                   else _robust_spread(head))
         if spread > 0 and math.isfinite(spread):
             problem = replace(problem, weights=problem.weights.scaled(spread))
             if abs(math.log(spread)) > math.log(1.2) or problem.model.has_velocities:
-                result = _minimise(problem, result.params, loss, max_evaluations)
-    varying = [problem.model.index(name) for name in result.var_names]
-    best = np.array([result.params[name].value for name in problem.model.names])
+                result = _minimise(problem, result.parameters, loss, max_evaluations)
+    varying = [problem.model.index(name) for name in result.parameters.varying]
+    best = result.parameters.values
     residual = np.asarray(result.residual)
     jacobian = problem.jacobian(best, varying)
     covariance = covariance_from(jacobian, residual, loss, known or problem.model.has_velocities)
