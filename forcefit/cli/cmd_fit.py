@@ -60,7 +60,6 @@ TITLES = {"deviation": "Against the nominal law", "pendulum": "The pendulum's fi
 def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
     """Fit one track with the method and options of the command line."""
     from ..estimators import registry
-    from ..geometry.path import describe_path
 
     method = registry.choose_method(track, args.method or "auto")
     if method != "orbit":
@@ -71,6 +70,8 @@ def fit_track(track: Track, args: argparse.Namespace) -> LawFit:
         if method in SMOOTHING_METHODS:
             return registry.fit(track, method, centre=args.centre, smoothing=args.smoothing)
         if args.report:                   # the report draws the force-curvature relation
+            from ..geometry.path import describe_path
+
             path = describe_path(track, centre=args.centre, smoothing=args.smoothing)
             return registry.fit(track, method, centre=args.centre, path=path)
         return registry.fit(track, method, centre=args.centre)
@@ -176,12 +177,15 @@ def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tupl
 def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, Any], str]:
     """Fit one track with everything the command line asked for: whether it passed, its JSON
     report and its text."""
-    from ..analysis.apsides import MIN_SECULAR_ORBITS
     from ..analysis.deviation import Deviation
-    from ..estimators import OrbitFit, force_profile
+    from ..estimators import OrbitFit
 
     fit = fit_track(track, args)
-    profile = force_profile(track, bins=args.profile, centre=fit.centre) if args.profile else None
+    profile = None
+    if args.profile:                                  # the profile smooths the path: only when asked
+        from ..estimators import force_profile
+
+        profile = force_profile(track, bins=args.profile, centre=fit.centre)
     comparison = None
     if args.compare:
         from ..inference.comparison import compare_laws
@@ -210,8 +214,11 @@ def _fit_one(track: Track, args: argparse.Namespace) -> tuple[bool, dict[str, An
     lines += _fitted_extras(fit) + [result.to_text() for _, result in beside]
     deviation = beside[0][1]
     if (isinstance(fit, OrbitFit) and isinstance(deviation, Deviation)
-            and math.isfinite(deviation.precession_per_orbit) and fit.turns >= MIN_SECULAR_ORBITS):
-        lines += _measured_precession(track, fit, report)
+            and math.isfinite(deviation.precession_per_orbit)):
+        from ..analysis.apsides import MIN_SECULAR_ORBITS  # the smoothed path: only to measure apses
+
+        if fit.turns >= MIN_SECULAR_ORBITS:
+            lines += _measured_precession(track, fit, report)
     if page is not None:
         report["report"] = str(page)
     if profile is not None:
@@ -253,7 +260,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         if len(tracks) < 2 or (args.method or "orbit") != "orbit":
             raise InputError("--joint fits several runs of one file (an id column) with the orbit "
                              f"method together; {args.file} holds {len(tracks)} track(s).")
-        from ..estimators import fit_orbit  # lmfit is slow to import: only for the orbit method
+        from ..estimators import fit_orbit
 
         joint = fit_orbit(tracks, shared_centre=not args.separate_centres, **orbit_options(args, tracks[0]))
         reports.add(joint.to_dict(), joint.to_text())

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -11,9 +12,11 @@ from .._regression import autocorrelation_time, fit_line
 from .._types import FloatArray
 from ..errors import GeometryError, NotIdentifiable
 from ..geometry.curves import is_straight
-from ..geometry.path import PathGeometry
 from ..track import Track
 from .result import Diagnostic
+
+if TYPE_CHECKING:  # the smoothed path (scipy's splines) loads only for the estimators that use it
+    from ..geometry.path import PathGeometry
 
 RESOLVED_EXCURSION = 10.0
 """The fitted orbit's radial half-range must exceed this many of its standard errors (the orbit

@@ -26,8 +26,8 @@ class Estimator:
     ----------
     module : str
         The module that defines it, within `forcefit.estimators` (e.g. ``".orbit"``); it is
-        imported on first use, so that naming an estimator costs no start-up (the orbit fit's
-        optimiser, for one, is slow to import).
+        imported on first use, so that naming an estimator costs no start-up (the libraries
+        behind some, such as scipy's splines, are slow to import).
     name : str
         Its function's name in ``module``.
     needs_times : bool

@@ -4,11 +4,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .._types import FloatArray
-from .pspline import SmoothedCurve
+
+if TYPE_CHECKING:  # scipy's splines load only where a curve is smoothed, not for the orbit fit's checks
+    from .pspline import SmoothedCurve
 
 MIN_COS_GAMMA = 1e-6
 """cos(gamma) is floored here so that log(cos(gamma)) stays finite on radial stretches."""
