@@ -293,12 +293,12 @@ def test_a_commands_help_loads_none_of_the_numerical_libraries(command):
 
 
 @pytest.mark.parametrize(("command", "absent"), [
-    (["fit", "--method", "shape"], ("lmfit", "emcee")),
-    (["apsides"], ("lmfit", "emcee")),
+    (["fit", "--method", "shape"], ("lmfit", "emcee", "scipy.stats", "matplotlib")),
+    (["apsides"], ("lmfit", "emcee", "scipy.stats", "matplotlib")),
 ])
-def test_the_time_free_fit_and_apsides_load_no_orbit_optimiser(command, absent):
-    # lmfit (with scipy.stats, matplotlib and emcee behind it) is slow to import: only the orbit
-    # method needs it
+def test_the_time_free_fit_and_apsides_load_no_sampler_and_no_figures(command, absent):
+    # emcee (the sampler), scipy.stats and matplotlib (the report's figures) are slow to import:
+    # only `sample`, the law comparison and `--report` need them
     path = str(DEMO / "class_pendulum" / "run_02.csv")
     code = (f"import sys\nfrom forcefit.cli import main\nmain({[command[0], path, *command[1:]]!r})\n"
             f"print([m for m in {absent!r} if m in sys.modules], file=sys.stderr)")
@@ -311,10 +311,15 @@ def test_the_time_free_fit_and_apsides_load_no_orbit_optimiser(command, absent):
     ("apsides", ("scipy.stats", "scipy.signal", "dask", "pint", "lmfit", "numba", "matplotlib"),
      "apsidal angle"),
     ("inspect", ("scipy", "dask", "pint", "lmfit", "numba", "matplotlib"), "points"),
+    ("fit", ("lmfit", "scipy.stats", "scipy.signal", "scipy.interpolate", "matplotlib", "dask", "pint",
+             "emcee", "forcefit.geometry.path"), "orbit fit"),
 ])
-def test_apsides_and_inspect_load_only_what_they_use(command, absent, shown):
-    # Start-up: scipy.stats (behind scipy.signal), pint (with dask behind it), lmfit and numba
-    # each take longer to import than these commands take to run on a few thousand samples.
+def test_apsides_inspect_and_fit_load_only_what_they_use(command, absent, shown):
+    # Start-up: scipy.stats (behind scipy.signal), pint (with dask behind it), lmfit, matplotlib and
+    # numba each take longer to import than these commands take to run on a few thousand samples.
+    # The orbit fit (fit's default with timestamps) needs numpy, pandas, scipy.optimize,
+    # scipy.integrate (DOP853's tables), scipy.fft (the residuals' correlation) and numba; not the
+    # smoothed path (scipy's splines), the statistics module, the sampler or the figures.
     path = str(DEMO / "class_pendulum" / "run_02.csv")
     code = (f"import sys\nfrom forcefit.cli import main\nmain([{command!r}, {path!r}])\n"
             f"print([m for m in {absent!r} if m in sys.modules], file=sys.stderr)")
