@@ -3,7 +3,8 @@
 (a) ``forcefit apsides``, ``inspect`` and ``fit`` on a 2 600-point pendulum, each in a fresh
     interpreter: the wall time, the same work done in this (warm) process, and what is left
     (start-up) beside ``python -c "import numpy, pandas"`` -- target: start-up within 1.5 times
-    that import;
+    that import -- and beside the import of exactly the third-party libraries the command's
+    work calls (`NEEDS`), which no start-up can go below;
 (b) ``forcefit sample`` on a 2 631-point pendulum: the converged posterior's wall time in a
     fresh interpreter -- target < 30 s on two cores; beside it, the same chain's steps with the
     orbits stepped onto every sample on one core (the earlier sampler), timed on a stretch of
@@ -43,6 +44,21 @@ START_UP_TARGET = 1.5
 TARGET_SECONDS = 30.0
 CLI = [sys.executable, "-m", "forcefit.cli"]
 
+NEEDS = {
+    "apsides": ("numpy", "pandas", "scipy.optimize", "scipy.interpolate", "scipy.sparse", "scipy.linalg",
+                "scipy.fft"),
+    "inspect": ("numpy", "pandas"),
+    "fit": ("numpy", "pandas", "scipy.optimize", "scipy.integrate", "scipy.fft", "numba"),
+}
+"""The third-party modules each command's work calls into, read off a profile of the command on the
+pendulum: pandas reads the file; apsides smooths the path (scipy's splines, sparse and dense
+linear algebra, and a scalar minimiser for the smoothing level); fit's orbit method integrates
+with the compiled kernel (numba, DOP853's tables from scipy.integrate), fits by scipy's least
+squares and finds the residuals' correlation time by FFT."""
+
+CHILD_ENV = {name: value for name, value in os.environ.items() if name != "PYTHONDONTWRITEBYTECODE"}
+"""The children's environment: Python's bytecode cache on, as an installed package has it."""
+
 
 def _pendulum(points: int, rng: int) -> Track:
     """An 11 m pendulum filmed from above at 30 frames per second (m, s; noise 1 mm)."""
@@ -57,10 +73,11 @@ def _seconds(action: Callable[[], object]) -> float:
     return time.perf_counter() - start
 
 
-def _run(command: list[str]) -> float:
+def _run(command: list[str], env: dict[str, str] | None = None) -> float:
     """Wall seconds of a command; exit 0 or 1 (a fit that failed its checks) count, 2 is an error."""
     start = time.perf_counter()
-    done = subprocess.run(command, check=False, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    done = subprocess.run(command, check=False, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+                          env=CHILD_ENV if env is None else env)
     if done.returncode not in (0, 1):
         raise SystemExit(f"{' '.join(command)} failed: {done.stderr.strip()}")
     return time.perf_counter() - start
@@ -77,24 +94,42 @@ def commands(folder: Path, repeats: int) -> None:
         "inspect": lambda: inspect_track(load_track(path)),
         "fit": lambda: fit(load_track(path)),
     }
-    for action in work.values():                                 # warm: compiled, imported
+    for name, action in work.items():                    # warm: compiled, imported, bytecode cached
         action()
-    print(f"(a) commands on a {track.n_points}-point pendulum (median of {repeats} runs, seconds)")
-    print(f"    {'command':10} {'wall':>7} {'work':>7} {'start-up':>9} {'x import':>9}")
-    worst = 0.0
+        _run([*CLI, name, str(path), "--json"])
+    numpy_pandas = [sys.executable, "-c", "import numpy, pandas"]
+    print(f"(a) commands on a {track.n_points}-point pendulum (median of {repeats} runs, seconds; load "
+          f"{os.getloadavg()[0]:.1f})")
+    print(f"    {'command':10} {'wall':>7} {'work':>7} {'start-up':>9} {'libs':>7} {'x np+pd':>8} "
+          f"{'x libs':>7} {'beyond':>7}")
+    worst, beyond, reference = 0.0, {}, math.nan
     for name, action in work.items():
-        walls, references = [], []
-        for _ in range(repeats):                                 # interleaved with the reference
-            references.append(_run([sys.executable, "-c", "import numpy, pandas"]))
+        walls, references, needed = [], [], []
+        libraries = [sys.executable, "-c", "import " + ", ".join(NEEDS[name])]
+        for _ in range(repeats):                                 # interleaved with the references
+            references.append(_run(numpy_pandas))
+            needed.append(_run(libraries))
             walls.append(_run([*CLI, name, str(path), "--json"]))
         reference = statistics.median(references)
+        floor = statistics.median(needed)
         wall = statistics.median(walls)
         busy = statistics.median(_seconds(action) for _ in range(repeats))
-        ratio = max(wall - busy, 0.0) / reference
-        worst = max(worst, ratio)
-        print(f"    {name:10} {wall:7.2f} {busy:7.2f} {wall - busy:9.2f} {ratio:9.2f}")
+        start_up = max(wall - busy, 0.0)
+        worst = max(worst, start_up / reference)
+        beyond[name] = start_up - floor
+        print(f"    {name:10} {wall:7.2f} {busy:7.2f} {start_up:9.2f} {floor:7.2f} "
+              f"{start_up / reference:8.2f} "
+              f"{start_up / floor:7.2f} {beyond[name]:+7.2f}")
     print(f"    import numpy, pandas: {reference:.2f} s; slowest start-up {worst:.2f} x that import "
           f"(target <= {START_UP_TARGET:g} x): {'met' if worst <= START_UP_TARGET else 'NOT met'}")
+    print("    start-up beyond the libraries the command needs (libs: " +
+          "; ".join(f"{name} {' '.join(NEEDS[name])}" for name in NEEDS) + "): " +
+          ", ".join(f"{name} {value:+.2f} s" for name, value in beyond.items()))
+    if "PYTHONDONTWRITEBYTECODE" in os.environ:
+        uncached = statistics.median(_run([*CLI, "fit", str(path), "--json"], env=dict(os.environ))
+                                     for _ in range(repeats))
+        print(f"    (children ran with Python's bytecode cache; PYTHONDONTWRITEBYTECODE is set here, and "
+              f"without the cache fit's wall is {uncached:.2f} s)")
 
 
 def sampling(folder: Path) -> None:
