@@ -17,7 +17,7 @@ from typing import Literal
 import numpy as np
 from scipy.optimize import least_squares
 
-from .._types import FloatArray
+from .._types import FloatArray, frozen_array
 from ..errors import FitError
 
 Loss = Literal["linear", "soft_l1", "huber"]
@@ -44,11 +44,11 @@ class ParameterVector:
     names : tuple of str
         The parameters in the model's order.
     values : ndarray, shape (n_parameters,)
-        Their values, each in its own unit.
+        Their values, each in its own unit (a read-only copy).
     held : ndarray of bool, shape (n_parameters,)
         True where a parameter is held at its value.
     lower, upper : ndarray, shape (n_parameters,)
-        Bounds of each parameter (-inf and inf when free to go anywhere).
+        Bounds of each parameter (-inf and inf, the default, when free to go anywhere).
     """
 
     names: tuple[str, ...]
@@ -59,11 +59,14 @@ class ParameterVector:
 
     def __post_init__(self) -> None:
         count = len(self.names)
-        object.__setattr__(self, "values", np.array(self.values, dtype=float))
-        object.__setattr__(self, "held", np.array(self.held, dtype=bool))
+        held = np.array(self.held, dtype=bool)
+        held.flags.writeable = False
+        object.__setattr__(self, "values", frozen_array(self.values))
+        object.__setattr__(self, "held", held)
         for side, default in (("lower", -math.inf), ("upper", math.inf)):
             bound = np.asarray(getattr(self, side), dtype=float)
-            object.__setattr__(self, side, np.full(count, default) if bound.size == 0 else bound.copy())
+            bound = np.full(count, default) if bound.size == 0 else bound
+            object.__setattr__(self, side, frozen_array(bound))
         if not all(array.shape == (count,) for array in (self.values, self.held, self.lower, self.upper)):
             raise ValueError("a parameter vector needs one value, hold flag and bound pair per name.")
 

@@ -3,8 +3,8 @@
 The reference estimator. The state at an epoch in the middle of the data, the force
 law (n and the force at a reference radius), the centre, and on request a drag
 coefficient and the rotation rate of the observer's frame are fitted by least
-squares (scipy's trust-region least squares, with a robust loss on request) to all samples of one track, or of
-several tracks that share n and k. Each evaluation integrates the orbit with the
+squares (scipy's trust region, with a robust loss on request) to all samples of one
+track, or of several tracks that share n and k. Each evaluation integrates the orbit with the
 compiled batch propagator; the Jacobian is one batch of central differences. The start
 comes from what the samples resolve: the path's shape where it is well posed
 (`forcefit.estimators._apsidal_start`), else a search of trial orbits
