@@ -190,10 +190,6 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/estimators/shape.py", "if misfit <= AREAL_TOLERANCE * min(misfits) + 1e-300]", 0):
         "< and <= differ only when a candidate's misfit is exactly AREAL_TOLERANCE times the best "
         "plus 1e-300 (the best itself passes both: AREAL_TOLERANCE > 1, or 0 < 1e-300)",
-    ("forcefit/estimators/orbit.py", "minimizer = lmfit.Minimizer(residual, params, scale_covar=False)", 0):
-        "lmfit's own covariance is not what the fit states: _fit_covariance computes it from the "
-        "Jacobian and the stated or fitted noise (tests/test_orbit.py: errors follow the stated "
-        "sigma) and replaces it",
     ("forcefit/estimators/shape.py", "if solution.chi2 > AMBIGUITY_FACTOR * solutions[0].chi2:", 0):
         "differs only when another centre's chi-square is exactly AMBIGUITY_FACTOR times the best "
         "one: two continuous fit results that never land on that ratio",
@@ -201,10 +197,6 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
      "return interior(curve) & (turning_sense(curve) * kappa > 2.0 * kappa_stderr)", 2):
         "> and >= differ only for a sample whose signed curvature is exactly twice its standard "
         "error: two continuous estimates that never land on that ratio",
-    ("forcefit/estimators/orbit.py",
-     "covariance = None if result.covar is None else np.array(result.covar, dtype=float)", 0):
-        "lmfit's covariance read into _Solution.of is always replaced: its only caller widens the "
-        "solution with _fit_covariance's matrix (_Solution.widened) before anything reads it",
     ("forcefit/inference/posterior.py",
      "model: OrbitModel = replace(fit.model, rtol=SAMPLING_RTOL, dense=True, parallel=True)", 1):
         "parallel=False runs the walkers' orbits one after another instead of on numba's threads: "

@@ -325,7 +325,7 @@ def fit_orbit(
             f"is singular after {solution.evaluations} evaluations). The path is probably "
             "not an orbit in a central power law; check the centre, the units and the data.",
             last_params=solution.values)
-    return _law_fit(model, solution, tracks, sigma, sigma_known, loss, noise_level)
+    return _law_fit(model, solution, solution.covariance, tracks, sigma, sigma_known, loss, noise_level)
 
 
 def _misses(model: OrbitModel, solution: _Solution, sigma: FloatArray, loss: Loss,
@@ -520,9 +520,10 @@ def _fit_checks(
 
 
 def _law_fit(
-    model: OrbitModel, solution: _Solution, tracks: tuple[Track, ...], sigma: FloatArray,
-    sigma_known: bool, loss: Loss, noise: float,
+    model: OrbitModel, solution: _Solution, covariance: FloatArray, tracks: tuple[Track, ...],
+    sigma: FloatArray, sigma_known: bool, loss: Loss, noise: float,
 ) -> OrbitFit:
+    """The typed result of a fit whose ``covariance`` (of the varying parameters) is finite."""
     vector = np.array([solution.values[name] for name in model.names])
     n, n_se = solution.value("exponent")
     log_force, log_force_se = solution.value("log_force")
@@ -562,8 +563,6 @@ def _law_fit(
     rate, rate_se = solution.value("rotation_rate") if model.fit_rotation else (math.nan, math.nan)
     alpha, alpha_se = (solution.value("yukawa_strength") if "yukawa_strength" in model.names
                        else (math.nan, math.nan))
-    covariance = solution.covariance if solution.covariance is not None else np.full(
-        (len(solution.varying),) * 2, math.nan)
     return OrbitFit(
         exponent=n, exponent_stderr=n_se, strength=strength, strength_stderr=strength * log_k_se,
         strength_per_h2=strength / h**2, strength_per_h2_stderr=strength * log_k_se / h**2,
