@@ -450,3 +450,13 @@ def test_a_class_without_settings_is_graded_by_the_starting_files_rule():
                               options={})
     assert rule.min_turns == written["min_turns"] == 1.0
     assert (rule.strength, rule.strength_tolerance, rule.strength_unit) == (None, None, None)
+
+
+@pytest.mark.parametrize(("expect", "units", "unit"), [
+    (1.0, (None, "s"), "s^-2"), (2.0, ("m", "s"), "m^-1 s^-2"), (-2.0, ("m", "s"), "m^3 s^-2"),
+    (0.5, ("m", "s"), "m^0.5 s^-2")])
+def test_a_rule_without_a_strength_unit_is_in_metres_and_seconds(expect, units, unit):
+    # F = -k r^n per unit mass gives k the dimension L^(1-n) T^-2 (dimensional analysis; common
+    # practice): in metres and seconds unless the rule says otherwise, with no length at n = 1.
+    rule = GradingRule(expect=expect, tolerance=0.05)
+    assert rule.units == units and rule.unit == unit
