@@ -220,6 +220,21 @@ def test_a_resumed_runs_bar_counts_only_its_own_steps(tmp_path, capsys):
     assert totals[-1] == expected_steps(tau, sampler.iteration, 20_000) - 100
 
 
+def test_a_generator_or_a_seed_reproduces_the_chain():
+    # numpy's Generator is the recommended way to pass randomness (NEP 19, common practice):
+    # the same generator state, or the same seed, gives the same chain; another gives another.
+    def log_probability(theta):
+        return -0.5 * np.sum(theta**2, axis=1)
+
+    def chain(rng):
+        sampler, _, _ = run_ensemble(log_probability, np.zeros(2), np.eye(2), rng=rng, max_steps=30)
+        return sampler.get_chain()
+
+    np.testing.assert_array_equal(chain(np.random.default_rng(5)), chain(np.random.default_rng(5)))
+    np.testing.assert_array_equal(chain(7), chain(7))
+    assert not np.array_equal(chain(np.random.default_rng(5)), chain(np.random.default_rng(6)))
+
+
 def test_resume_refuses_another_runs_chain(tmp_path):
     # issue 16: sample --resume chain.h5 silently continued another run's chain
     def log_probability(theta):

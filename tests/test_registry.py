@@ -99,6 +99,14 @@ def test_the_derived_numbers_agree_with_each_other(fitted):
     assert result.strength_per_h2 * result.angular_momentum**2 == pytest.approx(result.strength, rel=1e-9)
     k, error = result.strength_at_exponent(result.exponent)
     assert k == pytest.approx(result.strength, rel=1e-9) and error > 0
+    # ln k = ln F(r_ref) - n ln r_ref, so to first order var ln k = var ln F + (ln r_ref)^2 var n
+    # - 2 ln r_ref cov(n, ln F) (propagation of errors, common practice), where the fit's second
+    # parameter is ln F at its reference radius
+    if result.parameter_names[1].startswith("log_force"):
+        log_r = math.log(result.reference_radius)
+        var_ln_f = (result.force_at_reference_stderr / result.force_at_reference) ** 2
+        expected = var_ln_f + log_r**2 * result.exponent_stderr**2 - 2 * log_r * result.covariance[0, 1]
+        assert (result.strength_stderr / result.strength) ** 2 == pytest.approx(expected, rel=1e-6)
 
 
 def test_the_checks_say_something(fitted):
