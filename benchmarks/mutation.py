@@ -210,6 +210,10 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "n = -1.5) the largest position error against rtol = 1e-14 goes from 7.9e-12 to 8.4e-12 of the "
         "orbit's size (the same at 1e-12 and 1e-11: a floor of the step control), against the 1e-9 "
         "the propagator states",
+    ("forcefit/dynamics/propagate.py",
+     "t_eval=times, rtol=rtol, atol=rtol * np.maximum(scale, 1e-300), events=collision,", 1):
+        "the reference integrator's absolute-tolerance floor for a start at rest or at the centre, "
+        "1e-300 -> 2e-300 of rtol: both far below any representable step error",
     ("forcefit/dynamics/propagate.py", "table_t, table_xy = np.zeros(0), np.zeros((0, 2))", 0):
         "the perturber's time table when there is no perturber, empty -> one zero: the kernel reads "
         "the table only when the perturber's GM is non-zero, which is set together with a real table",
@@ -234,6 +238,13 @@ EQUIVALENT_IN: dict[tuple[str, str, str, int], str] = {
         "_leg's default centre: its only callers (both legs of propagate_reference) always pass it",
     ("forcefit/dynamics/propagate.py", "_leg", "centre: tuple[float, float] = (0.0, 0.0),", 1):
         "_leg's default centre: its only callers (both legs of propagate_reference) always pass it",
+    ("forcefit/dynamics/_kernel.py", "_leg_dense",
+     "h_abs = abs(h) * max(MIN_FACTOR, SAFETY * error ** (-1.0 / 8.0))", 3):
+        "the dense leg's rejected step retried at 0.9 error^(+1/8) of itself (at least MIN_FACTOR) "
+        "instead of 0.9 error^(-1/8): it shrinks by 10% or less a try, so more tries, the same kept "
+        "steps' error test; the largest position error against Kepler's equation over 5 turns at "
+        "e = 0.5, 0.9, 0.95: 2.2e-10, 1.0e-9, 2.0e-9 of a before, 2.4e-10, 0.9e-9, 1.7e-9 after (the "
+        "stepping leg's same mutant fails at e = 0.9 and is killed)",
     ("forcefit/inference/posterior.py", "_Problem", "@dataclass(frozen=True)", 0):
         "the log-probability's private problem made mutable: it is built once per run and nothing "
         "assigns to it, so every number is the same (the public Posterior and IntervalRow stay "

@@ -75,6 +75,23 @@ def test_a_robust_fit_without_a_given_sigma_finds_the_law_and_the_noise(loss, gl
     assert level == pytest.approx(0.002, rel=0.1)
 
 
+def test_a_robust_fit_keeps_a_given_sigma_and_its_chi_square_says_when_it_is_wrong():
+    # With sigma given, the robust fit keeps it, and the chi-square check says when it does not
+    # match the scatter; only without a given sigma does the fit measure the noise itself. Its
+    # errors are the M-estimator's sandwich, (J^T J)^-1 E[psi^2] / E[psi']^2 read from the
+    # residuals (Huber 1981, Robust Statistics, sec. 7.6), so they follow the actual scatter
+    # whatever sigma was stated. Sigma stated at twice the 2 mm noise: reduced chi-square about
+    # 1/4, the check failed, the errors those at the true sigma.
+    base = simulate_orbit(exponent=-1.5, noise=0.002, outliers=0.01, outlier_size=5, rng=8)
+    right = fit_orbit(Track(t=base.t, x=base.x, y=base.y, sigma=0.002), loss="soft_l1")
+    doubled = fit_orbit(Track(t=base.t, x=base.x, y=base.y, sigma=0.004), loss="soft_l1")
+    assert right.sigma_known and doubled.sigma_known
+    assert right.reduced_chi2 == pytest.approx(1.0, rel=0.2) and right.diagnostics["chi-square"].passed
+    assert doubled.reduced_chi2 == pytest.approx(0.25, rel=0.2)
+    assert doubled.diagnostics["chi-square"].passed is False
+    assert doubled.exponent_stderr == pytest.approx(right.exponent_stderr, rel=0.1)
+
+
 def test_outliers_are_named_by_the_files_row_and_time(tmp_path):
     # issue 15: outliers were reported as 0-based "sample N", not as the file's row and time
     track = simulate_orbit(exponent=1.0, strength=4.0, duration=8.0, rate=40.0, noise=0.001, rng=4)
