@@ -20,6 +20,19 @@ def test_centre_from_accelerations_within_three_standard_errors(exponent):
         assert abs(estimate.centre[axis] - truth) < 3.5 * estimate.stderr[axis]
 
 
+def test_a_start_given_to_the_centre_search_leads_to_the_same_centre():
+    # The lines of the accelerations meet in one point: a start near it or far (the estimators
+    # pass the previous smoothing level's centre) gives the same least-squares centre as the
+    # search's own first intersection, to a twentieth of its error (the reweighting rounds stop
+    # a few millionths short of the fixed point).
+    track = simulate_orbit(exponent=-1.5, centre=(0.4, -0.3), noise=0.002, rate=None, rng=11)
+    own = find_centre(track)
+    for start in ((0.5, -0.2), (0.3, -0.45), (9.0, 9.0)):
+        started = find_centre(track, starts=[start])
+        assert started.method == "acceleration lines"
+        assert np.allclose(started.centre, own.centre, atol=0.05 * min(own.stderr))
+
+
 def test_centre_of_a_rosette_without_timestamps_is_unique():
     track = simulate_orbit(exponent=-1.5, centre=(0.4, -0.3), noise=0.002, rate=None, rng=12).shape_only()
     estimate = find_centre(track)
