@@ -61,7 +61,8 @@ CONTRACT = ("test_the_result_is_the_registered_type", "test_every_number_is_a_fi
             "test_the_derived_numbers_agree_with_each_other", "test_the_checks_say_something",
             "test_the_relation_points_follow_the_law", "test_rows_text_and_dict_show_the_same_fit",
             "test_moving_the_track_and_its_given_centre_together_changes_nothing",
-            "test_the_same_track_in_other_units_gives_the_same_law")
+            "test_the_same_track_in_other_units_gives_the_same_law",
+            "test_without_timestamps_strength_is_nan_with_the_reason")
 
 
 def _contract(method: str) -> tuple[str, ...]:
