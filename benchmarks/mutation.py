@@ -215,6 +215,9 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
      "t_eval=times, rtol=rtol, atol=rtol * np.maximum(scale, 1e-300), events=collision,", 1):
         "the reference integrator's absolute-tolerance floor for a start at rest or at the centre, "
         "1e-300 -> 2e-300 of rtol: both far below any representable step error",
+    ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
+        "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
+        "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",
     ("forcefit/dynamics/propagate.py", "table_t, table_xy = np.zeros(0), np.zeros((0, 2))", 0):
         "the perturber's time table when there is no perturber, empty -> one zero: the kernel reads "
         "the table only when the perturber's GM is non-zero, which is set together with a real table",

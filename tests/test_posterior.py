@@ -349,3 +349,32 @@ def test_the_sampled_posterior_matches_importance_sampling():
     # of effective samples each, about 1-2%)
     assert float(posterior.samples["exponent"].std()) == pytest.approx(reference, rel=0.08)
     assert float(np.median(posterior.samples["exponent"])) == pytest.approx(mean, abs=0.1 * reference)
+
+
+@pytest.mark.parametrize(("tolerance", "loosened"), [(None, True), (1e-12, False)])
+def test_the_sampler_loosens_its_tolerance_only_where_ln_p_does_not_move(rosette_fit, monkeypatch,
+                                                                          tolerance, loosened):
+    # The sampler integrates at a looser tolerance only when ln p at the best fit and two standard
+    # errors out along each principal axis stays within LOG_P_TOLERANCE of the orbits stepped onto
+    # every sample at the fitting tolerance. On this benign rosette the loosest (1e-8) passes and
+    # moves ln p by less than that (checked here at other points, the covariance's eigenvectors, against
+    # the fit's own model);
+    # with a tolerance no integrator meets, the sampling tolerance stays.
+    import dataclasses
+
+    from forcefit.inference import posterior
+
+    if tolerance is not None:
+        monkeypatch.setattr(posterior, "LOG_P_TOLERANCE", tolerance)
+    problem, best, covariance = posterior._problem(rosette_fit, "known", {}, 1.0)
+    chosen = posterior._loosened(problem, best, covariance)
+    if not loosened:
+        assert chosen is problem and chosen.model.rtol == posterior.SAMPLING_RTOL
+        return
+    assert chosen.model.rtol == posterior.LOOSER_RTOLS[0]
+    values, vectors = np.linalg.eigh(covariance)
+    axes = 2.0 * (vectors * np.sqrt(values)).T
+    points = np.vstack((best, best + axes, best - axes))
+    strict = dataclasses.replace(problem, model=rosette_fit.model)(points)        # the fit's own
+    assert rosette_fit.model.rtol < posterior.LOOSER_RTOLS[-1] and not rosette_fit.model.dense
+    assert np.all(np.abs(chosen(points) - strict) <= posterior.LOG_P_TOLERANCE)
