@@ -357,9 +357,9 @@ def test_the_sampler_loosens_its_tolerance_only_where_ln_p_does_not_move(rosette
     # The sampler integrates at a looser tolerance only when ln p at the best fit and two standard
     # errors out along each principal axis stays within LOG_P_TOLERANCE of the orbits stepped onto
     # every sample at the fitting tolerance. On this benign rosette the loosest (1e-8) passes and
-    # moves ln p by less than that (checked here at other points, the covariance's eigenvectors, against
-    # the fit's own model);
-    # with a tolerance no integrator meets, the sampling tolerance stays.
+    # moves ln p by less than that (checked here at other points, along the covariance's
+    # eigenvectors, against the fit's own model); with a tolerance no integrator meets, the
+    # sampling tolerance stays.
     import dataclasses
 
     from forcefit.inference import posterior
