@@ -1,5 +1,6 @@
 """The duality check: the refit of the mapped track against the predicted dual law."""
 
+import dataclasses
 import math
 
 import pytest
@@ -14,6 +15,8 @@ def test_duality_check_passes_for_the_true_law_and_fails_for_a_wrong_one():
     fit = fit_orbit(track)
     check = check_duality(track, fit, fit_orbit)
     assert check.passed, check.to_text()
+    with pytest.raises(dataclasses.FrozenInstanceError):        # a result is not changed after the fact
+        check.predicted_exponent = 0.0                          # type: ignore[misc]
     wrong = type(fit)(**{**fit.__dict__, "exponent": 0.0})
     assert not check_duality(track, wrong, fit_orbit).passed
 

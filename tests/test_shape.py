@@ -200,6 +200,7 @@ def test_a_path_with_every_sample_recorded_twice_states_the_same_errors():
     once = fit_shape(track, centre=(0.3, -0.2))
     twice = fit_shape(Track(x=np.repeat(track.x, 2), y=np.repeat(track.y, 2)), centre=(0.3, -0.2))
     assert once.correlation_time == 1.0 and twice.correlation_time == pytest.approx(2.0, rel=0.1)
+    assert once.centre == (0.3, -0.2) and once.centre_stderr == (0.0, 0.0)          # given: held
     assert twice.exponent == pytest.approx(once.exponent, abs=1e-6 * once.exponent_stderr)
     assert twice.exponent_stderr == pytest.approx(once.exponent_stderr, rel=0.05)
     # The Binet solution starts at a sample's polar angle in the middle of the swept angle (within
