@@ -8,7 +8,7 @@ import pytest
 
 from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import NotIdentifiable
-from forcefit.estimators import fit_acceleration, fit_curvature
+from forcefit.estimators import fit_acceleration, fit_curvature, fit_shape
 from forcefit.estimators._smoothed import CONFIRMING_LEVELS, LEVEL_STEP, MAX_STEPS, settle
 from forcefit.track import Track
 
@@ -124,3 +124,23 @@ def test_a_level_that_lighter_levels_cannot_check_fails_the_smoothing_check(elli
     verdict = checked.diagnostic("s")
     assert verdict.passed is False and "could not be fitted" in verdict.message
     assert "orbit fit" in verdict.message
+
+
+def test_the_shape_fit_fails_when_its_centre_error_turns_the_closest_direction():
+    # At 2 cm noise on a passage 8-11 cm from the centre the shape fit passed every check with the
+    # centre 4.5 errors off (n = -2.48 +- 0.16): one error of the centre turned the direction to
+    # the closest sample by 0.12 rad. It must now fail that check and say what to do.
+    fit = fit_shape(_passage(1.2, 0.02, 4))
+    check = fit.diagnostics["closest passage"]
+    assert check.passed is False and "orbit fit" in check.message
+    assert not fit.passed
+
+
+def test_the_shape_fit_answers_a_precisely_measured_close_passage():
+    # The other side: at 2 mm noise (0.018 rad) the check passes and so does the answer, within
+    # 3 stated errors of n = -2 and of the centre (common practice).
+    fit = fit_shape(_passage(1.6, 0.002, 1))
+    assert fit.diagnostics["closest passage"].passed is True
+    assert fit.passed
+    assert abs(fit.exponent + 2.0) <= 3.0 * fit.exponent_stderr
+    assert all(abs(c) <= 3.0 * e for c, e in zip(fit.centre, fit.centre_stderr))
