@@ -50,7 +50,7 @@ from forcefit.analysis.apsides import measure_apsides
 from forcefit.analysis.pendulum import pendulum_correction
 from forcefit.astrometry import Astrometry
 from forcefit.dynamics.laws import circular_speed
-from forcefit.dynamics.simulate import simulate_pendulum, simulate_projected
+from forcefit.dynamics.simulate import simulate_orbit, simulate_pendulum, simulate_projected
 from forcefit.errors import ForcefitError
 from forcefit.estimators import fit_projected
 from forcefit.track import Track
@@ -227,6 +227,23 @@ def projected(n: float, *, inclination: float = 60.0, count: int = 50, noise: fl
     return make
 
 
+def flyby(speed: float, *, noise: float, rate: float = 100.0, centre: tuple[float, float] = (0.3, -0.2)):
+    """An open passage past an attractor (n = -2, k = 1, m, s): from 3 m out, 0.4 m off the line
+    through the centre, at ``speed`` (hyperbolic: the escape speed there is 0.81 m/s), for the 3.6
+    m of its run at that speed, turned to a random direction; the closest passage is 0.08-0.18 m
+    from the centre and is crossed in a few samples."""
+
+    def make(rng: np.random.Generator) -> tuple[Track, Truth]:
+        turn = rng.uniform(0, 2 * math.pi)
+        rotation = np.array([[math.cos(turn), -math.sin(turn)], [math.sin(turn), math.cos(turn)]])
+        track = simulate_orbit(exponent=-2.0, start=tuple(rotation @ (-3.0, 0.4)),
+                               velocity=tuple(rotation @ (speed, 0.0)), duration=3.6 / speed,
+                               rate=rate, noise=noise, centre=centre, rng=rng)
+        return Track(t=track.t, x=track.x, y=track.y, length_unit="m", time_unit="s"), Truth(-2.0, centre)
+
+    return make
+
+
 TIMED = ("orbit", "shape", "curvature", "acceleration")
 TIME_FREE = ("shape", "curvature")
 
@@ -333,6 +350,12 @@ def scenarios() -> list[Scenario]:
                                               (-2.0, 80.0, True, ("projected",))):
         add(Scenario("projected", f"n={n:g} i={inclination:g} uneven" + ("" if given else ", no sigma"),
                      projected(n, inclination=inclination, errors_given=given), estimators))
+    for speed, noise in ((1.6, 5e-3), (1.2, 2e-3)):   # open passages: one fast, close turn
+        add(Scenario("flyby", f"speed {speed:g}, noise {noise:g}", flyby(speed, noise=noise), TIMED))
+    # Launched at apocentre at sqrt(1 - e) times the circular speed: e = 0.9, whole orbits whose
+    # pericentres (r = 0.053) are crossed in a few samples.
+    add(Scenario("eccentric", "e=0.9 n=-2, whole orbits, coarse",
+                 orbit(-2.0, factor=math.sqrt(0.1), turns=3, per_turn=200, noise=1e-3), TIMED))
     for ratio in (0.1, 0.2):     # wide swings: the finite-amplitude correction must hold in full
         add(Scenario("pendulum", f"a/L={ratio:g}, length given",
                      pendulum(amplitude=ratio * 1.2, length=1.2, noise=2e-4, length_given=True),
@@ -402,10 +425,21 @@ def _outcome(
                 exponent=value,
                 stderr=error,
                 z=z,
+                centre_z=_centre_z(fit, truth, scenario),
                 failed=[name for name, check in fit.diagnostics.items() if check.passed is False],
             )
     row["seconds"] = time.perf_counter() - started
     return row
+
+
+def _centre_z(fit: Any, truth: Truth, scenario: Scenario) -> float | None:
+    """The larger |fitted - true| / stated error of the centre's coordinates, when the centre
+    was fitted (None otherwise)."""
+    errors = getattr(fit, "centre_stderr", None)
+    centre = getattr(fit, "centre", None)
+    if scenario.centre_given or errors is None or centre is None or not all(e > 0 for e in errors):
+        return None
+    return max(abs(c - t) / e for c, t, e in zip(centre, truth.centre, errors))
 
 
 @dataclass(frozen=True)
@@ -420,6 +454,8 @@ class Cell:
     crashed: int
     z: np.ndarray
     seconds: float
+    centre_wrong: int = 0
+    """Answers whose fitted centre lies more than WRONG_Z stated errors from the truth."""
 
     @property
     def answered(self) -> int:
@@ -451,6 +487,7 @@ def cells_of(rows: Sequence[dict[str, Any]]) -> list[Cell]:
                 sum(r["outcome"] == "crash" for r in group),
                 z,
                 float(np.mean([r["seconds"] for r in group])),
+                sum(r["outcome"] == "answered" and (r.get("centre_z") or 0.0) > WRONG_Z for r in group),
             )
         )
     return out
@@ -469,10 +506,13 @@ def table(cells: Sequence[Cell]) -> str:
             f"{cell.answered / cell.count:>7.0%}{cell.inside(1.0):>6.0%}{cell.inside(1.96):>6.0%}"
             f"{sd:>6.2f}{cell.wrong:>6d}{cell.seconds:>6.1f}"
             + (f"  CRASHED {cell.crashed}" if cell.crashed else "")
+            + (f"  CENTRE WRONG {cell.centre_wrong}" if cell.centre_wrong else "")
         )
     total = sum(cell.wrong for cell in cells)
     lines.append(
         f"\nconfident wrong answers in all: {total} of {sum(cell.count for cell in cells)} replicates"
+        f" (and {sum(cell.centre_wrong for cell in cells)} whose centre is more than {WRONG_Z:g} "
+        "stated errors off)"
     )
     return "\n".join(lines)
 

@@ -6,12 +6,17 @@ needs less smoothing: at that level the smoothing's bias (it rounds off the peri
 passages, it flattens the harmonics of an anharmonic orbit) shifts the exponent by many
 of its standard errors, while the exponent's noise hardly grows when the smoothing is
 lightened (it averages over the track either way). So the level is lightened LEVEL_STEP
-times at a time until the exponent stops moving: until its change from the previous level
-is within SETTLED_Z standard errors of that change (whose variance follows exactly from how
-both estimates respond to the samples). The exponent is read at the lighter of the two
-levels, where what bias is left is a quarter of a change already too small to see. This
-is Lepski's rule for choosing a smoothing: the largest one whose estimate agrees with
-those of all lighter ones (Lepski, Mammen & Spokoiny 1997, Ann. Statist. 25, 929).
+times at a time, MAX_STEPS times (or until a level cannot be fitted), and the estimate is
+read at the heaviest level whose exponent -- and fitted centre, when the centre is found
+from the data -- agrees with those at every lighter level: each change within SETTLED_Z
+standard errors of that change (whose variance follows exactly from how both estimates
+respond to the samples). This is Lepski's rule for choosing a smoothing: the largest one
+whose estimate agrees with those of all lighter ones (Lepski, Mammen & Spokoiny 1997, Ann.
+Statist. 25, 929). Comparing each level with the next lighter one alone is not enough: where
+the information lies in one fast, close passage (an open flyby, a very eccentric orbit) the
+smoothing's bias there shrinks slowly from level to level, each step's change stays within
+its errors while their sum does not, and the exponent and centre were read 3-6 standard
+errors off with every check passing.
 
 **The noise.** Without sigma, the noise is the one read from the 4th differences of the
 samples (`forcefit.geometry.noise`), the very number `inspect` shows; only when the samples
@@ -49,8 +54,13 @@ MAX_STEPS = 6
 """Most lightening steps (a level 4**6 = 4096 times below the GCV choice)."""
 
 SETTLED_Z = 2.0
-"""The exponent has settled when it changes by less than this many standard errors of the
+"""The estimate has settled when it changes by less than this many standard errors of the
 change."""
+
+CONFIRMING_LEVELS = 2
+"""Lighter levels (each LEVEL_STEP times lighter) a level's estimate must agree with before the
+smoothing's bias counts as under control: one agreeing step can hide a bias that shrinks
+slowly (a fast, close passage smoothed over at both levels)."""
 
 RESOLVED_EXCURSION = 12.0
 """The smoothed distance from the centre must vary by more than this many of its pointwise
@@ -85,23 +95,40 @@ class Settled(Generic[T]):
     steps: tuple[LevelStep, ...]
     settled: bool
     noise: NoiseEstimate
+    agreement: float = math.nan
+    """The largest disagreement (standard errors of the change) of the chosen level's estimate
+    with those of the lighter levels; nan when none was lighter."""
+    lighter: int = 0
+    """How many lighter levels the chosen one was compared with."""
+    exhausted: bool = False
+    """The lightening stopped because a lighter level could not be fitted."""
 
     def diagnostic(self, unit: str) -> Diagnostic:
-        """How the smoothing level was chosen, failed when the exponent never settled."""
+        """How the smoothing level was chosen, failed when the estimate never settled."""
         chosen = self.steps[-1]
-        if len(self.steps) == 1:
+        if len(self.steps) == 1 and not math.isfinite(self.agreement) and self.settled:
             text = (f"{self.curve.method}: each point averages about {self.curve.span:.3g} {unit} of "
                     "the path (the level was not varied)")
             return Diagnostic(None, text + ".")
         factor = self.steps[0].level / chosen.level
-        text = (f"{self.first_curve.method}, then lightened {factor:.3g} times until the exponent "
-                f"settled (last change {chosen.change_z:+.1f} standard errors); each point averages "
-                f"about {self.curve.span:.3g} {unit} of the path")
+        where = (f"{self.first_curve.method}, then lightened {factor:.3g} times" if factor > 1
+                 else f"{self.first_curve.method}")
+        if not self.settled and self.exhausted:
+            return Diagnostic(False, f"{where}; lighter smoothings could not be fitted (the force is "
+                                     "lost in their noise), so the smoothing's bias could not be "
+                                     f"checked against {CONFIRMING_LEVELS} lighter levels: where the "
+                                     "path turns fastest it is not resolved. Sample faster or more "
+                                     "precisely, or use the orbit fit (it needs no smoothing).")
         if not self.settled:
-            return Diagnostic(False, text.replace("until the exponent settled", "and the exponent "
-                                                  "never settled") + ": the smoothing's bias is not "
-                              "under control. Sample more densely or more precisely.")
-        return Diagnostic(True, text + ".")
+            return Diagnostic(False, f"{where}, and the estimate still changed from one level to the "
+                                     f"next; each point averages about {self.curve.span:.3g} {unit} of "
+                                     "the path: the smoothing's bias is not under control. Sample "
+                                     "more densely or more precisely, or use the orbit fit (it needs "
+                                     "no smoothing).")
+        return Diagnostic(True, f"{where}, until the estimate stayed within {self.agreement:.1f} "
+                                f"standard errors of its change over {CONFIRMING_LEVELS} lighter "
+                                f"levels; each point averages about {self.curve.span:.3g} {unit} of "
+                                "the path.")
 
 
 def prepare(curve: SmoothedCurve, noise: NoiseEstimate) -> SmoothedCurve:
@@ -119,8 +146,10 @@ def settle(
     exponent: Callable[[T], tuple[float, float, FloatArray]],
     *,
     curve: SmoothedCurve | None = None,
+    watched: Callable[[T], tuple[FloatArray, FloatArray | None]] | None = None,
 ) -> Settled[T]:
-    """Estimate at lighter and lighter smoothing until the exponent settles.
+    """Estimate at lighter and lighter smoothing; keep the heaviest level whose estimate
+    agrees with those of every lighter one (Lepski's rule).
 
     Parameters
     ----------
@@ -135,6 +164,10 @@ def settle(
         exponent(result) -> (n, its standard error, d n / d samples (n_points, 2)).
     curve : SmoothedCurve, optional
         A smoothing to use as it is (no level search).
+    watched : callable, optional
+        watched(result) -> (other quantities (q,), their d / d samples (q, n_points, 2), or
+        None when they are not estimated): quantities that must settle with the exponent
+        (a fitted centre).
     """
     fixed = curve is not None or smoothing == "savgol"
     first = curve if curve is not None else smooth_track(track, smoothing=smoothing)
@@ -142,9 +175,11 @@ def settle(
     current = prepare(first, noise)
     result = estimate(current, None)
     value, stderr, influence = exponent(result)
-    steps = [LevelStep(current.level, value, stderr, math.nan)]
     if fixed:
-        return Settled(result, current, first, tuple(steps), True, noise)
+        return Settled(result, current, first, (LevelStep(current.level, value, stderr, math.nan),),
+                       True, noise)
+    levels = [_Watched(current, result, *_quantities(result, exponent, watched))]
+    chosen, exhausted = None, True
     for _ in range(MAX_STEPS):
         level = current.level / LEVEL_STEP
         try:
@@ -154,17 +189,82 @@ def settle(
             candidate = estimate(lighter, result)
         except ForcefitError:
             break
-        new_value, new_stderr, new_influence = exponent(candidate)
         if lighter.response is None:
             break
-        variance = float(lighter.response.covariance((influence - new_influence)[None])[0, 0])
-        change_z = (value - new_value) / math.sqrt(variance) if variance > 0 else 0.0
-        steps.append(LevelStep(lighter.level, new_value, new_stderr, change_z))
         current, result = lighter, candidate
-        value, influence = new_value, new_influence
-        if abs(change_z) < SETTLED_Z:
-            return Settled(result, current, first, tuple(steps), True, noise)
-    return Settled(result, current, first, tuple(steps), False, noise)
+        levels.append(_Watched(current, result, *_quantities(result, exponent, watched)))
+        chosen = _confirmed(levels)
+        if chosen is not None:
+            break
+    else:
+        exhausted = False
+    settled = chosen is not None
+    if chosen is None:     # read where the estimate agrees with every lighter level, if anywhere
+        chosen = next((i for i in range(len(levels) - 1)
+                       if _worst(levels, i) < SETTLED_Z), len(levels) - 1)
+    steps = []
+    for i, entry in enumerate(levels[:chosen + 1]):
+        n, se, _ = exponent(entry.result)
+        change = math.nan if i == 0 else _disagreement(levels[i - 1], entry, signed=True)
+        steps.append(LevelStep(entry.curve.level, n, se, change))
+    lighter_count = len(levels) - 1 - chosen
+    return Settled(levels[chosen].result, levels[chosen].curve, first, tuple(steps), settled, noise,
+                   _worst(levels, chosen - 1 if settled else chosen), lighter_count,
+                   exhausted and not settled)
+
+
+def _worst(levels: list[_Watched[T]], index: int) -> float:
+    """The largest disagreement of level ``index`` with any lighter one (nan: none lighter)."""
+    if index < 0 or index >= len(levels) - 1:
+        return math.nan
+    return max(_disagreement(levels[index], levels[j]) for j in range(index + 1, len(levels)))
+
+
+def _confirmed(levels: list[_Watched[T]]) -> int | None:
+    """The level to read, once a heavier one agrees with CONFIRMING_LEVELS lighter ones in a
+    row: the first of those (its bias a LEVEL_STEP-th of a heavier one's, itself too small to
+    show against its lighter levels); None while no level is so confirmed."""
+    for i in range(len(levels) - CONFIRMING_LEVELS):
+        if _worst(levels, i) < SETTLED_Z:
+            return i + 1
+    return None
+
+
+@dataclass(frozen=True)
+class _Watched(Generic[T]):
+    """One smoothing level's estimate and the quantities that must settle, with their
+    responses to the samples."""
+
+    curve: SmoothedCurve
+    result: T
+    values: FloatArray
+    influence: FloatArray
+
+
+def _quantities(result: T, exponent: Callable[[T], tuple[float, float, FloatArray]],
+                watched: Callable[[T], tuple[FloatArray, FloatArray | None]] | None
+                ) -> tuple[FloatArray, FloatArray]:
+    value, _, influence = exponent(result)
+    values, influences = np.array([value]), np.asarray(influence, dtype=float)[None]
+    if watched is not None:
+        more, more_influence = watched(result)
+        if more_influence is not None:
+            values = np.concatenate((values, np.asarray(more, dtype=float)))
+            influences = np.concatenate((influences, np.asarray(more_influence, dtype=float)))
+    return values, influences
+
+
+def _disagreement(heavier: _Watched[T], lighter: _Watched[T], *, signed: bool = False) -> float:
+    """The change of the watched quantities between two levels in standard errors of the
+    change (the largest; for the exponent alone, signed, when ``signed``)."""
+    response = lighter.curve.response
+    if response is None or heavier.values.size != lighter.values.size:
+        return math.inf
+    difference = heavier.influence - lighter.influence
+    variance = np.diag(response.covariance(difference))
+    change = heavier.values - lighter.values
+    z = np.where(variance > 0, change / np.sqrt(np.maximum(variance, 1e-300)), 0.0)
+    return float(z[0]) if signed else float(np.max(np.abs(z)))
 
 
 def _noise_of(track: Track, curve: SmoothedCurve) -> NoiseEstimate:

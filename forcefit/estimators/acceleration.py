@@ -107,12 +107,19 @@ def fit_acceleration(
         return _at_level(track, curve, given, previous)
 
     settled = settle(track, smoothing, estimate, _exponent,
-                     curve=None if path is None else path.smoothing)
+                     curve=None if path is None else path.smoothing, watched=_centre)
     return _result(track, settled.result, settled)
 
 
 def _exponent(level: _Level) -> tuple[float, float, FloatArray]:
     return float(level.law.parameters[0]), float(level.law.stderr[0]), level.law.influence[0]
+
+
+def _centre(level: _Level) -> tuple[FloatArray, FloatArray | None]:
+    """The fitted centre and its response to the samples (None when the centre was given)."""
+    if level.estimate is None:
+        return np.asarray(level.centre), None
+    return np.asarray(level.estimate.centre), level.estimate.influence
 
 
 def _at_level(track: Track, curve: SmoothedCurve, given: FloatArray | None,
