@@ -373,3 +373,22 @@ def test_the_correlation_time_is_one_for_white_residuals_and_tau_for_correlated_
         for i in range(1, shocks.size):
             series[i] = 0.6 * series[i - 1] + shocks[i]
         assert 2.5 < _correlation_time(series) < 6.0
+
+
+def test_an_ellipse_fitted_about_its_other_focus_fails_the_areal_rate_check():
+    # Kepler's second law: a central force sweeps equal areas in equal times about its centre, and
+    # only there. An inverse-square ellipse started at pericentre r = 1 with 1.1 times the circular
+    # speed has a = 1/(2 - 1.21) and e = 1 - 1/a = 0.21 (vis-viva; Goldstein, Poole & Safko sec. 3.7),
+    # so its empty focus is at (-2 a e, 0). The same conic fits about either focus, so the shape
+    # fit's exponent is right about both; the times must reject the empty one.
+    a = 1.0 / (2.0 - 1.1**2)
+    empty = (-2.0 * a * (1.0 - 1.0 / a), 0.0)
+    period = 2.0 * math.pi * a**1.5
+    track = simulate_orbit(exponent=-2.0, start=(1.0, 0.0), velocity=(0.0, 1.1), duration=3 * period,
+                           rate=60 / period, noise=1e-3, rng=2)
+    right = fit_shape(track, centre=(0.0, 0.0))
+    wrong = fit_shape(track, centre=empty)
+    assert right.diagnostics["areal rate"].passed and right.passed
+    assert abs(wrong.exponent + 2.0) < 4 * wrong.exponent_stderr                # the shape fits
+    assert wrong.diagnostics["areal rate"].passed is False and not wrong.passed
+    assert "equal areas" in wrong.diagnostics["areal rate"].message

@@ -45,6 +45,13 @@ from .result import CurvaturePoints, Diagnostic, ShapeFit
 AMBIGUITY_FACTOR = 1.5
 """Solutions whose chi-square is within this factor of the best are all reported."""
 
+STEADY_AREA = 25.0
+"""Largest reduced chi-square of the area swept about the centre against a steady rate in time.
+A central force sweeps equal areas in equal times (Kepler's second law), whatever its law; about
+the right centre the samples scatter about a line in t (measured up to 7 on short arcs and sparse
+orbits), about the other focus of an ellipse they swing by its size (measured 1e5 at 8 samples
+per orbit, noise 1e-3 of the size)."""
+
 CLOSEST_ANGLE = 0.1
 """Largest angle (rad) by which one standard error of the fitted centre may turn the direction
 from the centre to the closest sample. The fit's errors are linear in the centre; within one
@@ -159,6 +166,26 @@ def _angular_momentum(track: Track, evaluation: Evaluation, sigma: FloatArray
     return h, h_se, 2.0 * float(quadratic[2]) / scale / h, abs(2.0 * curvature_se / scale / h)
 
 
+def _areal_rate_check(track: Track, evaluation: Evaluation, sigma: FloatArray) -> Diagnostic | None:
+    """Whether the area swept about the fitted centre grows steadily in time (None without times).
+
+    The shape alone cannot tell an ellipse's two foci apart (the same conic about either); the
+    times can: only about the centre of force is the swept area g(t) a straight line in t.
+    """
+    if track.t is None:
+        return None
+    t = np.asarray(track.t) - float(np.mean(track.t))
+    line = fit_line(t, evaluation.solution.swept, evaluation.radius * sigma)
+    text = (f"the area swept about the centre grows at a steady rate within reduced chi-square "
+            f"{line.reduced_chi2:.3g}")
+    if line.reduced_chi2 > STEADY_AREA:
+        return Diagnostic(False, text + f", beyond {STEADY_AREA:g}: a central force sweeps equal areas "
+                          "in equal times, so the force does not point at this centre (an ellipse's "
+                          "other focus has the same shape). Give the centre if it is known, or use the "
+                          "orbit fit.")
+    return Diagnostic(True, text + ".")
+
+
 def _drift_spread(track: Track, solution: _Solution, covariance: FloatArray, sigma: FloatArray) -> float:
     """The standard error of h's drift that the fitted parameters carry (a centre fixed only
     loosely, on a short arc, makes the swept area grow unevenly): the drift's gradient by
@@ -228,6 +255,9 @@ def _law_fit(track: Track, solution: _Solution, sigma_known: bool, path: PathGeo
     force_se = force * math.hypot(per_h2_se, 2 * h_se / h) if math.isfinite(h) else math.nan
     turns = float(np.ptp(evaluation.theta)) / (2.0 * math.pi)
     diagnostics = _checks(track, solution, residuals, sigma_known, noise, tau, (drift, drift_se), turns)
+    areal = _areal_rate_check(track, evaluation, sigma)
+    if areal is not None:
+        diagnostics["areal rate"] = areal
     if problem.centre is None:
         diagnostics["closest passage"] = _closest_passage(track, evaluation, centre_se)
     if problem.centre is None and max(centre_se) > 0.05 * float(np.ptp(evaluation.radius)
