@@ -137,9 +137,9 @@ def _correlation_time(residuals: FloatArray) -> float:
 
 
 def _angular_momentum(track: Track, evaluation: Evaluation, sigma: FloatArray
-                      ) -> tuple[float, float, float, float]:
-    """h (L**2/T), its standard error, its relative drift over the track and the drift's
-    standard error, from the times.
+                      ) -> tuple[float, float, float, float, float]:
+    """h (L**2/T), its standard error, its relative drift over the track, the drift's standard
+    error, and the reduced chi-square of the swept area about a steady rate, from the times.
 
     Along the fitted curve g(theta) = integral of r**2 dtheta grows as h t; a sample's
     position error sigma across the path moves its g by r sigma. A line in t gives h. The
@@ -148,13 +148,13 @@ def _angular_momentum(track: Track, evaluation: Evaluation, sigma: FloatArray
     dh/dt times the duration, over h, its error from the quadratic's own scatter.
     """
     if track.t is None:
-        return math.nan, math.nan, math.nan, math.nan
+        return math.nan, math.nan, math.nan, math.nan, math.nan
     t = np.asarray(track.t) - float(np.mean(track.t))
     g, spread = evaluation.solution.swept, evaluation.radius * sigma
     line = fit_line(t, g, spread)
     h, h_se = line.slope, math.sqrt(float(line.covariance[0, 0]))
     if not h:
-        return h, h_se, math.nan, math.nan
+        return h, h_se, math.nan, math.nan, line.reduced_chi2
     square = evaluation.radius**2
     swept = np.concatenate(([0.0], np.cumsum(0.5 * (square[1:] + square[:-1]) * np.diff(evaluation.theta))))
     scale = max(float(np.ptp(t)), 1e-300)
@@ -163,22 +163,21 @@ def _angular_momentum(track: Track, evaluation: Evaluation, sigma: FloatArray
     misfit = swept / spread - design @ quadratic
     variance = float(misfit @ misfit) / max(t.size - 3, 1) * autocorrelation_time(misfit)
     curvature_se = math.sqrt(max(float(np.linalg.pinv(design.T @ design)[2, 2]) * variance, 0.0))
-    return h, h_se, 2.0 * float(quadratic[2]) / scale / h, abs(2.0 * curvature_se / scale / h)
+    return (h, h_se, 2.0 * float(quadratic[2]) / scale / h, abs(2.0 * curvature_se / scale / h),
+            line.reduced_chi2)
 
 
-def _areal_rate_check(track: Track, evaluation: Evaluation, sigma: FloatArray) -> Diagnostic | None:
-    """Whether the area swept about the fitted centre grows steadily in time (None without times).
+def _areal_rate_check(steadiness: float) -> Diagnostic | None:
+    """Whether the area swept about the fitted centre grows steadily in time, from the reduced
+    chi-square of the swept area about a line in t (`_angular_momentum`); None without times.
 
     The shape alone cannot tell an ellipse's two foci apart (the same conic about either); the
     times can: only about the centre of force is the swept area g(t) a straight line in t.
     """
-    if track.t is None:
+    if not math.isfinite(steadiness):
         return None
-    t = np.asarray(track.t) - float(np.mean(track.t))
-    line = fit_line(t, evaluation.solution.swept, evaluation.radius * sigma)
-    text = (f"the area swept about the centre grows at a steady rate within reduced chi-square "
-            f"{line.reduced_chi2:.3g}")
-    if line.reduced_chi2 > STEADY_AREA:
+    text = f"area swept about the centre against a steady rate in time: reduced chi-square {steadiness:.3g}"
+    if steadiness > STEADY_AREA:
         return Diagnostic(False, text + f", beyond {STEADY_AREA:g}: a central force sweeps equal areas "
                           "in equal times, so the force does not point at this centre (an ellipse's "
                           "other focus has the same shape). Give the centre if it is known, or use the "
@@ -242,7 +241,7 @@ def _law_fit(track: Track, solution: _Solution, sigma_known: bool, path: PathGeo
     ratio_se = ratio * math.sqrt(covariance[1, 1])
     centre_se = ((math.sqrt(covariance[4, 4]), math.sqrt(covariance[5, 5])) if problem.centre is None
                  else (0.0, 0.0))
-    h, h_se, drift, drift_se = _angular_momentum(track, evaluation, sigma)
+    h, h_se, drift, drift_se, steadiness = _angular_momentum(track, evaluation, sigma)
     if math.isfinite(drift):
         drift_se = math.hypot(drift_se, _drift_spread(track, solution, covariance, sigma))
     strength = ratio * h**2
@@ -255,7 +254,7 @@ def _law_fit(track: Track, solution: _Solution, sigma_known: bool, path: PathGeo
     force_se = force * math.hypot(per_h2_se, 2 * h_se / h) if math.isfinite(h) else math.nan
     turns = float(np.ptp(evaluation.theta)) / (2.0 * math.pi)
     diagnostics = _checks(track, solution, residuals, sigma_known, noise, tau, (drift, drift_se), turns)
-    areal = _areal_rate_check(track, evaluation, sigma)
+    areal = _areal_rate_check(steadiness)
     if areal is not None:
         diagnostics["areal rate"] = areal
     if problem.centre is None:
