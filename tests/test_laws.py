@@ -86,3 +86,19 @@ def test_the_exponent_from_a_precession_finds_the_closed_laws(eccentricity):
     assert exponent_from_precession(-math.pi, eccentricity) == pytest.approx(1.0, abs=1e-9)
     assert exponent_from_precession(0.0, eccentricity) == pytest.approx(-2.0, abs=1e-9)
     assert precession_per_orbit(1.0, eccentricity) == pytest.approx(-math.pi, abs=1e-12)
+
+
+@pytest.mark.parametrize("turned", [0.0, 0.7, 2.5])
+def test_the_energy_of_a_kepler_state_is_minus_mu_over_2a_in_any_direction(turned):
+    # Vis-viva: E = v^2/2 - mu/r = -mu/(2a) on a Kepler ellipse (Murray & Dermott 1999, Solar
+    # System Dynamics, eq. 2.34); here at pericentre, the state turned by `turned` rad so that both
+    # velocity components are neither 0 nor 1; h = r_p v_p in every direction.
+    from forcefit.dynamics.laws import angular_momentum, specific_energy
+
+    mu, a, e = 2.3, 1.7, 0.4
+    r_p = a * (1 - e)
+    v_p = math.sqrt(mu / a * (1 + e) / (1 - e))
+    c, s = math.cos(turned), math.sin(turned)
+    position, velocity = [r_p * c, r_p * s], [-v_p * s, v_p * c]
+    assert float(specific_energy(position, velocity, -2.0, mu)) == pytest.approx(-mu / (2 * a), rel=1e-13)
+    assert float(angular_momentum(position, velocity)) == pytest.approx(r_p * v_p, rel=1e-13)

@@ -451,3 +451,66 @@ def test_the_turns_swept_are_counted_from_the_first_sample_to_the_last():
                                    duration=8.0, rate=60.0, noise=1e-4, rng=2))
     assert fit.turns == pytest.approx(expected, abs=1e-3)
     assert f"sweep {expected:.2f} turns" in fit.diagnostics["coverage"].message
+
+
+def test_a_refit_from_an_earlier_fit_skips_the_start_search_and_lands_where_a_fresh_fit_does(monkeypatch):
+    # fit_orbit(start=...): a refit of a much-like track starts from the earlier fit's values by
+    # name. Here the earlier fit modelled a drag the refit leaves out, and its centre was free
+    # where the refit gives one; the refit must find the minimum a fresh fit finds (the same
+    # problem; its answer to a thousandth of its error) without the start search.
+    import forcefit.estimators.orbit as orbit
+
+    track = simulate_orbit(exponent=-1.5, noise=2e-3, centre=(0.1, -0.2), rng=21)
+    earlier = fit_orbit(track, drag="linear")
+    fresh = fit_orbit(track, centre=(0.1, -0.2))
+
+    def no_search(*args, **kwargs):
+        raise AssertionError("the start search ran")
+
+    monkeypatch.setattr(orbit, "orbit_start", no_search)
+    monkeypatch.setattr(orbit, "apsidal_start", no_search)
+    refit = fit_orbit(track, centre=(0.1, -0.2), start=earlier)
+    assert "drag" not in refit.values and refit.centre == (0.1, -0.2)
+    assert abs(refit.exponent - fresh.exponent) < 1e-3 * fresh.exponent_stderr
+    assert abs(refit.strength - fresh.strength) < 1e-3 * fresh.strength_stderr
+    assert refit.exponent_stderr == pytest.approx(fresh.exponent_stderr, rel=1e-3)
+
+
+def test_a_start_from_a_fit_at_another_reference_radius_keeps_its_force():
+    # log_force is ln F(r_ref) = ln k + n ln r_ref: moved to another reference radius the same
+    # law reads ln k + n ln r_new (the definition of the power law)
+    from dataclasses import replace
+
+    from forcefit.estimators.orbit import _vector_from
+
+    earlier = fit_orbit(simulate_orbit(exponent=1.0, noise=1e-3, rng=4))
+    radius = 3.0 * earlier.model.reference_radius
+    model = replace(earlier.model, reference_radius=radius)
+    vector = _vector_from(earlier, model, radius, None, None)
+    expected = math.log(earlier.strength) + earlier.exponent * math.log(radius)
+    assert vector[1] == pytest.approx(expected, rel=1e-12)
+    held = _vector_from(earlier, model, radius, 0.5, (1.0, 2.0))
+    cx, cy, _ = model.track_columns(0)
+    assert held[0] == 0.5 and (held[cx], held[cy]) == (1.0, 2.0)
+
+
+@pytest.mark.parametrize("loss", ["linear", "soft_l1", "huber"])
+def test_the_robust_losses_are_scipys_and_psi_is_half_their_slope(loss):
+    # Reference: scipy.optimize.least_squares reports cost = 0.5 sum rho(f^2) for its losses
+    # (its documentation's definitions, f_scale = 1); psi = rho'(r)/2 and its slope checked by
+    # central differences away from Huber's kink at |r| = 1, where rho is continuous (Huber 1964)
+    from scipy.optimize import least_squares
+
+    from forcefit.estimators.orbit import _loss_terms
+
+    residual = np.array([-4.0, -1.0, -0.3, 0.0, 0.5, 0.999, 1.001, 2.5, 30.0])
+    rho, psi, slope = _loss_terms(residual, loss)
+    for value, expected in zip(rho, residual):
+        reference = least_squares(lambda x, r=expected: np.array([r]) + 0.0 * x, [0.0], loss=loss,
+                                  max_nfev=1).cost
+        assert value == pytest.approx(2.0 * reference, rel=1e-12, abs=1e-15)
+    away = np.abs(np.abs(residual) - 1.0) > 0.01
+    step = 1e-6
+    plus, minus = _loss_terms(residual + step, loss), _loss_terms(residual - step, loss)
+    assert np.allclose((plus[0] - minus[0])[away] / (4 * step), psi[away], rtol=1e-6, atol=1e-9)
+    assert np.allclose((plus[1] - minus[1])[away] / (2 * step), slope[away], rtol=1e-5, atol=1e-9)

@@ -378,3 +378,23 @@ def test_the_sampler_loosens_its_tolerance_only_where_ln_p_does_not_move(rosette
     strict = dataclasses.replace(problem, model=rosette_fit.model)(points)        # the fit's own
     assert rosette_fit.model.rtol < posterior.LOOSER_RTOLS[-1] and not rosette_fit.model.dense
     assert np.all(np.abs(chosen(points) - strict) <= posterior.LOG_P_TOLERANCE)
+
+
+def test_a_joint_fits_likelihood_is_the_chi_square_of_every_launch():
+    # Two launches fitted jointly: at the least-squares point ln p - ln prior is -chi^2/2 over both
+    # tracks' samples (the Gaussian likelihood, common practice), the chi-square counted here from
+    # the fit's own predicted orbits; and moving one launch's state changes it.
+    from forcefit.inference.posterior import _log_prior, _problem
+
+    launches = [((1.0, 0.0), (0.0, 0.7)), ((0.0, 1.3), (-0.6, 0.0))]
+    tracks = [simulate_orbit(exponent=-1.0, strength=0.8, start=s, velocity=v, duration=10.0, rate=20.0,
+                             noise=0.002, rng=i, name=f"launch {i}") for i, (s, v) in enumerate(launches)]
+    fit = fit_orbit(tracks)
+    problem, best, _ = _problem(fit, "known", {})
+    data = np.concatenate([np.column_stack((track.x, track.y)) for track in tracks])
+    chi2 = float(np.sum(((data - fit.predict()) / np.asarray(fit.sigma)[:, None]) ** 2))
+    likelihood = problem(best[None])[0] - _log_prior(best[None], problem.names, problem.priors)[0]
+    assert likelihood == pytest.approx(-0.5 * chi2, rel=1e-5)
+    moved = best.copy()
+    moved[problem.names.index("x0_1")] += 0.01                           # five noise levels
+    assert problem(moved[None])[0] < problem(best[None])[0] - 100

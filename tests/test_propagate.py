@@ -191,3 +191,17 @@ def test_the_parallel_batch_is_the_serial_one_and_marks_failures(monkeypatch):
         parallel = propagate_batch(t, starts, speeds, dense=dense, parallel=True, **options)
         np.testing.assert_array_equal(parallel.position, serial.position)
         assert list(parallel.ok) == [True, True, False] and np.isnan(parallel.position[2]).all()
+
+
+@pytest.mark.parametrize("velocity", [(0.0, 0.0), (0.3, -0.2)])
+@pytest.mark.parametrize("dense", [False, True])
+def test_without_a_force_a_body_rests_or_moves_uniformly(velocity, dense):
+    # Newton's first law (common practice): with k = 0 the batch propagator must give
+    # r(t) = r0 + v (t - epoch), backwards and forwards from the epoch, also for a body at rest,
+    # where every error estimate of the step is exactly zero (it once divided 0 by 0 there).
+    t = np.linspace(0.0, 10.0, 11)
+    states = propagate_batch(t, (1.0, 0.5), velocity, exponent=-2.0, strength=0.0, epoch=3.0, dense=dense)
+    assert states.ok.all()
+    expected = np.array([1.0, 0.5]) + np.outer(t - 3.0, velocity)
+    np.testing.assert_allclose(states.position[0], expected, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(states.velocity[0], np.broadcast_to(velocity, (t.size, 2)), rtol=0, atol=1e-14)

@@ -392,3 +392,25 @@ def test_an_ellipse_fitted_about_its_other_focus_fails_the_areal_rate_check():
     assert abs(wrong.exponent + 2.0) < 4 * wrong.exponent_stderr                # the shape fits
     assert wrong.diagnostics["areal rate"].passed is False and not wrong.passed
     assert "equal areas" in wrong.diagnostics["areal rate"].message
+
+
+@pytest.mark.parametrize(("half_range", "refused"), [(0.625, True), (0.625 * (1 + 1e-12), False)])
+def test_an_excursion_exactly_at_the_threshold_is_refused(half_range, refused):
+    # The rule reads "must exceed RESOLVED_EXCURSION standard errors": at exactly 10 errors the
+    # fit is refused, just above it is not. Eight radii about a given centre, a noise of 1/8:
+    # the error is noise sqrt(2/8) = 1/16 and 10 errors are 0.625, all exact in binary.
+    from types import SimpleNamespace
+
+    from forcefit.estimators.shape import _require_resolved_excursion
+
+    radius = 1.0 + half_range * np.array([1.0, -1.0] * 4)
+    solution = SimpleNamespace(problem=SimpleNamespace(centre=(0.0, 0.0)),
+                               evaluation=SimpleNamespace(theta=np.linspace(0, 3, 8),
+                                                          solution=SimpleNamespace(radius=radius)))
+    track = Track(x=np.arange(8.0), y=np.ones(8), name="boundary")
+    assert RESOLVED_EXCURSION == 10.0
+    if refused:
+        with pytest.raises(NotIdentifiable, match="hardly changes"):
+            _require_resolved_excursion(track, solution, 0.125)
+    else:
+        _require_resolved_excursion(track, solution, 0.125)

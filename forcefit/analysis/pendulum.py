@@ -158,11 +158,14 @@ def pendulum_correction(
     measured = np.concatenate(([omega2], fit.vector[first:first + 4]))
     tolerance = _tolerance(omega2, omega2_se, fit.noise)
     ideal = measured.copy()
+    model = fit
     for _ in range(MAX_ITERATIONS):
         swing = _ideal_swing(fit, t, length, ideal, track)
         synthetic = Track(t=t, x=swing[:, 0], y=swing[:, 1], length_unit=track.length_unit,
                           time_unit=track.time_unit, name=f"{track.name} (ideal pendulum)")
-        model = fit_orbit(synthetic, centre=(0.0, 0.0))
+        # each ideal swing is close to the last fit's: start there (its own start search is
+        # seconds on a noise-free swing, which no power law follows to its rounding)
+        model = fit_orbit(synthetic, centre=(0.0, 0.0), start=model)
         found = np.concatenate(([model.strength_at_exponent(1.0)[0]], model.vector[first:first + 4]))
         miss = measured - found
         if np.all(np.abs(miss) <= tolerance):

@@ -160,10 +160,6 @@ def lab_rotation_rate(latitude: float, time_unit: str = "s") -> float:
     return EARTH_ROTATION_RATE * math.sin(math.radians(latitude)) * time_factor(time_unit, "s")
 
 
-STANDARD_GRAVITY = 9.80665
-"""Standard acceleration of gravity g_n, m/s**2 (3rd CGPM, 1901); local g differs."""
-
-
 def apsidal_angle_circular(exponent: ArrayLike) -> FloatArray:
     """Apsidal angle of a near-circular orbit in F proportional to r**n: pi / sqrt(n + 3).
 

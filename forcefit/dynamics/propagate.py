@@ -307,7 +307,8 @@ def propagate_batch(
     radius = np.hypot(states[:, 0], states[:, 1])
     speed = np.maximum(np.hypot(states[:, 2], states[:, 3]),
                        np.sqrt(np.abs(k) * radius ** (n + 1.0)))
-    atol = rtol * np.column_stack((radius, radius, speed, speed))
+    # floored: a body at rest under no force has no scale of its own (and 0/0 would stop the kernel)
+    atol = np.maximum(rtol * np.column_stack((radius, radius, speed, speed)), np.finfo(np.float64).tiny)
     out = np.empty((n_orbits, times.size, 4))
     status = np.zeros(n_orbits, dtype=np.int64)
     arguments = (times, float(epoch), states, n, k, forces, table_t, table_xy, float(rtol),

@@ -198,6 +198,7 @@ def fit_orbit(
     rotation_rate: float | Literal["fit"] | None = None,
     extra: ExtraForces | None = None,
     max_evaluations: int = 200,
+    start: OrbitFit | None = None,
 ) -> OrbitFit:
     """Fit the integrated orbit of F = -k r**n r_hat to every sample of timestamped tracks.
 
@@ -238,6 +239,13 @@ def fit_orbit(
         then measures the deviation beyond them.
     max_evaluations : int
         Most model evaluations the final optimiser may use.
+    start : OrbitFit, optional
+        An earlier fit of a track much like this one (a refit after a small change): the
+        optimiser starts from its values, matched by name (each state taken as it is at this
+        fit's epoch; a held exponent or a given centre overrides), and no other start is tried
+        unless the fit from it fails. Its parameters not in this model are left out; this
+        model's not in it start as the start search begins them (no drag, the given rotation
+        rate and Yukawa strength).
 
     Returns
     -------
@@ -296,7 +304,8 @@ def fit_orbit(
         return (moved, *optimise(moved, _parameters(moved, vector, exponent, centre), sigma,
                                  sigma_known, loss, max_evaluations))
 
-    quick = apsidal_start(problem, indices, noise)
+    given = None if start is None else _vector_from(start, model, provisional, exponent, centre)
+    quick = given if given is not None else apsidal_start(problem, indices, noise)
     outcome, misses = None, np.zeros(0)
     if quick is not None:
         try:
@@ -304,7 +313,7 @@ def fit_orbit(
             misses = _misses(*outcome[:2], sigma, loss, sigma_known)
         except FitError:
             outcome = None
-    if outcome is None or (_robust_spread(misses * np.repeat(sigma, 2))
+    if outcome is None or (given is None and _robust_spread(misses * np.repeat(sigma, 2))
                            > QUICK_MISS * float(np.median(noise))):
         searched = fit_from(orbit_start(problem, indices, noise))
         if outcome is None or (_objective(_misses(*searched[:2], sigma, loss, sigma_known), loss)
@@ -326,6 +335,29 @@ def fit_orbit(
             "not an orbit in a central power law; check the centre, the units and the data.",
             last_params=solution.values)
     return _law_fit(model, solution, solution.covariance, tracks, sigma, sigma_known, loss, noise_level)
+
+
+def _vector_from(
+    start: OrbitFit, model: OrbitModel, radius: float, exponent: float | None,
+    centre: tuple[float, float] | None,
+) -> FloatArray:
+    """``model``'s vector (its log force at reference radius ``radius``) from an earlier fit's
+    values, matched by name; a held exponent and a given centre replace theirs."""
+    values = dict(start.values)
+    values["log_force"] += values["exponent"] * (math.log(radius) - math.log(start.model.reference_radius))
+    vector = np.array([values.get(name, 0.0) for name in model.names])
+    if "rotation_rate" in model.names and "rotation_rate" not in values:
+        vector[model.index("rotation_rate")] = model.rotation_rate
+    if "yukawa_strength" in model.names and "yukawa_strength" not in values and model.extra is not None \
+            and model.extra.yukawa is not None:
+        vector[model.index("yukawa_strength")] = model.extra.yukawa.alpha
+    if exponent is not None:
+        vector[0] = exponent
+    if centre is not None:
+        for j in range(len(model.tracks)):
+            cx, cy, _ = model.track_columns(j)
+            vector[cx], vector[cy] = centre
+    return vector
 
 
 def _misses(model: OrbitModel, solution: _Solution, sigma: FloatArray, loss: Loss,

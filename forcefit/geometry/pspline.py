@@ -421,26 +421,30 @@ def _gcv_level(
     inverse_lower = linalg.solve_triangular(lower, np.eye(basis.n_basis), lower=True)
     eigenvalues, vectors = linalg.eigh(inverse_lower @ penalty @ inverse_lower.T)
     eigenvalues = np.clip(eigenvalues, 0.0, None)
-    design = np.zeros((data.shape[0], basis.n_basis))
-    rows = np.arange(data.shape[0])
-    for m in range(DEGREE + 1):
-        design[rows, basis.first_index + m] = basis.weights[0][:, m]
-    mapped = design @ inverse_lower.T @ vectors
+    rotation = inverse_lower.T @ vectors
+    # the design matrix has DEGREE + 1 neighbouring non-zeros per row: sum them
+    mapped = sum(basis.weights[0][:, m, None] * rotation[basis.first_index + m] for m in range(DEGREE + 1))
     projected = vectors.T @ inverse_lower @ _right_side(basis, w, data)
     inner_mapped, inner_data, inner_w = mapped[interior], data[interior], w[interior]
     leverage_terms = inner_w[:, None] * inner_mapped**2
     n_values = inner_data.size
 
+    def gcv_scores(log_levels: FloatArray) -> FloatArray:
+        """The score at each of ``log_levels`` (one matrix product per coordinate)."""
+        shrink = 1.0 / (1.0 + 10.0 ** log_levels[None, :] * eigenvalues[:, None])   # (basis, levels)
+        rss = np.zeros(log_levels.size)
+        for column in range(data.shape[1]):
+            fitted = inner_mapped @ (projected[:, column, None] * shrink)
+            rss += inner_w @ (inner_data[:, column, None] - fitted) ** 2
+        trace = data.shape[1] * np.sum(leverage_terms @ shrink, axis=0)
+        return n_values * rss / np.maximum(n_values - trace, 1e-12) ** 2
+
     def gcv(log_level: float) -> float:
-        shrink = 1.0 / (1.0 + 10.0**log_level * eigenvalues)
-        fitted = inner_mapped @ (projected * shrink[:, None])
-        rss = float(np.sum(inner_w[:, None] * (inner_data - fitted) ** 2))
-        trace = data.shape[1] * float(np.sum(leverage_terms @ shrink))
-        return n_values * rss / max(n_values - trace, 1e-12) ** 2
+        return float(gcv_scores(np.array([log_level]))[0])
 
     positive = eigenvalues[eigenvalues > 1e-12 * eigenvalues.max()]
     grid = np.linspace(math.log10(1e-3 / positive.max()), math.log10(1e4 / positive.min()), 121)
-    scores = np.array([gcv(value) for value in grid])
+    scores = gcv_scores(grid)
     best = int(np.argmin(scores))
     low, high = grid[max(best - 1, 0)], grid[min(best + 1, grid.size - 1)]
     log_level = float(grid[best])
