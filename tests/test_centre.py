@@ -227,3 +227,32 @@ def test_a_heavier_guide_is_drawn_only_below_the_fewest_bending_samples(monkeypa
     assert (guide is not curve) == heavier
     assert drawn == ([curve.level * centre.HEAVIER * centre.HEAVIER**i for i in range(centre.HEAVIER_STEPS)]
                      if heavier else [])
+
+
+@pytest.mark.parametrize(("significant", "signal", "refused"),
+                         [(2, 3.5, False), (1, 3.5, True), (2, 2.9, True), (2, 3.0, True), (3, 3.01, False)])
+def test_no_force_is_seen_below_two_percent_of_samples_beyond_three_errors(significant, signal, refused):
+    # The rule (MIN_SIGNAL = 3, MIN_SIGNIFICANT_FRACTION = 0.02): the acceleration lines are
+    # refused as "no force" when fewer than 2% of the samples have |a| beyond 3 of its errors.
+    # On 100 samples: 2 at 3.5 errors are exactly 2% (kept), 1 is not, 2 at 2.9 or exactly 3 errors are not
+    # significant; the rest have a = 0. What happens after the rule (a fit through two lines) is
+    # not this test's business.
+    from types import SimpleNamespace
+
+    from forcefit.geometry.centre import _from_accelerations
+
+    second = np.zeros((100, 2))
+    second[10:10 + significant] = [signal * math.sqrt(2.0), 0.0]       # |a| / sd(|a|) = signal
+    line = np.column_stack((np.arange(100.0), np.ones(100)))
+    curve = SimpleNamespace(parameter=np.arange(100.0), span=0.0, second=second,
+                            second_var=np.ones((100, 2)), value=line)
+    track = Track(x=np.arange(100.0), y=np.zeros(100), name="straight")
+    try:
+        _from_accelerations(track, curve, (0.0, 0.0))
+    except NotIdentifiable as error:
+        said_no_force = "not significantly different from zero" in str(error)
+    except Exception:                                     # noqa: BLE001 - past the rule
+        said_no_force = False
+    else:
+        said_no_force = False
+    assert said_no_force == refused

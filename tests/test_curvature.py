@@ -8,6 +8,7 @@ import pytest
 
 from forcefit.dynamics.propagate import Drag
 from forcefit.dynamics.simulate import simulate_orbit
+from forcefit.errors import NotIdentifiable
 from forcefit.estimators import fit_curvature
 from forcefit.track import Track
 
@@ -59,7 +60,6 @@ def test_a_circular_orbit_is_refused_with_the_noise_in_the_radius(method):
     # A circle shows no exponent. The refusal compares the spread of r with what noise alone gives:
     # 8 times the radius's error, which for equal errors in x and y is their common error whatever
     # the direction (delta method, var r = ux^2 var x + uy^2 var y; common practice).
-    from forcefit.errors import NotIdentifiable
     from forcefit.geometry.curves import interior
     from forcefit.geometry.smoothing import smooth_track
 
@@ -94,3 +94,29 @@ def test_a_described_path_keeps_its_centre_given_or_found():
     assert min(found.centre_stderr) > 0
     for c, truth, se in zip(found.centre, (0.3, -0.2), found.centre_stderr):
         assert abs(c - truth) < 4 * se
+
+
+def test_an_alternative_centre_that_cannot_be_fitted_is_left_out_and_the_rest_kept(monkeypatch):
+    # A closed ellipse without times is an orbit about its centre (n = 1) and about either focus
+    # (n = -2) (Newton, Principia I, props. 10-11; Bertrand 1873): the fit reports one and lists
+    # the other two. When one alternative's relation cannot be fitted, only that one is dropped.
+    import forcefit.estimators.curvature as curvature
+
+    theta = np.linspace(0, 4 * np.pi, 800)
+    rng = np.random.default_rng(0)
+    track = Track(x=2.0 * np.cos(theta) + 1e-4 * rng.standard_normal(800),
+                  y=np.sin(theta) + 1e-4 * rng.standard_normal(800), name="ellipse")
+    fit = fit_curvature(track)
+    laws = sorted([fit.exponent, *(other.exponent for other in fit.alternatives)])
+    assert np.allclose(laws, [-2.0, -2.0, 1.0], atol=0.01)
+    dropped = fit.alternatives[0].centre
+    relation = curvature._relation
+
+    def failing(track, curve, centre, influence, **options):
+        if np.hypot(*(np.asarray(centre) - dropped)) < 1e-9:
+            raise NotIdentifiable("cannot")
+        return relation(track, curve, centre, influence, **options)
+
+    monkeypatch.setattr(curvature, "_relation", failing)
+    refit = fit_curvature(track)
+    assert [other.centre for other in refit.alternatives] == [other.centre for other in fit.alternatives[1:]]

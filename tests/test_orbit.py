@@ -514,3 +514,15 @@ def test_the_robust_losses_are_scipys_and_psi_is_half_their_slope(loss):
     plus, minus = _loss_terms(residual + step, loss), _loss_terms(residual - step, loss)
     assert np.allclose((plus[0] - minus[0])[away] / (4 * step), psi[away], rtol=1e-6, atol=1e-9)
     assert np.allclose((plus[1] - minus[1])[away] / (2 * step), slope[away], rtol=1e-5, atol=1e-9)
+
+
+@pytest.mark.parametrize(("estimate", "kept"), [(1.49, False), (1.5, False), (1.51, True), (3.0, True)])
+def test_a_correlation_time_within_five_over_root_n_of_one_counts_as_one(monkeypatch, estimate, kept):
+    # The documented rule of the orbit fit: tau is taken as 1 unless the estimate exceeds
+    # 1 + 5/sqrt(N), its own noise; for N = 100 residuals the line is exactly 1.5, for 400 1.25.
+    import forcefit.estimators.orbit as orbit
+
+    monkeypatch.setattr(orbit, "autocorrelation_time", lambda values: estimate)
+    series = np.zeros(100)
+    assert orbit.correlation_time([series]) == (estimate if kept else 1.0)
+    assert orbit.correlation_time([np.zeros(400), series]) == (estimate if estimate > 1.25 else 1.0)

@@ -414,3 +414,34 @@ def test_an_excursion_exactly_at_the_threshold_is_refused(half_range, refused):
             _require_resolved_excursion(track, solution, 0.125)
     else:
         _require_resolved_excursion(track, solution, 0.125)
+
+
+@pytest.mark.parametrize(("estimate", "kept"), [(1.49, False), (1.5, False), (1.51, True)])
+def test_a_correlation_time_within_five_over_root_n_of_one_counts_as_one(monkeypatch, estimate, kept):
+    # The shape fit's rule, as the orbit fit's: tau is 1 unless the estimate exceeds 1 + 5/sqrt(N);
+    # for N = 100 residuals the line is exactly 1.5.
+    import forcefit.estimators.shape as shape
+
+    monkeypatch.setattr(shape, "autocorrelation_time", lambda values: estimate)
+    assert shape._correlation_time(np.zeros(100)) == (estimate if kept else 1.0)
+
+
+def test_the_drift_spread_is_the_delta_method_through_the_covariance(monkeypatch):
+    # The spread of h's drift carried by the fitted parameters is sqrt(g^T C g), g the drift's
+    # gradient (first-order propagation of errors: Bevington & Robinson 2003, Data Reduction and
+    # Error Analysis, eq. 3.13). With a drift exactly linear in the parameters, a . p, the central
+    # differences are exact and the spread must be sqrt(a^T C a) to rounding.
+    from types import SimpleNamespace
+
+    import forcefit.estimators.shape as shape
+
+    slope = np.array([0.7, -2.0, 0.3, 1.1])
+    monkeypatch.setattr(shape, "evaluate", lambda problem, vector, effort: np.asarray(vector))
+    monkeypatch.setattr(shape, "_angular_momentum",
+                        lambda track, evaluation, sigma: (1.0, 0.1, float(slope @ evaluation), 0.0, 1.0))
+    covariance = np.array([[0.04, 0.01, 0.0, 0.0], [0.01, 0.09, 0.02, 0.0],
+                           [0.0, 0.02, 0.01, 0.0], [0.0, 0.0, 0.0, 0.25]])
+    solution = SimpleNamespace(problem=None, vector=np.array([1.0, 2.0, -0.5, 0.3]))
+    track = Track(x=np.arange(20.0), y=np.arange(20.0) ** 2, name="linear drift")
+    spread = shape._drift_spread(track, solution, covariance, np.ones(20))
+    assert spread == pytest.approx(math.sqrt(slope @ covariance @ slope), rel=1e-9)
