@@ -37,7 +37,7 @@ from .curves import (
 )
 from .pointwise import PointwiseFit, fit_pointwise
 from .pspline import SmoothedCurve
-from .smoothing import smooth_track
+from .smoothing import Smoothing, smooth_track
 
 MIN_SIGNAL = 3.0
 """Signal-to-noise at which a sample's acceleration counts as significant."""
@@ -69,6 +69,9 @@ class CentreEstimate:
         to carry its uncertainty, with its correlations, into what is fitted about it.
     alternatives : tuple of CentreEstimate
         Other centres the shape supports as well (shape-only tracks).
+    notes : tuple of str
+        What the user should know about the estimate (e.g. errors widened because the centre
+        moved with the smoothing level).
     """
 
     centre: tuple[float, float]
@@ -78,6 +81,7 @@ class CentreEstimate:
     covariance: FloatArray
     influence: FloatArray
     alternatives: tuple[CentreEstimate, ...] = ()
+    notes: tuple[str, ...] = ()
 
 
 def _estimate(fit: PointwiseFit, rows: slice, method: str) -> CentreEstimate:
@@ -90,7 +94,7 @@ def _estimate(fit: PointwiseFit, rows: slice, method: str) -> CentreEstimate:
 
 def find_centre(
     track: Track, *, curve: SmoothedCurve | None = None,
-    starts: Sequence[tuple[float, float]] | None = None,
+    starts: Sequence[tuple[float, float]] | None = None, smoothing: Smoothing = "auto",
 ) -> CentreEstimate:
     """Locate the force centre of a track.
 
@@ -99,10 +103,16 @@ def find_centre(
     track : Track
         Positions (L), with times when known.
     curve : SmoothedCurve, optional
-        The track's smoothing, if already computed.
+        The smoothing to read the centre from. Without it the level is chosen as the
+        estimators choose theirs: lightened from generalised cross-validation's until the
+        centre settles (Lepski's rule, `forcefit.estimators._smoothed.settled_centre`); at
+        cross-validation's level alone a fast, close passage is rounded off and its
+        acceleration lines meet off the centre by several of their errors.
     starts : sequence of (float, float), optional
         Centres to start the search from (e.g. those found at another smoothing level);
         by default they are read from the path.
+    smoothing : {"auto", "spline", "savgol"}
+        The smoother searched without ``curve`` (as in `smooth_track`).
 
     Returns
     -------
@@ -123,7 +133,11 @@ def find_centre(
     >>> [round(c, 6) + 0.0 for c in estimate.centre], estimate.method
     ([2.0, -1.0], 'acceleration lines')
     """
-    curve = curve if curve is not None else smooth_track(track)
+    if curve is None:
+        # the estimators' level search (imported here: it builds on this module)
+        from ..estimators._smoothed import settled_centre
+
+        return settled_centre(track, smoothing)
     if track.has_times:
         return _from_accelerations(track, curve, None if not starts else starts[0])
     return _from_curvature_relation(track, curve, starts)

@@ -116,7 +116,8 @@ def describe_path(
     track : Track
         Positions (L), with times (T) when known.
     centre : (float, float), optional
-        The force centre (L); found with `find_centre` when not given.
+        The force centre (L); found with `find_centre` when not given (at the level it
+        settles on, unless a ``curve`` or ``level`` is given: then on that smoothing).
     smoothing, level
         As in `smooth_track`.
     curve : SmoothedCurve, optional
@@ -134,10 +135,11 @@ def describe_path(
     >>> bool(np.allclose(path.curvature[100:-100], exact[100:-100], rtol=1e-6))
     True
     """
+    searched = curve is None and level is None        # the centre's own level search (find_centre)
     curve = curve if curve is not None else smooth_track(track, smoothing=smoothing, level=level)
     if centre is not None:
         return _about(track, curve, (float(centre[0]), float(centre[1])), (0.0, 0.0))
-    estimate = find_centre(track, curve=curve)
+    estimate = find_centre(track, smoothing=smoothing) if searched else find_centre(track, curve=curve)
     return replace(_about(track, curve, estimate.centre, estimate.stderr), centre_estimate=estimate)
 
 
