@@ -235,6 +235,9 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
      "step = 1e-3 * math.sqrt(max(fit.covariance[i, i], 0.0)) or 1e-8 * max(abs(point[name]), 1.0)", 3):
         "the difference step used only where a parameter's variance is 0: its row and column of the "
         "(positive semi-definite) covariance are then 0, so its gradient entry adds nothing",
+    ("forcefit/units.py", "if abs(power) > 1e-12:", 1):
+        "the tolerance for n = 1 (no length unit in k) 1e-12 -> 2e-12: only exponents within "
+        "1e-12-2e-12 of 1 differ, where the length factor**power it skips is 1 to within 1e-11",
     ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
         "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
         "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",

@@ -526,3 +526,44 @@ def test_a_correlation_time_within_five_over_root_n_of_one_counts_as_one(monkeyp
     series = np.zeros(100)
     assert orbit.correlation_time([series]) == (estimate if kept else 1.0)
     assert orbit.correlation_time([np.zeros(400), series]) == (estimate if estimate > 1.25 else 1.0)
+
+
+@pytest.mark.parametrize(("loss", "sigma_known", "recomputed"),
+                         [("soft_l1", False, True), ("huber", False, True), ("soft_l1", True, False),
+                          ("linear", False, False)])
+def test_a_fits_misses_are_in_the_sigma_it_started_with(loss, sigma_known, recomputed):
+    # The quick start is judged on its misses in units of the sigma the fit started with
+    # (_misses' contract): a robust fit without a given sigma rescales its own, so its misses are
+    # recomputed from the fitted orbit; otherwise the optimiser's residuals are those misses.
+    from types import SimpleNamespace
+
+    from forcefit.estimators.orbit import _misses
+
+    fit = fit_orbit(simulate_orbit(exponent=-1.5, noise=0.002, rng=8))
+    started = np.full(fit.n_points, 0.003)
+    solution = SimpleNamespace(values=fit.values, residual=np.full(2 * fit.n_points, 7.0))
+    misses = _misses(fit.model, solution, started, loss, sigma_known)
+    data = np.column_stack((fit.model.tracks[0].x, fit.model.tracks[0].y))
+    expected = ((data - fit.predict()) / 0.003).ravel() if recomputed else solution.residual
+    np.testing.assert_allclose(misses, expected, rtol=1e-6, atol=1e-9)
+
+
+def test_a_run_away_joint_fit_is_refused_naming_the_first_track():
+    # An optimiser that ends where the strength overflows (n far out, ln F(r_ref) beyond a float's
+    # range) must not return an infinite k: the fit is refused, named after the first of the
+    # tracks (how every message of a joint fit names it), with the exponent it reached.
+    from forcefit.errors import FitError
+    from forcefit.estimators.orbit import _law_fit, _Solution
+
+    tracks = [simulate_orbit(exponent=-1.0, start=s, velocity=v, duration=6.0, rate=20.0, noise=0.002,
+                             rng=i, name=f"launch {i}")
+              for i, (s, v) in enumerate([((1.0, 0.0), (0.0, 0.8)), ((0.0, 1.2), (-0.7, 0.0))])]
+    fit = fit_orbit(tracks)
+    values = {**fit.values, "exponent": -300.0, "log_force": 800.0}
+    solution = _Solution(values=values, stderrs=fit.stderrs, varying=fit.parameter_names,
+                         covariance=np.asarray(fit.covariance), chi2=1.0, residual=np.zeros(1),
+                         evaluations=1, success=True, message="")
+    refusal = r"^track 'launch 0': the orbit fit ran away \(n = -300"
+    with np.errstate(all="ignore"), pytest.raises(FitError, match=refusal):
+        _law_fit(fit.model, solution, np.asarray(fit.covariance), tuple(tracks), np.asarray(fit.sigma),
+                 True, "linear", fit.noise)

@@ -205,3 +205,17 @@ def test_without_a_force_a_body_rests_or_moves_uniformly(velocity, dense):
     expected = np.array([1.0, 0.5]) + np.outer(t - 3.0, velocity)
     np.testing.assert_allclose(states.position[0], expected, rtol=0, atol=1e-12)
     np.testing.assert_allclose(states.velocity[0], np.broadcast_to(velocity, (t.size, 2)), rtol=0, atol=1e-14)
+
+
+def test_the_batch_has_one_orbit_per_parameter_set_given():
+    # propagate_batch's documented shapes: (n_orbits, n_times, 2) with n_orbits the largest
+    # leading size of its arguments (a scalar or a single state counts one), whichever carries it
+    t = np.linspace(0.0, 2.0, 5)
+    one = propagate_batch(t, (1.0, 0.0), (0.0, 1.0), exponent=-2.0, strength=1.0, epoch=0.0,
+                          centre=(0.5, -0.5))
+    assert one.position.shape == (1, 5, 2) and one.velocity.shape == (1, 5, 2) and one.ok.shape == (1,)
+    three = propagate_batch(t, (1.0, 0.0), (0.0, 1.0), exponent=[-2.0, -1.0, 1.0], strength=1.0, epoch=0.0)
+    assert three.position.shape == (3, 5, 2)
+    centres = propagate_batch(t, (1.0, 0.0), (0.0, 1.0), exponent=-2.0, strength=1.0, epoch=0.0,
+                              centre=[(0.0, 0.0), (1.0, 1.0)])
+    assert centres.position.shape == (2, 5, 2)
