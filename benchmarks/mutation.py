@@ -238,6 +238,26 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/units.py", "if abs(power) > 1e-12:", 1):
         "the tolerance for n = 1 (no length unit in k) 1e-12 -> 2e-12: only exponents within "
         "1e-12-2e-12 of 1 differ, where the length factor**power it skips is 1 to within 1e-11",
+    ("forcefit/dynamics/_kernel.py",
+     "if abs(target - t) > abs(h) * (1 + 1e-12):   # a full step, not one cut short", 0):
+        "target - t -> target + t in the test whether a kept step was cut short at a sample: it only "
+        "sets how much the next step may grow, and every step still passes the error test (as the "
+        "line's other mutants, measured above)",
+    ("forcefit/dynamics/_kernel.py", "accel = np.sqrt(derivative[2] ** 2 + derivative[3] ** 2)", 6):
+        "the first step's acceleration scale with a_y^3 for a_y^2: it sizes only the first trial "
+        "step, which the error test cuts (as this line's index 3, measured above)",
+    ("forcefit/estimators/acceleration.py", 'sense_text = "against" if mean < 0 else "along"', 1):
+        "< -> <= on the mean torque's sign: this line runs only when |mean| > 3 errors, so mean is "
+        "never 0",
+    ("forcefit/inference/posterior.py", "min_steps: int = 0,", 0):
+        "run_ensemble's least number of steps 0 -> 1: convergence is checked only every CHECK_EVERY "
+        "(250) steps, so a floor of one step never binds",
+    ("forcefit/inference/posterior.py", "tau = sampler.get_autocorr_time(tol=0)", 0):
+        "emcee raises only on chains shorter than tol autocorrelation times; its windowed estimate "
+        "(c = 5) stays below a fifth of the chain, so tol = 1 never raises either (measured: tau 0.35, "
+        "0.96 and 2.0 steps on chains of 5, 10 and 20 steps)",
+    ("forcefit/units.py", "if abs(exponent - 1.0) < 1e-12:", 2):
+        "< -> <= at an exponent exactly 1e-12 from 1 (a float equality): never met",
     ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
         "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
         "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",

@@ -445,3 +445,29 @@ def test_the_drift_spread_is_the_delta_method_through_the_covariance(monkeypatch
     track = Track(x=np.arange(20.0), y=np.arange(20.0) ** 2, name="linear drift")
     spread = shape._drift_spread(track, solution, covariance, np.ones(20))
     assert spread == pytest.approx(math.sqrt(slope @ covariance @ slope), rel=1e-9)
+
+
+def test_a_singular_normal_matrix_is_refused_not_carried(monkeypatch):
+    # Where J^T J cannot be inverted (the parameters not all fixed by the samples) the fit has no
+    # covariance: it must be refused with that reason, never returned with errors.
+    from forcefit.estimators._binet_fit import BinetProblem, Effort, evaluate, solve
+    from forcefit.estimators.shape import _law_fit, _Solution
+    from forcefit.geometry.noise import difference_noise
+
+    _, x, y = _rosette(-1.5, 2, 60, 2e-3, 3)
+    track = Track(x=x, y=y)
+    exact = fit_shape(track, centre=(0.3, -0.2))
+    problem = BinetProblem(x=x, y=y, sigma=np.full(x.size, difference_noise(track)),
+                           reference=exact.reference_angle, centre=(0.3, -0.2), penalty=1e6)
+    effort = Effort(x.size, "singular")
+    start = np.array([exact.exponent, math.log(exact.strength_per_h2), *_reference_state(exact, x, y)])
+    solved = solve(problem, start, list(range(start.size)), effort, max_nfev=20)
+    solution = _Solution(problem, solved.vector, evaluate(problem, solved.vector, effort), solved.chi2,
+                         solved.settled)
+
+    def singular(matrix):
+        raise np.linalg.LinAlgError("Singular matrix")
+
+    monkeypatch.setattr(np.linalg, "inv", singular)
+    with pytest.raises(FitError, match="no well-determined solution"):
+        _law_fit(track, solution, False, None, effort.integrations)
