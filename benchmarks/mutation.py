@@ -78,6 +78,7 @@ TARGETS: dict[str, tuple[tuple[str, ...], tuple[str, ...] | None, float]] = {
     "forcefit/dynamics/_kernel.py": ((EXTRA_FORCES, "tests/test_propagate.py"), None, 115),
     "forcefit/geometry/curves.py": (("tests/test_curves.py",), None, 4),
     "forcefit/geometry/centre.py": (("tests/test_centre.py",), None, 18),
+    "forcefit/geometry/levels.py": (("tests/test_smoothing.py", "tests/test_flyby.py"), None, 30),
     "forcefit/estimators/orbit.py": ((*_contract("orbit"), "tests/test_orbit.py"), None, 110),
     "forcefit/estimators/shape.py": ((*_contract("shape"), "tests/test_shape.py"), None, 50),
     "forcefit/estimators/curvature.py": ((*_contract("curvature"), "tests/test_curvature.py"), None, 20),

@@ -9,7 +9,8 @@ import pytest
 from forcefit.dynamics.simulate import simulate_orbit
 from forcefit.errors import NotIdentifiable
 from forcefit.estimators import fit_acceleration, fit_curvature, fit_shape
-from forcefit.estimators._smoothed import CONFIRMING_LEVELS, LEVEL_STEP, MAX_STEPS, settle
+from forcefit.estimators._smoothed import smoothing_diagnostic
+from forcefit.geometry.levels import CONFIRMING_LEVELS, LEVEL_STEP, MAX_STEPS, settle
 from forcefit.track import Track
 
 START, RUN = (-3.0, 0.4), 3.6        # m: 3 m out, 0.4 m off the line through the centre; 3.6 m of run
@@ -112,8 +113,8 @@ def test_the_level_is_read_only_once_two_lighter_levels_agree(ellipse):
     # of its errors: it never settles, and says so.
     drifting = _ladder(ellipse, [1.5 * i for i in range(MAX_STEPS + 1)])
     assert not drifting.settled and not drifting.exhausted
-    assert drifting.diagnostic("s").passed is False
-    assert "still changed" in drifting.diagnostic("s").message
+    assert smoothing_diagnostic(drifting, "s").passed is False
+    assert "still changed" in smoothing_diagnostic(drifting, "s").message
 
 
 def test_a_level_that_lighter_levels_cannot_check_fails_the_smoothing_check(ellipse):
@@ -121,7 +122,7 @@ def test_a_level_that_lighter_levels_cannot_check_fails_the_smoothing_check(elli
     # well the two agree, the smoothing's bias has not been checked.
     checked = _ladder(ellipse, [0.0] * (MAX_STEPS + 1), fails_from=2)
     assert not checked.settled and checked.exhausted
-    verdict = checked.diagnostic("s")
+    verdict = smoothing_diagnostic(checked, "s")
     assert verdict.passed is False and "could not be fitted" in verdict.message
     assert "orbit fit" in verdict.message
 

@@ -34,6 +34,7 @@ from ._smoothed import (
     require_resolved_excursion,
     sampling_diagnostic,
     settle,
+    smoothing_diagnostic,
 )
 from .result import AccelerationFit, CurvaturePoints, Diagnostic
 
@@ -268,7 +269,7 @@ def _result(track: Track, level: _Level, settled: Settled[_Level]) -> Accelerati
         "radial range": Diagnostic(None, f"r spans a factor {radius.max() / radius.min():.3g}."),
         "angular momentum": constancy_diagnostic(drift),
         "transverse acceleration": _transverse(track, level),
-        "smoothing": settled.diagnostic(track.time_unit),
+        "smoothing": smoothing_diagnostic(settled, track.time_unit),
         "sampling": sampling_diagnostic(curve),
         **noise_diagnostics(track, settled),
     }

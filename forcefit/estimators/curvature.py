@@ -41,6 +41,7 @@ from ._smoothed import (
     require_resolved_excursion,
     sampling_diagnostic,
     settle,
+    smoothing_diagnostic,
 )
 from .result import CurvatureFit, CurvaturePoints, Diagnostic
 
@@ -271,7 +272,7 @@ def _result(track: Track, level: _Level, settled: Settled[_Level]) -> CurvatureF
         "radial range": Diagnostic(None, f"r spans a factor {radius.max() / radius.min():.3g}."),
         "angular momentum": constancy_diagnostic(drift),
         "points used": Diagnostic(None, f"{used.size} of {track.n_points} (those away from the ends)."),
-        "smoothing": settled.diagnostic(unit),
+        "smoothing": smoothing_diagnostic(settled, unit),
         "sampling": sampling_diagnostic(curve),
         **noise_diagnostics(track, settled),
     }
