@@ -259,6 +259,13 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "0.96 and 2.0 steps on chains of 5, 10 and 20 steps)",
     ("forcefit/units.py", "if abs(exponent - 1.0) < 1e-12:", 2):
         "< -> <= at an exponent exactly 1e-12 from 1 (a float equality): never met",
+    ("forcefit/inference/posterior.py", "max_steps: int = 20_000,", 0):
+        "run_ensemble's default cap 20 000 -> 20 001 steps: reached only by a chain that never "
+        "converges, whose reason and length are reported either way",
+    ("forcefit/dynamics/laws.py",
+     "return float(brentq(mismatch, low, high, xtol=1e-14, rtol=1e-15, maxiter=200))", 0):
+        "the root's absolute tolerance 1e-14 -> 2e-14 on an exponent of order 1: the exponent "
+        "moves by at most 2e-14, far below any test's or user's resolution",
     ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
         "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
         "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",

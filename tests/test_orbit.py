@@ -567,3 +567,24 @@ def test_a_run_away_joint_fit_is_refused_naming_the_first_track():
     with np.errstate(all="ignore"), pytest.raises(FitError, match=refusal):
         _law_fit(fit.model, solution, np.asarray(fit.covariance), tuple(tracks), np.asarray(fit.sigma),
                  True, "linear", fit.noise)
+
+
+def test_a_robust_fit_without_sigma_does_not_depend_on_the_first_guess_of_the_noise():
+    # A robust loss measures residuals in units of sigma; without a given sigma the fit re-runs in
+    # the units of the noise its residuals show, so a first guess 3x too large (or 3x too small)
+    # must end where a right guess does: the same law and noise (an M-estimator's scale
+    # equivariance: Huber 1981, Robust Statistics, sec. 7.7), to a small part of the errors.
+    from forcefit.estimators.orbit import _parameters, optimise
+
+    base = simulate_orbit(exponent=-1.5, noise=0.002, outliers=0.01, outlier_size=20.0, rng=8)
+    track = Track(t=base.t, x=base.x, y=base.y, name="no sigma")
+    fit = fit_orbit(track, loss="soft_l1")
+    params = _parameters(fit.model, np.array([fit.values[name] for name in fit.model.names]), None, None)
+    ends = {}
+    for guess in (0.002, 0.006, 0.0007):
+        solution, _, noise = optimise(fit.model, params, np.full(track.n_points, guess), False, "soft_l1", 200)
+        ends[guess] = (solution.values["exponent"], noise)
+    for guess in (0.006, 0.0007):
+        assert abs(ends[guess][0] - ends[0.002][0]) < 0.05 * fit.exponent_stderr
+        assert ends[guess][1] == pytest.approx(ends[0.002][1], rel=0.05)
+    assert ends[0.002][1] == pytest.approx(0.002, rel=0.1)
