@@ -582,7 +582,8 @@ def test_a_robust_fit_without_sigma_does_not_depend_on_the_first_guess_of_the_no
     params = _parameters(fit.model, np.array([fit.values[name] for name in fit.model.names]), None, None)
     ends = {}
     for guess in (0.002, 0.006, 0.0007):
-        solution, _, noise = optimise(fit.model, params, np.full(track.n_points, guess), False, "soft_l1", 200)
+        first = np.full(track.n_points, guess)
+        solution, _, noise = optimise(fit.model, params, first, False, "soft_l1", 200)
         ends[guess] = (solution.values["exponent"], noise)
     for guess in (0.006, 0.0007):
         assert abs(ends[guess][0] - ends[0.002][0]) < 0.05 * fit.exponent_stderr
