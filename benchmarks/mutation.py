@@ -266,6 +266,14 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
      "return float(brentq(mismatch, low, high, xtol=1e-14, rtol=1e-15, maxiter=200))", 0):
         "the root's absolute tolerance 1e-14 -> 2e-14 on an exponent of order 1: the exponent "
         "moves by at most 2e-14, far below any test's or user's resolution",
+    ("forcefit/dynamics/_kernel.py", "CLOSEST = 1e-6", 0):
+        "the collision threshold 1e-6 -> 2e-6 of the start radius: only an orbit diving to within "
+        "1e-6-2e-6 of its start radius of the centre (an eccentricity beyond 0.999998) fails "
+        "sooner; such a trial orbit is lost either way",
+    ("forcefit/estimators/curvature.py",
+     "variance = unit[:, 0] ** 2 * curve.value_var[keep, 0] + unit[:, 1] ** 2 * curve.value_var[keep, 1]", 4):
+        "x's variance read from y's column: the smoother gives both coordinates the same pointwise "
+        "variance (pspline.py repeats one column), so the columns are equal",
     ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
         "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
         "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",

@@ -398,3 +398,17 @@ def test_a_joint_fits_likelihood_is_the_chi_square_of_every_launch():
     moved = best.copy()
     moved[problem.names.index("x0_1")] += 0.01                           # five noise levels
     assert problem(moved[None])[0] < problem(best[None])[0] - 100
+
+
+def test_the_walkers_start_from_the_covariance_or_its_diagonal_when_it_is_not_positive():
+    # _factor's contract: L L^T reproduces a positive definite covariance (a Cholesky factor), and
+    # falls back to the diagonal's square roots when the matrix is not positive definite
+    # (correlation 2 here: no covariance has it).
+    from forcefit.inference.posterior import _factor
+
+    good = np.array([[4.0, 1.2], [1.2, 0.81]])
+    factor = _factor(good)
+    np.testing.assert_allclose(factor @ factor.T, good, rtol=1e-8)
+    assert np.allclose(np.triu(factor, 1), 0.0)
+    bad = np.array([[4.0, 3.6], [3.6, 0.81]])
+    np.testing.assert_allclose(_factor(bad), np.diag([2.0, 0.9]))
