@@ -141,7 +141,8 @@ def find_centre(
     return _from_curvature_relation(track, curve, starts)
 
 
-def settled_centre(track: Track, smoothing: Smoothing = "auto") -> CentreEstimate:
+def settled_centre(track: Track, smoothing: Smoothing = "auto", start: SmoothedCurve | None = None
+                   ) -> CentreEstimate:
     """The force centre of a track at the smoothing level Lepski's rule settles on
     (`forcefit.geometry.levels.settle`, the centre's two coordinates watched): what
     `find_centre` returns when it is not handed a smoothing.
@@ -152,7 +153,8 @@ def settled_centre(track: Track, smoothing: Smoothing = "auto") -> CentreEstimat
     in 71% of the coordinates. Where no level settles (lighter levels keep moving the centre:
     nearly parallel acceleration lines, as on a narrow ellipse, whose noise bias grows as the
     smoothing lightens), the errors are widened by the largest move of the centre over the
-    levels tried, and a note says so.
+    levels tried, and a note says so. ``start``: the cross-validated smoothing, when already
+    computed.
     """
     seen: list[CentreEstimate] = []
 
@@ -168,7 +170,7 @@ def settled_centre(track: Track, smoothing: Smoothing = "auto") -> CentreEstimat
     def y(found: CentreEstimate) -> tuple[FloatArray, FloatArray | None]:
         return np.array([found.centre[1]]), found.influence[1:2]
 
-    settled = settle(track, smoothing, estimate, x, watched=y)
+    settled = settle(track, smoothing, estimate, x, watched=y, start=start)
     found = settled.result
     if settled.settled or len(seen) < 2:
         return found

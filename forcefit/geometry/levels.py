@@ -99,6 +99,7 @@ def settle(
     *,
     curve: SmoothedCurve | None = None,
     watched: Callable[[T], tuple[FloatArray, FloatArray | None]] | None = None,
+    start: SmoothedCurve | None = None,
 ) -> Settled[T]:
     """Estimate at lighter and lighter smoothing; keep the heaviest level whose estimate
     agrees with those of every lighter one (Lepski's rule).
@@ -120,9 +121,13 @@ def settle(
         watched(result) -> (other quantities (q,), their d / d samples (q, n_points, 2), or
         None when they are not estimated): quantities that must settle with the exponent
         (a fitted centre).
+    start : SmoothedCurve, optional
+        The track's cross-validated smoothing, when already computed: the first level.
     """
     fixed = curve is not None or smoothing == "savgol"
-    first = curve if curve is not None else smooth_track(track, smoothing=smoothing)
+    first = curve if curve is not None else start
+    if first is None:
+        first = smooth_track(track, smoothing=smoothing)
     noise = _noise_of(track, first)
     current = prepare(first, noise)
     result = estimate(current, None)

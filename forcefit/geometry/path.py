@@ -16,7 +16,7 @@ import numpy as np
 from .._types import FloatArray
 from ..errors import ForcefitWarning, GeometryError
 from ..track import Track
-from .centre import CentreEstimate, find_centre
+from .centre import CentreEstimate, find_centre, settled_centre
 from .curves import attractive_points, curvature_of, curvature_relation, polar_about
 from .pspline import SmoothedCurve
 from .smoothing import Smoothing, smooth_track
@@ -139,7 +139,8 @@ def describe_path(
     curve = curve if curve is not None else smooth_track(track, smoothing=smoothing, level=level)
     if centre is not None:
         return _about(track, curve, (float(centre[0]), float(centre[1])), (0.0, 0.0))
-    estimate = find_centre(track, smoothing=smoothing) if searched else find_centre(track, curve=curve)
+    estimate = (settled_centre(track, smoothing, start=curve) if searched
+                else find_centre(track, curve=curve))
     return replace(_about(track, curve, estimate.centre, estimate.stderr), centre_estimate=estimate)
 
 
