@@ -263,3 +263,14 @@ def test_no_force_is_seen_below_two_percent_of_samples_beyond_three_errors(signi
     else:
         said_no_force = False
     assert said_no_force == refused
+
+
+def test_a_centre_that_settles_is_returned_as_its_level_found_it():
+    # On a closed rosette the centre settles as the smoothing is lightened (two lighter levels
+    # agree): find_centre returns that level's estimate, its errors not widened and no note;
+    # the truth (0.4, -0.3) within 3 of them.
+    track = simulate_orbit(exponent=-1.0, centre=(0.4, -0.3), noise=0.002, rng=201)
+    found = find_centre(track)
+    assert found.notes == ()
+    np.testing.assert_allclose(np.square(found.stderr), np.diag(found.covariance), rtol=1e-12)
+    assert all(abs(c - truth) < 3 * e for c, truth, e in zip(found.centre, (0.4, -0.3), found.stderr))

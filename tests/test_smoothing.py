@@ -94,3 +94,24 @@ def test_noise_of_unevenly_spaced_samples_without_times(uneven_ellipse):
     settled = settle(track, "auto", lambda curve, previous: curve, lambda curve: (0.0, 1.0, None),
                      curve=curve)
     assert settled.noise.sd == pytest.approx(2e-3, rel=0.2)
+
+
+@pytest.mark.parametrize("sd", [1e-3, 0.5, 2.0, 300.0])
+def test_the_error_bars_take_the_noise_the_samples_show_in_any_unit(sd):
+    # prepare's contract: without a given sigma, a resolved noise level read from the samples sets
+    # the smoothing's error bars, whatever its size in the track's unit (a threshold on the
+    # number would make the answer depend on the unit); an unresolved one, or a given sigma,
+    # leaves them as they are.
+    from forcefit._noise import NoiseEstimate
+    from forcefit.geometry.levels import prepare
+
+    t = np.linspace(0.0, 10.0, 400)
+    rng = np.random.default_rng(1)
+    noisy = 0.01 * rng.standard_normal((2, 400))
+    track = Track(t=t, x=np.cos(t) + noisy[0], y=np.sin(t) + noisy[1])
+    curve = smooth_track(track)
+    resolved = NoiseEstimate(sd=sd, resolved=True, lag_ratio=1.0, correlated=False)
+    np.testing.assert_allclose(prepare(curve, resolved).value_var, curve.with_noise(sd).value_var)
+    assert not np.allclose(prepare(curve, resolved).value_var, curve.value_var)
+    unresolved = NoiseEstimate(sd=sd, resolved=False, lag_ratio=1.0, correlated=False)
+    assert prepare(curve, unresolved) is curve
