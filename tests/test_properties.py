@@ -137,7 +137,7 @@ def test_loaders_on_random_frames(frame):
     _check_frames(frame)
 
 
-@settings(QUICK, max_examples=40, derandomize=True)   # the same examples each run; the long one explores
+@settings(QUICK, max_examples=60, derandomize=True)   # the same examples each run; the long one explores
 @given(track=tracks(), estimator=st.sampled_from(ESTIMATORS))
 def test_estimators_on_random_tracks(track, estimator):
     _check_estimator(track, estimator)
