@@ -412,3 +412,13 @@ def test_the_walkers_start_from_the_covariance_or_its_diagonal_when_it_is_not_po
     assert np.allclose(np.triu(factor, 1), 0.0)
     bad = np.array([[4.0, 3.6], [3.6, 0.81]])
     np.testing.assert_allclose(_factor(bad), np.diag([2.0, 0.9]))
+
+
+def test_each_strength_sample_is_its_own_force_at_the_reference_radius(rosette_fit):
+    # k = F(r_ref) / r_ref^n sample by sample (the power law's definition): the strength column
+    # comes from each sample's own exponent and ln F(r_ref), so it carries n's spread too.
+    samples = sample_posterior(rosette_fit, rng=4, progress=False, max_steps=60).samples
+    ln_radius = math.log(rosette_fit.model.reference_radius)
+    expected = np.exp(samples["log_force"] - samples["exponent"] * ln_radius)
+    assert float(np.std(samples["exponent"])) > 1e-4
+    np.testing.assert_allclose(samples["strength"], expected, rtol=1e-12)
