@@ -471,3 +471,15 @@ def test_a_singular_normal_matrix_is_refused_not_carried(monkeypatch):
     monkeypatch.setattr(np.linalg, "inv", singular)
     with pytest.raises(FitError, match="no well-determined solution"):
         _law_fit(track, solution, False, None, effort.integrations)
+
+
+@pytest.mark.parametrize(("tau", "widened"), [(1.0, False), (2.25, True)])
+def test_the_coverage_note_speaks_of_widened_errors_only_when_they_were(monkeypatch, tau, widened):
+    # Residuals within their noise of independence count tau = 1 exactly, and their errors are
+    # not widened: the note must not say they were; at tau = 2.25 it says 1.5 times.
+    import forcefit.estimators.shape as shape
+
+    monkeypatch.setattr(shape, "_correlation_time", lambda residuals: tau)
+    _, x, y = _rosette(-1.5, 2, 60, 2e-3, 3)
+    message = fit_shape(Track(x=x, y=y), centre=(0.3, -0.2)).diagnostics["coverage"].message
+    assert ("widened 1.5 times" in message) == widened and ("widened" in message) == widened
