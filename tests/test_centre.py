@@ -274,3 +274,23 @@ def test_a_centre_that_settles_is_returned_as_its_level_found_it():
     assert found.notes == ()
     np.testing.assert_allclose(np.square(found.stderr), np.diag(found.covariance), rtol=1e-12)
     assert all(abs(c - truth) < 3 * e for c, truth, e in zip(found.centre, (0.4, -0.3), found.stderr))
+
+
+def test_centres_within_one_and_a_half_times_the_best_chi_square_are_all_reported(monkeypatch):
+    # The documented rule (AMBIGUITY_FACTOR = 1.5): a shape-only track's other centres are
+    # listed when their reduced chi-square is at most 1.5 times the best's (exactly 1.5 counts);
+    # here four centres are found with reduced chi-squares 1, 1.5, 1.6 and 2.4.
+    from forcefit.geometry import centre
+
+    theta = np.linspace(0, 4 * np.pi, 400)
+    track = Track(x=2.0 * np.cos(theta), y=np.sin(theta), name="ellipse")
+    chi2 = {(0.0, 0.0): 1.0, (1.0, 0.0): 1.5, (2.0, 0.0): 1.6, (3.0, 0.0): 2.4}
+
+    def refined(curve, guide, bending, start, size):
+        return centre.CentreEstimate(tuple(start), (0.1, 0.1), "curvature relation", chi2[tuple(start)],
+                                     np.eye(2) * 0.01, np.zeros((2, track.n_points, 2)))
+
+    monkeypatch.setattr(centre, "_refine_centre", refined)
+    found = find_centre(track, curve=smooth_track(track), starts=list(chi2))
+    assert found.centre == (0.0, 0.0)
+    assert [other.centre for other in found.alternatives] == [(1.0, 0.0)]
