@@ -106,9 +106,9 @@ def find_centre(
     curve : SmoothedCurve, optional
         The smoothing to read the centre from. Without it the level is chosen as the
         estimators choose theirs: lightened from generalised cross-validation's until the
-        centre settles (Lepski's rule, `settled_centre`); at
-        cross-validation's level alone a fast, close passage is rounded off and its
-        acceleration lines meet off the centre by several of their errors.
+        centre settles (Lepski's rule, `settled_centre`); at cross-validation's level alone a
+        fast, close passage is rounded off and its acceleration lines meet off the centre by
+        several of their errors.
     starts : sequence of (float, float), optional
         Centres to start the search from (e.g. those found at another smoothing level);
         by default they are read from the path.
