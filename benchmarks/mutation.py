@@ -287,6 +287,12 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/geometry/centre.py", "return found.centre[0], found.stderr[0], found.influence[0]", 1):
         "the standard error the centre's level search records for x (read from y's): settle judges "
         "agreement from the influences, and settled_centre keeps only the result, not the record",
+    ("forcefit/dynamics/propagate.py", "np.sqrt(np.abs(k) * radius ** (n + 1.0)))", 2):
+        "the velocity's tolerance scale sqrt(k r^(n-1)) for the circular speed sqrt(k r^(n+1)): "
+        "the positions' error control binds; measured on orbits of n = -2, -1, 1 in length units "
+        "from 1e-6 to 1e6: positions move by at most 1.1e-11 of the orbit's size (stated 1e-9)",
+    ("forcefit/geometry/levels.py", "if _worst(levels, i) < SETTLED_Z:", 0):
+        "< -> <= at a disagreement of exactly 2.0 standard errors (a continuous statistic): never met",
     ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
         "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
         "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",

@@ -605,3 +605,18 @@ def test_k_over_h_squared_is_covered_by_its_stated_error(exponent):
         fit = fit_orbit(track)
         z.append((fit.strength_per_h2 - 1.0 / h**2) / fit.strength_per_h2_stderr)
     assert np.all(np.abs(z) < 3.5) and 0.5 < np.std(z) < 1.6, np.round(z, 2)
+
+
+def test_a_given_epoch_starts_from_the_samples_at_that_time():
+    # The state is fitted at the epoch asked for, started from the samples nearest it: the fit
+    # then settles in a few evaluations, as from the middle (a start read at another sample, as
+    # a wrong index gives, costs it ~30), and the fitted position there lies within a few noise
+    # levels of that sample.
+    track = simulate_orbit(exponent=-1.5, noise=2e-3, rng=3)
+    t = np.asarray(track.t)
+    for index in (40, t.size - 30):
+        fit = fit_orbit(track, epoch=float(t[index]))
+        assert fit.passed and fit.evaluations <= 10, fit.evaluations
+        x = fit.values["x0"] + fit.centre[0]
+        y = fit.values["y0"] + fit.centre[1]
+        assert math.hypot(x - track.x[index], y - track.y[index]) < 5 * 2e-3 * math.sqrt(2)

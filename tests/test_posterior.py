@@ -422,3 +422,39 @@ def test_each_strength_sample_is_its_own_force_at_the_reference_radius(rosette_f
     expected = np.exp(samples["log_force"] - samples["exponent"] * ln_radius)
     assert float(np.std(samples["exponent"])) > 1e-4
     np.testing.assert_allclose(samples["strength"], expected, rtol=1e-12)
+
+
+def test_a_precise_track_keeps_the_tight_sampling_tolerance():
+    # With 1e-5 noise on an orbit of size ~1 the loosest integration (1e-8) moves ln p by ~0.7 and
+    # the next (1e-9) by ~0.04 at the points checked: the sampler must keep a tolerance whose
+    # posterior density stays within 1% (ln p within 0.01, the documented criterion), so here it
+    # does not loosen at all.
+    import dataclasses
+
+    from forcefit.inference import posterior
+
+    track = simulate_orbit(exponent=-1.5, noise=1e-5, rng=1, rate=100 / circular_period(1.0, -1.5, 1.0))
+    fit = fit_orbit(track)
+    problem, best, covariance = posterior._problem(fit, "known", {}, 1.0)
+    chosen = posterior._loosened(problem, best, covariance)
+    values, vectors = np.linalg.eigh(covariance)
+    axes = 2.0 * (vectors * np.sqrt(values)).T
+    points = np.vstack((best, best + axes, best - axes))
+    strict = dataclasses.replace(problem, model=fit.model)(points)
+    assert np.all(np.abs(chosen(points) - strict) <= 0.01)
+    assert chosen.model.rtol == posterior.SAMPLING_RTOL
+
+
+@pytest.mark.parametrize(("prior", "refused"), [(("uniform", 1.0, 0.5), True), (("uniform", 0.5, 0.5), True),
+                                                (("uniform", 0.5, 1.0), False), (("normal", 1.0, 0.0), True),
+                                                (("normal", 1.0, -1.0), True), (("normal", 1.0, 0.1), False)])
+def test_a_prior_without_width_is_refused(prior, refused):
+    # A uniform prior needs low < high and a normal one sd > 0; otherwise no sample could be drawn
+    # (or every one is), and the run is refused before it starts, naming the prior.
+    from forcefit.inference.posterior import _check_priors
+
+    if refused:
+        with pytest.raises(InputError, match="empty or has no width"):
+            _check_priors({"exponent": prior}, ("exponent", "log_force"))
+    else:
+        _check_priors({"exponent": prior}, ("exponent", "log_force"))
