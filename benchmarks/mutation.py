@@ -293,6 +293,8 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "from 1e-6 to 1e6: positions move by at most 1.1e-11 of the orbit's size (stated 1e-9)",
     ("forcefit/geometry/levels.py", "if _worst(levels, i) < SETTLED_Z:", 0):
         "< -> <= at a disagreement of exactly 2.0 standard errors (a continuous statistic): never met",
+    ("forcefit/dynamics/propagate.py", "column.flags.writeable = False", 1):
+        "numpy takes the flag's truth: writeable = None makes the array read-only as False does",
     ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
         "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
         "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",

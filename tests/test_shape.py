@@ -62,6 +62,8 @@ def test_hooke_orbit_squared_without_a_centre_reports_the_ambiguity():
     for one, truth in ((fits[0], -2.0), (fits[-1], 1.0)):
         assert 0 < one.exponent_stderr < 0.005 and abs(one.exponent - truth) < 4 * one.exponent_stderr
     assert fit.diagnostics["centre"].passed is False and not fit.passed
+    # no sigma column: every centre reported, the alternatives too, states the noise it fitted
+    assert all(one.diagnostics["noise"].message.startswith("fitted noise level") for one in fits)
 
 
 
