@@ -133,3 +133,18 @@ def test_the_command_line_adds_the_relativistic_term(tmp_path, capsys):
     assert "post-Newtonian" in report["details"]["extra_forces"]
     assert main(["fit", str(path), "--extra", "gravity-waves"]) == 2
     assert 'unknown force "gravity-waves"' in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("alpha", [1.0, -0.3])
+def test_a_yukawa_term_of_any_strength_is_added_as_the_reference_adds_it(alpha):
+    # The compiled kernel adds the Yukawa term whenever its alpha is not zero: at alpha = 1 (a
+    # value a switch could mistake for "none") and a negative one, against the numpy terms under
+    # scipy's DOP853, as above.
+    t = np.linspace(0.0, 20.0, 201)
+    extra = ExtraForces(yukawa=Yukawa(length=2.0, alpha=alpha))
+    reference = propagate_reference([1.0, 0.0], [0.0, 0.9], t, exponent=-2.0, strength=1.0, epoch=5.0,
+                                    extra=extra)
+    batch = propagate_batch(t, [1.0, 0.0], [0.0, 0.9], exponent=-2.0, strength=1.0, epoch=5.0, extra=extra,
+                            yukawa_alpha=alpha)
+    assert batch.ok[0]
+    assert np.abs(batch.position[0] - reference.position).max() < 1e-9
