@@ -89,7 +89,7 @@ def test_noise_of_unevenly_spaced_samples_without_times(uneven_ellipse):
     # Differences of the samples in their order see the uneven spacing as noise (5 times the
     # truth here); divided differences in the arc length, across the path, see the noise (to
     # within 20%: the arc length read from the samples follows them a little).
-    from forcefit.estimators._smoothed import settle
+    from forcefit.geometry.levels import settle
     track, _, _, curve = uneven_ellipse
     settled = settle(track, "auto", lambda curve, previous: curve, lambda curve: (0.0, 1.0, None),
                      curve=curve)

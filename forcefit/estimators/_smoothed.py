@@ -17,16 +17,7 @@ import numpy as np
 from .._types import FloatArray
 from ..errors import NotIdentifiable
 from ..geometry.curves import interior
-from ..geometry.levels import (  # noqa: F401 - the level search, for the estimators and tests
-    CONFIRMING_LEVELS,
-    LEVEL_STEP,
-    MAX_STEPS,
-    SETTLED_Z,
-    LevelStep,
-    Settled,
-    prepare,
-    settle,
-)
+from ..geometry.levels import CONFIRMING_LEVELS, Settled
 from ..geometry.pspline import SmoothedCurve
 from ..track import Track
 from ._checks import chi_square_diagnostic

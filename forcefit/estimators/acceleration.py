@@ -20,6 +20,7 @@ from .._types import FloatArray
 from ..errors import GeometryError, NotIdentifiable
 from ..geometry.centre import CentreEstimate, find_centre
 from ..geometry.curves import cross, interior, is_straight
+from ..geometry.levels import Settled, settle
 from ..geometry.path import PathGeometry, describe_path, force_relation
 from ..geometry.pointwise import PointwiseFit, fit_pointwise
 from ..geometry.pspline import SmoothedCurve
@@ -28,12 +29,10 @@ from ..track import Track
 from ._checks import angular_momentum, constancy_diagnostic
 from ._smoothed import (
     BEND_Z,
-    Settled,
     noise_diagnostics,
     noise_level,
     require_resolved_excursion,
     sampling_diagnostic,
-    settle,
     smoothing_diagnostic,
 )
 from .result import AccelerationFit, CurvaturePoints, Diagnostic
