@@ -235,3 +235,22 @@ def test_the_batch_propagator_is_as_accurate_in_any_unit_of_length(unit):
         assert one.ok.all() and scaled.ok.all()
         size = float(np.ptp(one.position[0], axis=0).max())
         assert float(np.max(np.abs(scaled.position[0] / unit - one.position[0]))) < 1e-9 * size
+
+
+@pytest.mark.parametrize("dense", [False, True])
+def test_the_bare_power_laws_fast_path_is_the_general_arithmetic_to_the_bit(dense):
+    # An orbit under the power law and linear drag alone takes the kernel's short derivative;
+    # a relativity term of GM 1e-200 and c 1e100 (its GM/c^2 underflows to 0) sends the same
+    # orbit through the general one, whose extra terms then add exactly 0: the two must agree
+    # bit for bit (common practice: an optimisation may not change a result).
+    from forcefit.dynamics.forces import ExtraForces, Relativity
+
+    t = np.linspace(0.0, 40.0, 400)
+    common = dict(exponent=[-2.1, 1.0, -1.0], strength=0.25, epoch=7.0, dense=dense,
+                  linear_drag=[0.0, 0.01, 0.002])
+    fast = propagate_batch(t, [[1.5, 0.0]] * 3, [[0.0, 0.28]] * 3, **common)
+    general = propagate_batch(t, [[1.5, 0.0]] * 3, [[0.0, 0.28]] * 3, **common,
+                              extra=ExtraForces(relativity=Relativity(gm=1e-200, speed_of_light=1e100)))
+    assert fast.ok.all() and general.ok.all()
+    assert np.array_equal(fast.position, general.position)
+    assert np.array_equal(fast.velocity, general.velocity)

@@ -118,6 +118,28 @@ def _derivative(state, t, out, exponent, strength, forces, table_t, table_xy):  
 
 
 @njit(cache=True, inline="always")
+def _derivative_plain(state, t, out, exponent, strength, forces, table_t, table_xy):  # type: ignore[no-untyped-def]
+    """`_derivative` of an orbit under the power law and linear drag alone, with the same
+    arithmetic (so the same bits). Its small body lets the compiler unroll a step's stages with
+    DOP853's coefficients as constants: a step costs about 0.4 of the general one."""
+    x, y, vx, vy = state[0], state[1], state[2], state[3]
+    r2 = x * x + y * y
+    factor = -strength * r2 ** (0.5 * (exponent - 1.0))
+    drag = forces[LINEAR]
+    out[0] = vx
+    out[1] = vy
+    out[2] = factor * x - drag * vx
+    out[3] = factor * y - drag * vy
+
+
+@njit(cache=True, inline="always")
+def _is_plain(forces):  # type: ignore[no-untyped-def]
+    """Whether an orbit feels nothing beyond the power law and linear drag."""
+    return (forces[QUADRATIC] == 0.0 and forces[YUKAWA_ALPHA] == 0.0 and forces[GR_MU] == 0.0
+            and forces[PERTURBER_MU] == 0.0)
+
+
+@njit(cache=True, inline="always")
 def step_error(y, y_new, k, atol, rtol, h, n_state):  # type: ignore[no-untyped-def]
     """DOP853's scaled error of one step (Hairer, Norsett & Wanner 1993, section II.10; as
     scipy's DOP853): the 5th- and 3rd-order estimates combined; below 1 the step is kept."""
@@ -138,9 +160,11 @@ def step_error(y, y_new, k, atol, rtol, h, n_state):  # type: ignore[no-untyped-
 
 
 @njit(cache=True, inline="always")
-def _take_step(y, t, h, k, y_new, stage, exponent, strength, forces, table_t, table_xy, rtol, atol):  # type: ignore[no-untyped-def]
+def _take_step(derivative, y, t, h, k, y_new, stage, exponent, strength, forces, table_t, table_xy, rtol,  # type: ignore[no-untyped-def]
+               atol):
     """One DOP853 step of size h from (t, y) with k[0] = f(t, y): fills y_new, k[1:STAGES + 1]
-    and returns the step's scaled error."""
+    and returns the step's scaled error. ``derivative`` is `_derivative` or, for an orbit that
+    `_is_plain`, `_derivative_plain`."""
     n_state = 4
     for s in range(1, STAGES):
         for i in range(n_state):
@@ -148,13 +172,13 @@ def _take_step(y, t, h, k, y_new, stage, exponent, strength, forces, table_t, ta
             for j in range(s):
                 acc += A[s, j] * k[j][i]
             stage[i] = y[i] + h * acc
-        _derivative(stage, t + C[s] * h, k[s], exponent, strength, forces, table_t, table_xy)
+        derivative(stage, t + C[s] * h, k[s], exponent, strength, forces, table_t, table_xy)
     for i in range(n_state):
         acc = 0.0
         for j in range(STAGES):
             acc += B[j] * k[j][i]
         y_new[i] = y[i] + h * acc
-    _derivative(y_new, t + h, k[STAGES], exponent, strength, forces, table_t, table_xy)
+    derivative(y_new, t + h, k[STAGES], exponent, strength, forces, table_t, table_xy)
     return step_error(y, y_new, k, atol, rtol, h, n_state)
 
 
@@ -181,6 +205,7 @@ def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy,
     h_abs, radius = _first_step(y, k[0])
     steps = 0
     limit = BASE_STEPS + STEPS_PER_SAMPLE * order.size
+    plain = _is_plain(forces)
     closest2 = (CLOSEST * radius) ** 2
     for index in order:
         target = times[index]
@@ -192,8 +217,12 @@ def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy,
                 if steps > limit or h_abs < 1e-15 * max(abs(t), 1.0):
                     return FAILED
                 h = min(h_abs, abs(target - t)) * direction
-                error = _take_step(y, t, h, k, y_new, stage, exponent, strength, forces, table_t,
-                                   table_xy, rtol, atol)
+                if plain:
+                    error = _take_step(_derivative_plain, y, t, h, k, y_new, stage, exponent, strength,
+                                       forces, table_t, table_xy, rtol, atol)
+                else:
+                    error = _take_step(_derivative, y, t, h, k, y_new, stage, exponent, strength, forces,
+                                       table_t, table_xy, rtol, atol)
                 if error < 1.0:
                     factor = MAX_FACTOR if error == 0.0 else min(MAX_FACTOR, SAFETY * error ** (-1.0 / 8.0))
                     accepted = True
@@ -215,7 +244,7 @@ def _leg(times, order, start, y0, exponent, strength, forces, table_t, table_xy,
 
 
 @njit(cache=True, inline="always")
-def _extension(y, y_new, t, h, k, stage, poly, exponent, strength, forces, table_t, table_xy):  # type: ignore[no-untyped-def]
+def _extension(derivative, y, y_new, t, h, k, stage, poly, exponent, strength, forces, table_t, table_xy):  # type: ignore[no-untyped-def]
     """DOP853's continuous extension of the step from (t, y) to y_new: the extra stages into
     k[STAGES + 1:] and the polynomial's coefficients into poly (as scipy's DOP853)."""
     n_state = 4
@@ -226,7 +255,7 @@ def _extension(y, y_new, t, h, k, stage, poly, exponent, strength, forces, table
             for j in range(s):
                 acc += A_EXTRA[e, j] * k[j][i]
             stage[i] = y[i] + h * acc
-        _derivative(stage, t + C_EXTRA[e] * h, k[s], exponent, strength, forces, table_t, table_xy)
+        derivative(stage, t + C_EXTRA[e] * h, k[s], exponent, strength, forces, table_t, table_xy)
     for i in range(n_state):
         delta = y_new[i] - y[i]
         poly[0, i] = delta
@@ -253,6 +282,7 @@ def _leg_dense(times, order, start, y0, exponent, strength, forces, table_t, tab
     h_abs, radius = _first_step(y, k[0])
     steps = 0
     limit = BASE_STEPS + STEPS_PER_SAMPLE * order.size
+    plain = _is_plain(forces)
     closest2 = (CLOSEST * radius) ** 2
     position = 0
     while position < order.size and times[order[position]] == t:
@@ -269,8 +299,12 @@ def _leg_dense(times, order, start, y0, exponent, strength, forces, table_t, tab
             return FAILED
         final = abs(last - t) <= h_abs * (1 + 1e-12)
         h = (last - t) if final else h_abs * direction
-        error = _take_step(y, t, h, k, y_new, stage, exponent, strength, forces, table_t, table_xy,
-                           rtol, atol)
+        if plain:
+            error = _take_step(_derivative_plain, y, t, h, k, y_new, stage, exponent, strength, forces,
+                               table_t, table_xy, rtol, atol)
+        else:
+            error = _take_step(_derivative, y, t, h, k, y_new, stage, exponent, strength, forces, table_t,
+                               table_xy, rtol, atol)
         if error >= 1.0:
             h_abs = abs(h) * max(MIN_FACTOR, SAFETY * error ** (-1.0 / 8.0))
             continue
@@ -285,8 +319,12 @@ def _leg_dense(times, order, start, y0, exponent, strength, forces, table_t, tab
                     out[index, i] = y_new[i]
             elif (target - t_new) * direction < 0.0:
                 if not extended:
-                    _extension(y, y_new, t, h, k, stage, poly, exponent, strength, forces, table_t,
-                               table_xy)
+                    if plain:
+                        _extension(_derivative_plain, y, y_new, t, h, k, stage, poly, exponent, strength,
+                                   forces, table_t, table_xy)
+                    else:
+                        _extension(_derivative, y, y_new, t, h, k, stage, poly, exponent, strength, forces,
+                                   table_t, table_xy)
                     extended = True
                 x = (target - t) / h
                 for i in range(n_state):
