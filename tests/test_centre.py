@@ -236,6 +236,34 @@ def test_a_heavier_guide_is_drawn_only_below_the_fewest_bending_samples(monkeypa
                      if heavier else [])
 
 
+def test_too_few_bending_samples_refuse_the_centre_and_say_how_heavily_they_were_smoothed(monkeypatch):
+    # With fewer samples bending significantly than MIN_BENDING on every guide, the centre is
+    # refused; the message states the heaviest smoothing tried, as a multiple of the fit's own
+    # level (recorded here as the guides are drawn).
+    from forcefit.geometry import centre
+
+    timed = simulate_orbit(exponent=-2.0, duration=8.0, rate=20.0, noise=1e-3, rng=4)
+    track = Track(x=timed.x, y=timed.y)                      # the shape alone
+    curve = smooth_track(track)
+    drawn: list[float] = []
+
+    def counted(*args, **kwargs):
+        drawn.append(kwargs["level"])
+        return smooth_track(*args, **kwargs)
+
+    def too_few(guide, kappa, kappa_err):
+        mask = np.zeros(guide.value.shape[0], dtype=bool)
+        mask[10:19] = True
+        return mask
+
+    monkeypatch.setattr(centre, "smooth_track", counted)
+    monkeypatch.setattr(centre, "attractive_points", too_few)
+    with pytest.raises(NotIdentifiable, match="too noisy to locate the centre") as refusal:
+        find_centre(track, curve=curve)
+    assert drawn and f"even smoothed {max(drawn) / curve.level:.3g} times more heavily" in str(refusal.value)
+    assert f"9 of {track.n_points} points bend significantly" in str(refusal.value)
+
+
 @pytest.mark.parametrize(("significant", "signal", "refused"),
                          [(2, 3.5, False), (1, 3.5, True), (2, 2.9, True), (2, 3.0, True), (3, 3.01, False)])
 def test_no_force_is_seen_below_two_percent_of_samples_beyond_three_errors(significant, signal, refused):

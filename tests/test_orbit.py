@@ -224,6 +224,28 @@ def test_a_circle_about_an_unknown_or_given_centre_is_refused(given, rng):
         fit_orbit(track, centre=(0.3, 0.2) if given else None)
 
 
+def test_an_unresolved_near_circle_is_refused_with_its_radial_range_stated():
+    # As the shape fit's rule (test_shape): the fitted orbit's radial half-range against
+    # RESOLVED_EXCURSION standard errors (noise sqrt(2/N)). A Hooke ellipse of axes 1 and 0.999
+    # (r from 0.999 to 1) whose half-range is 0.8 of that threshold is refused, and the message
+    # states max(r) - min(r) within three of its standard errors (over seeds 0-7 it lay within
+    # -0.8 to 1.8 of them).
+    from forcefit.estimators._checks import RESOLVED_EXCURSION
+
+    t = np.arange(300) / 30.0
+    exact = simulate_orbit(exponent=1.0, start=(1.0, 0.0), velocity=(0.0, 0.999), duration=t[-1],
+                           rate=30.0)
+    half_range = 0.5 * float(np.ptp(np.hypot(exact.x, exact.y)))
+    noise = half_range / (0.8 * RESOLVED_EXCURSION * math.sqrt(2.0 / exact.n_points))
+    track = simulate_orbit(exponent=1.0, start=(1.0, 0.0), velocity=(0.0, 0.999), duration=t[-1],
+                           rate=30.0, noise=noise, rng=1)
+    with pytest.raises(NotIdentifiable, match="hardly changes") as refusal:
+        fit_orbit(track, centre=(0.0, 0.0))
+    said = float(refusal.value.args[0].split("(by ")[1].split()[0])
+    error = noise * math.sqrt(2.0 / exact.n_points)
+    assert said == pytest.approx(2 * half_range, abs=3 * 2 * error)
+
+
 def test_a_resolved_near_circle_is_answered_within_its_errors():
     # e ~ 0.01 Kepler orbit: the radial excursion (1% of r) is far above the noise (0.02%).
     track = simulate_orbit(exponent=-2.0, start=(1.0, 0.0), velocity=(0.0, math.sqrt(1.01)), duration=10.0,
@@ -620,3 +642,38 @@ def test_a_given_epoch_starts_from_the_samples_at_that_time():
         x = fit.values["x0"] + fit.centre[0]
         y = fit.values["y0"] + fit.centre[1]
         assert math.hypot(x - track.x[index], y - track.y[index]) < 5 * 2e-3 * math.sqrt(2)
+
+
+def test_a_trial_orbit_that_cannot_be_integrated_is_a_rejected_step_not_the_end_of_the_fit(monkeypatch):
+    # Mid-fit the optimiser may try parameters whose orbit falls into the centre: that trial's
+    # residuals are a large uniform penalty, the trust region shrinks and the fit goes on. Here
+    # the refit starts from a fit with n held 0.05 off and its first trial orbit is made to fail;
+    # it must still land where a fresh fit does (to a hundredth of its error).
+    from forcefit.dynamics.orbit_model import OrbitModel
+
+    track = simulate_orbit(exponent=-1.5, noise=2e-3, rng=21)
+    fresh = fit_orbit(track)
+    held = fit_orbit(track, exponent=-1.45)
+    original = OrbitModel.predict
+    single = []
+
+    def first_trial_fails(self, vectors):
+        predictions, ok = original(self, vectors)
+        if np.atleast_2d(vectors).shape[0] == 1:              # a residual, not a Jacobian
+            single.append(1)
+            if len(single) == 2:
+                ok = np.zeros_like(ok)
+        return predictions, ok
+
+    def no_search(*args, **kwargs):
+        raise AssertionError("the start search ran")
+
+    import forcefit.estimators.orbit as orbit
+
+    monkeypatch.setattr(orbit, "orbit_start", no_search)
+    monkeypatch.setattr(orbit, "apsidal_start", no_search)
+    monkeypatch.setattr(OrbitModel, "predict", first_trial_fails)
+    refit = fit_orbit(track, start=held)
+    assert len(single) > 3
+    assert refit.passed
+    assert abs(refit.exponent - fresh.exponent) < 1e-2 * fresh.exponent_stderr

@@ -87,6 +87,9 @@ def test_a_short_run_says_it_has_not_converged(rosette_fit):
     posterior = sample_posterior(rosette_fit, rng=4, progress=False, max_steps=60)
     assert not posterior.converged
     assert "autocorrelation times long" in posterior.reason and "Run longer" in posterior.reason
+    # its length in autocorrelation times is the steps over the longest tau (emcee's estimate)
+    tau = float(np.max(posterior.sampler.get_autocorr_time(tol=0)))
+    assert f"only {60 / tau:.0f} autocorrelation times long" in posterior.reason
     assert "NOT CONVERGED" in posterior.to_text()
     longer = sample_posterior(rosette_fit, rng=4, progress=False, max_steps=300)
     assert not longer.converged and "Run longer" in longer.reason

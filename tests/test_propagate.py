@@ -254,3 +254,15 @@ def test_the_bare_power_laws_fast_path_is_the_general_arithmetic_to_the_bit(dens
     assert fast.ok.all() and general.ok.all()
     assert np.array_equal(fast.position, general.position)
     assert np.array_equal(fast.velocity, general.velocity)
+
+
+@pytest.mark.parametrize("dense", [False, True])
+def test_an_orbit_that_would_need_more_steps_than_its_budget_is_marked_failed(dense):
+    # The kernel allows BASE_STEPS + STEPS_PER_SAMPLE per sample and then gives an orbit up (a
+    # trial orbit that dives at the centre would otherwise run for ever): a circle sampled twice
+    # needs tens of steps a turn, so 20 000 turns are far beyond the 51 000 allowed and 200 fit.
+    for turns, expected in ((20_000, False), (200, True)):
+        t = np.array([0.0, 2 * np.pi * turns])
+        batch = propagate_batch(t, (1.0, 0.0), (0.0, 1.0), exponent=-2.0, strength=1.0, epoch=0.0,
+                                dense=dense)
+        assert bool(batch.ok[0]) is expected

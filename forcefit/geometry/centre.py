@@ -251,10 +251,12 @@ def _from_curvature_relation(
         )
     guide, bending = relation_guide(track, curve)
     if bending.sum() < MIN_BENDING:
+        heavier = (f", even smoothed {guide.level / curve.level:.3g} times more heavily"
+                   if guide is not curve else "")
         raise NotIdentifiable(
             f"{track.label}: the curvature is too noisy to locate the centre from the shape "
-            f"({int(bending.sum())} of {track.n_points} points bend significantly, even smoothed "
-            f"{HEAVIER ** HEAVIER_STEPS:g} times more heavily). Give the centre."
+            f"({int(bending.sum())} of {track.n_points} points bend significantly{heavier}). "
+            "Give the centre."
         )
     size = float(np.ptp(curve.value, axis=0).max())
     candidates = ([np.asarray(c, dtype=float) for c in starts] if starts
