@@ -342,6 +342,29 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
     ("forcefit/estimators/orbit.py", "max_evaluations: int = 200,", 0):
         "the default budget one larger: a fit that needs it fails its convergence check at 200 or "
         "201 alike (only the count it reports differs by one); every test of the budget passes its own",
+    ("forcefit/dynamics/propagate.py", "table_t, table_xy = np.zeros(0), np.zeros((0, 2))", 1):
+        "the perturber's position table when there is none: the kernel reads it only for an orbit "
+        "with a perturber (PERTURBER_MU != 0), and one row of zeros has the same compiled type",
+    ("forcefit/dynamics/_kernel.py", "if steps > limit or h_abs < 1e-15 * max(abs(t), 1.0):", 4):
+        "the step-size floor's time scale 1 -> 2 (|t| < 2): as 1e-15 -> 2e-15, reached only by an "
+        "orbit already failing",
+    ("forcefit/inference/posterior.py", "scale = math.log(max(math.sqrt(fit.reduced_chi2), 1e-6))", 0):
+        "a floor against log(0) for the noise scale's start: binds only where the residuals are a "
+        "millionth of the stated sigma (reduced chi-square below 1e-12), which no fit reaches",
+    ("forcefit/apps/grading.py", "given_options: Mapping[str, Any] = field(default_factory=dict)", 0):
+        "no options given as None instead of {}: merged_options reads `given or {}`, and the rule's "
+        "saved form leaves given_options out",
+    ("forcefit/estimators/shape.py", "dof = max(track.n_points - solution.problem.n_parameters, 1)", 1):
+        "the degrees-of-freedom floor 1 -> 2: the shape fit takes at least 12 samples for at most 6 "
+        "numbers, so dof >= 6 and the floor never binds",
+    ("forcefit/units.py",
+     "if time is None or abs(time_power + 2.0) > 1e-9 or abs(length_power - (1.0 - exponent)) > 1e-9:", 4):
+        "the tolerance on a unit's time power 1e-9 -> 2e-9: the powers are sums of the written "
+        "exponents (integers and simple fractions), off by 0 or by at least 1/2, never near 1e-9",
+    ("forcefit/estimators/curvature.py",
+     "return float(level.law.parameters[0]), float(level.law.stderr[0]), level.law.influence[0]", 1):
+        "the exponent's error the level search records per level (LevelStep.stderr): settle judges "
+        "agreement from the influences, and nothing reads the recorded error (as the centre's)",
 }
 
 # the same, for a line whose text recurs in its module: (module, enclosing function, line, index)

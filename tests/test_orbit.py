@@ -42,6 +42,21 @@ def test_orbit_fit_with_linear_drag():
     assert not plain.passed                      # without drag the model misses the decay
 
 
+def test_a_drag_fit_gives_the_same_law_with_the_times_in_milliseconds():
+    # Dimensional analysis (common practice): the same track with its times in ms is the same
+    # motion; n and its error are unchanged, the drag rate c (1/T) is 1000 times smaller with
+    # the same relative error. The drag's difference step must scale with the track's duration.
+    track = simulate_orbit(exponent=1.0, strength=4.0, drag=Drag("linear", 0.05), noise=0.002,
+                           duration=20.0, rate=40.0, rng=3)
+    seconds = fit_orbit(track, drag="linear")
+    in_ms = fit_orbit(Track(t=track.t * 1e3, x=track.x, y=track.y, sigma=track.sigma, time_unit="ms"),
+                      drag="linear")
+    assert in_ms.exponent == pytest.approx(seconds.exponent, abs=1e-3 * seconds.exponent_stderr)
+    assert in_ms.exponent_stderr == pytest.approx(seconds.exponent_stderr, rel=1e-3)
+    assert in_ms.drag == pytest.approx(seconds.drag * 1e-3, abs=1e-3 * in_ms.drag_stderr)
+    assert in_ms.drag_stderr == pytest.approx(seconds.drag_stderr * 1e-3, rel=1e-3)
+
+
 def test_robust_loss_shrugs_off_tracking_glitches():
     track = simulate_orbit(exponent=-1.5, noise=0.002, outliers=0.01, outlier_size=40, rng=8)
     planted = set(track.metadata["truth"]["outlier_indices"])

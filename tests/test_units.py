@@ -28,6 +28,15 @@ def test_day_and_julian_year():
     assert time_factor("yr", "d") == pytest.approx(365.25, rel=1e-15)
 
 
+def test_times_beyond_the_common_symbols_convert_through_pint_both_ways():
+    # A week is 7 days (common practice); the Julian year 365.25 d (IAU 1976), so 365.25/7 weeks.
+    # The week is not among the common symbols, so each goes through the unit registry, the
+    # year on one side and on the other.
+    assert time_factor("week", "d") == pytest.approx(7.0, rel=1e-15)
+    assert time_factor("yr", "week") == pytest.approx(365.25 / 7.0, rel=1e-15)
+    assert time_factor("week", "yr") == pytest.approx(7.0 / 365.25, rel=1e-15)
+
+
 def test_pixels_are_their_own_length():
     assert parse_length_unit("pixels") == "px"
     with pytest.raises(InputError, match="calibration"):
