@@ -115,3 +115,28 @@ def test_the_error_bars_take_the_noise_the_samples_show_in_any_unit(sd):
     assert not np.allclose(prepare(curve, resolved).value_var, curve.value_var)
     unresolved = NoiseEstimate(sd=sd, resolved=False, lag_ratio=1.0, correlated=False)
     assert prepare(curve, unresolved) is curve
+
+
+def test_where_no_level_settles_the_lightest_one_tried_is_read():
+    # Lepski's rule as settle states it: keep the heaviest level that agrees with every lighter
+    # one; where none does, read the lightest level tried (its bias is the smallest). An
+    # estimate that jumps by far more than its error at every level never settles.
+    import math
+
+    from forcefit.dynamics.simulate import simulate_orbit
+    from forcefit.geometry.levels import settle
+
+    track = simulate_orbit(exponent=-2.0, duration=6.0, rate=30.0, noise=1e-3, rng=3)
+    tried: list[float] = []
+
+    def estimate(curve, previous):
+        tried.append(curve.level)
+        return curve
+
+    def jumping(curve):
+        return 1e3 * math.log(curve.level), 1e-3, np.full((track.n_points, 2), 1e-9 * math.log(curve.level))
+
+    settled = settle(track, "auto", estimate, jumping)
+    assert not settled.settled and len(tried) > 2
+    assert settled.curve.level == tried[-1]
+    assert [step.level for step in settled.steps] == tried
