@@ -692,3 +692,17 @@ def test_a_trial_orbit_that_cannot_be_integrated_is_a_rejected_step_not_the_end_
     assert len(single) > 3
     assert refit.passed
     assert abs(refit.exponent - fresh.exponent) < 1e-2 * fresh.exponent_stderr
+
+
+def test_residuals_of_exactly_zero_with_no_stated_noise_give_no_covariance():
+    # With sigma unknown the covariance is (J^T J)^-1 times the residuals' variance: residuals
+    # of exactly zero would state errors of zero, a confident claim from no measure of the
+    # noise, so there is none. With sigma known the scale is 1 and the covariance (J^T J)^-1
+    # (the least-squares error matrix as the inverse of the curvature matrix: Bevington &
+    # Robinson 2003, chapter 7, equation number from memory; checked against numpy's inverse).
+    from forcefit.estimators.orbit import covariance_from
+
+    jacobian = np.random.default_rng(0).standard_normal((50, 3))
+    assert covariance_from(jacobian, np.zeros(50), "linear", sigma_known=False) is None
+    np.testing.assert_allclose(covariance_from(jacobian, np.zeros(50), "linear", sigma_known=True),
+                               np.linalg.inv(jacobian.T @ jacobian), rtol=1e-12)
