@@ -699,7 +699,7 @@ def test_residuals_of_exactly_zero_with_no_stated_noise_give_no_covariance():
     # of exactly zero would state errors of zero, a confident claim from no measure of the
     # noise, so there is none. With sigma known the scale is 1 and the covariance (J^T J)^-1
     # (the least-squares error matrix as the inverse of the curvature matrix: Bevington &
-    # Robinson 2003, chapter 7, equation number from memory; checked against numpy's inverse).
+    # Robinson 2003, chapter 7, from memory; checked against numpy's inverse).
     from forcefit.estimators.orbit import covariance_from
 
     jacobian = np.random.default_rng(0).standard_normal((50, 3))
