@@ -236,9 +236,11 @@ def propagate_batch(
     exactly (no interpolation error), shrinking its steps through pericentre passages
     by the error estimate. Measured against the reference (benchmarks/orbit_fit.py):
     position errors below 1e-9 of the orbit's size over 5 revolutions for n in
-    [-2.9, 3] and Kepler ellipses up to e = 0.95, at well over 50 times the speed of
-    calling solve_ivp per orbit. A vectorised numpy Runge-Kutta over the batch was
-    the alternative; it has to take the smallest step of any orbit for all of them.
+    [-2.9, 3] and Kepler ellipses up to e = 0.95, at well over 100 times the speed of
+    calling solve_ivp per orbit (163 times for 32 rosettes of 600 samples). An orbit under
+    the power law and linear drag alone takes a short derivative whose step the compiler
+    unrolls (2.6 times faster, the same bits). A vectorised numpy Runge-Kutta over the batch
+    was the alternative; it has to take the smallest step of any orbit for all of them.
 
     Parameters
     ----------
