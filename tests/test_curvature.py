@@ -109,6 +109,10 @@ def test_an_alternative_centre_that_cannot_be_fitted_is_left_out_and_the_rest_ke
     fit = fit_curvature(track)
     laws = sorted([fit.exponent, *(other.exponent for other in fit.alternatives)])
     assert np.allclose(laws, [-2.0, -2.0, 1.0], atol=0.01)
+    # the answer is ambiguous, so it fails its centre check, naming each alternative
+    assert fit.diagnostics["centre"].passed is False and not fit.passed
+    assert all(f"about ({other.centre[0]:.4g}, {other.centre[1]:.4g})" in fit.diagnostics["centre"].message
+               for other in fit.alternatives)
     dropped = fit.alternatives[0].centre
     relation = curvature._relation
 
