@@ -375,6 +375,8 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "(the growth never reaches the cap); with dense output the largest error against Kepler's "
         "equation over 5 turns at e = 0.5, 0.9, 0.95 is 4.5e-11, 1.2e-10, 6.0e-11 of 2a (was 4.5e-11, "
         "1.1e-10, 1.9e-10; stated 1e-9)",
+    ("forcefit/geometry/centre.py", "_, _, axes = np.linalg.svd(points - centroid, full_matrices=False)", 1):
+        "full_matrices changes only U (N x N instead of N x 2); the axes (V^T, 2 x 2) are the same",
 }
 
 # the same, for a line whose text recurs in its module: (module, enclosing function, line, index)

@@ -124,3 +124,18 @@ def test_an_alternative_centre_that_cannot_be_fitted_is_left_out_and_the_rest_ke
     monkeypatch.setattr(curvature, "_relation", failing)
     refit = fit_curvature(track)
     assert [other.centre for other in refit.alternatives] == [other.centre for other in fit.alternatives[1:]]
+
+
+def test_a_relation_that_cannot_be_fitted_about_the_given_centre_is_refused_naming_it(monkeypatch):
+    # When the force-curvature relation cannot be solved about the centre given, the refusal
+    # names that centre (x then y) so that the user can check it.
+    import forcefit.estimators.curvature as curvature
+    from forcefit.errors import GeometryError
+
+    def unsolvable(*args, **kwargs):
+        raise GeometryError("singular")
+
+    monkeypatch.setattr(curvature, "fit_pointwise", unsolvable)
+    track = simulate_orbit(exponent=-2.0, noise=1e-3, rng=1, centre=(0.3, -0.7))
+    with pytest.raises(NotIdentifiable, match=re.escape("about (0.3, -0.7); check the centre")):
+        fit_curvature(track, centre=(0.3, -0.7))
