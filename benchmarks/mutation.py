@@ -377,6 +377,14 @@ EQUIVALENT: dict[tuple[str, str, int], str] = {
         "1.1e-10, 1.9e-10; stated 1e-9)",
     ("forcefit/geometry/centre.py", "_, _, axes = np.linalg.svd(points - centroid, full_matrices=False)", 1):
         "full_matrices changes only U (N x N instead of N x 2); the axes (V^T, 2 x 2) are the same",
+    ("forcefit/estimators/acceleration.py", "sigma[inward] / -radial[inward])", 1):
+        "the start line's errors with their sign flipped: fit_line weighs by 1/sigma^2 and squares "
+        "the residuals, so the start is the same to the bit",
+    ("forcefit/dynamics/propagate.py", "column.flags.writeable = False", 0):
+        "the per-orbit columns left writable: numba then types some batches' arrays differently and "
+        "loads a second compiled signature (about 0.3 s once per process), with the same results",
+    ("forcefit/estimators/orbit.py", "if lag_one > 0.5:", 0):
+        "> -> >= at a lag-one autocorrelation of exactly 0.5 (a continuous statistic): never met",
 }
 
 # the same, for a line whose text recurs in its module: (module, enclosing function, line, index)
