@@ -490,22 +490,26 @@ def test_the_turns_swept_are_counted_from_the_first_sample_to_the_last():
     assert f"sweep {expected:.2f} turns" in fit.diagnostics["coverage"].message
 
 
-def test_a_refit_from_an_earlier_fit_skips_the_start_search_and_lands_where_a_fresh_fit_does(monkeypatch):
-    # fit_orbit(start=...): a refit of a much-like track starts from the earlier fit's values by
-    # name. Here the earlier fit modelled a drag the refit leaves out, and its centre was free
-    # where the refit gives one; the refit must find the minimum a fresh fit finds (the same
-    # problem; its answer to a thousandth of its error) without the start search.
+def _forbid_the_start_search(monkeypatch) -> None:
+    """Make the orbit fit's start search (both kinds) fail the test if it runs."""
     import forcefit.estimators.orbit as orbit
-
-    track = simulate_orbit(exponent=-1.5, noise=2e-3, centre=(0.1, -0.2), rng=21)
-    earlier = fit_orbit(track, drag="linear")
-    fresh = fit_orbit(track, centre=(0.1, -0.2))
 
     def no_search(*args, **kwargs):
         raise AssertionError("the start search ran")
 
     monkeypatch.setattr(orbit, "orbit_start", no_search)
     monkeypatch.setattr(orbit, "apsidal_start", no_search)
+
+
+def test_a_refit_from_an_earlier_fit_skips_the_start_search_and_lands_where_a_fresh_fit_does(monkeypatch):
+    # fit_orbit(start=...): a refit of a much-like track starts from the earlier fit's values by
+    # name. Here the earlier fit modelled a drag the refit leaves out, and its centre was free
+    # where the refit gives one; the refit must find the minimum a fresh fit finds (the same
+    # problem; its answer to a thousandth of its error) without the start search.
+    track = simulate_orbit(exponent=-1.5, noise=2e-3, centre=(0.1, -0.2), rng=21)
+    earlier = fit_orbit(track, drag="linear")
+    fresh = fit_orbit(track, centre=(0.1, -0.2))
+    _forbid_the_start_search(monkeypatch)
     refit = fit_orbit(track, centre=(0.1, -0.2), start=earlier)
     assert "drag" not in refit.values and refit.centre == (0.1, -0.2)
     assert abs(refit.exponent - fresh.exponent) < 1e-3 * fresh.exponent_stderr
@@ -680,13 +684,7 @@ def test_a_trial_orbit_that_cannot_be_integrated_is_a_rejected_step_not_the_end_
                 ok = np.zeros_like(ok)
         return predictions, ok
 
-    def no_search(*args, **kwargs):
-        raise AssertionError("the start search ran")
-
-    import forcefit.estimators.orbit as orbit
-
-    monkeypatch.setattr(orbit, "orbit_start", no_search)
-    monkeypatch.setattr(orbit, "apsidal_start", no_search)
+    _forbid_the_start_search(monkeypatch)
     monkeypatch.setattr(OrbitModel, "predict", first_trial_fails)
     refit = fit_orbit(track, start=held)
     assert len(single) > 3
