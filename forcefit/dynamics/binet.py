@@ -210,7 +210,8 @@ def solve_binet(
     out = np.full((angles.size, STATE), np.nan)
     code, steps = FAILED, 0
     if math.isfinite(exponent) and abs(log_ratio) < 700 and math.isfinite(slope):
-        code, steps = _integrate(np.ascontiguousarray(angles, dtype=np.float64), float(reference), start,
+        # a writeable copy, whatever the caller's flags: one compiled signature for every call
+        code, steps = _integrate(np.array(angles, dtype=np.float64), float(reference), start,
                                  exponent, math.exp(log_ratio), rtol, 1e-12 * u0, steps_per_turn, out)
     ok = code == OK
     if not ok:
