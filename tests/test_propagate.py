@@ -266,3 +266,29 @@ def test_an_orbit_that_would_need_more_steps_than_its_budget_is_marked_failed(de
         batch = propagate_batch(t, (1.0, 0.0), (0.0, 1.0), exponent=-2.0, strength=1.0, epoch=0.0,
                                 dense=dense)
         assert bool(batch.ok[0]) is expected
+
+
+def test_one_compiled_kernel_serves_arrays_of_any_flags_and_the_callers_keep_theirs():
+    # numba compiles a kernel afresh for each combination of read-only flags of its arrays
+    # (numba documentation, "Compiling Python code with @jit": types include array layout and
+    # mutability): the propagator hands every array read-only, so a writeable and a read-only
+    # sample-time array, with a perturber's table or without, share one signature each, and the
+    # caller's arrays are never made read-only.
+    from forcefit.dynamics import _kernel
+    from forcefit.dynamics.forces import ExtraForces, Perturber
+
+    times = np.linspace(0.0, 6.0, 40)
+    frozen = times.copy()
+    frozen.flags.writeable = False
+    table_t = np.linspace(-1.0, 7.0, 20)
+    table_xy = np.column_stack((30.0 + 0.0 * table_t, 0.1 * table_t))
+    perturber = Perturber(times=table_t, positions=table_xy, gm=1e-3)
+    for t in (times, frozen):
+        for extra in (None, ExtraForces(perturber=perturber)):
+            for dense in (False, True):
+                batch = propagate_batch(t, (1.0, 0.0), (0.0, 1.0), exponent=-2.0, strength=1.0, epoch=0.0,
+                                        extra=extra, dense=dense, linear_drag=np.zeros(1))
+                assert batch.ok.all()
+    assert len(_kernel.integrate_batch.signatures) == 1
+    assert len(_kernel.integrate_batch_dense.signatures) == 1
+    assert times.flags.writeable and table_t.flags.writeable and table_xy.flags.writeable

@@ -116,8 +116,8 @@ class Perturber:
     name: str = "perturber"
 
     def __post_init__(self) -> None:
-        times = np.ascontiguousarray(self.times, dtype=np.float64)
-        positions = np.ascontiguousarray(self.positions, dtype=np.float64)
+        times = np.array(self.times, dtype=np.float64)          # copies: the caller's arrays keep
+        positions = np.array(self.positions, dtype=np.float64)  # their flags and their values
         if times.ndim != 1 or times.size < 4 or positions.shape != (times.size, 2):
             raise InputError(f"{self.name}: a perturbing body needs at least 4 timed positions (t, x, y); "
                              f"got {times.size}.")
