@@ -72,3 +72,24 @@ def test_window_level_matches_full_gcv_at_equal_density(monkeypatch):
 def test_too_few_points_refused():
     with pytest.raises(GeometryError, match="too few"):
         smooth_curve(np.arange(5.0), np.arange(5.0), np.arange(5.0))
+
+
+def test_local_covariance_on_the_coefficients_is_the_one_from_the_influences(monkeypatch):
+    # The spline's covariance of quantities read off single samples is computed on its
+    # coefficients (S^T G S); the generic one builds each quantity's influence on every sample
+    # and sums var_j |u_j|^2. Two routes to the same numbers, on an unevenly sampled track with
+    # its own noise per sample, random gradients on x and y, and groups built in chunks of one.
+    from forcefit.geometry import pspline
+
+    rng = np.random.default_rng(11)
+    s = np.sort(rng.uniform(0.0, 4 * np.pi, 700))
+    sigma = 0.002 * (1.0 + rng.uniform(0, 1, s.size))
+    curve = smooth_curve(s, np.cos(s) + sigma * rng.standard_normal(s.size),
+                         0.5 * np.sin(s) + sigma * rng.standard_normal(s.size), sigma=sigma)
+    samples = np.array([0, 3, 350, 351, 699])
+    gradient = rng.standard_normal((samples.size, 3, 3, 2))
+    fast = curve.response.local_covariance(samples, gradient)
+    monkeypatch.setattr(pspline, "LOCAL_CHUNK_VALUES", 1)
+    generic = pspline.LinearResponse.local_covariance(curve.response, samples, gradient)
+    np.testing.assert_allclose(fast, generic, rtol=1e-8, atol=1e-12 * np.abs(generic).max())
+    assert np.all(np.linalg.eigvalsh(fast) > 0)

@@ -129,14 +129,6 @@ def _pointwise_sd(curve: SmoothedCurve, used: np.ndarray, gradient: FloatArray) 
     return np.sqrt(np.maximum(variance, 0.0))
 
 
-def _local_gradients(curve: SmoothedCurve, used: np.ndarray, rows: FloatArray,
-                     gradient: FloatArray) -> FloatArray:
-    """Gradients on the whole track of quantities sum_i rows[a, i] * residual_i."""
-    out = np.zeros((rows.shape[0], curve.parameter.size, 3, 2))
-    out[:, used] = rows[:, :, None, None] * gradient[None]
-    return out
-
-
 def _probes(size: int) -> np.ndarray:
     """PROBES evenly spread positions among ``size`` used samples (all of them when fewer)."""
     return np.unique(np.linspace(0, size - 1, min(PROBES, size)).round().astype(int))
@@ -154,11 +146,8 @@ def _frequentist_scale(curve: SmoothedCurve, used: np.ndarray, gradient: FloatAr
     if curve.response is None:
         return np.ones(used.size)
     picks = _probes(used.size)
-    rows = np.zeros((picks.size, used.size))
-    rows[np.arange(picks.size), picks] = 1.0 / np.maximum(sd[picks], 1e-300)
-    influence = curve.response.influence(_local_gradients(curve, used, rows, gradient))
-    scaled = influence * np.sqrt(curve.response.noise_var)[None, :, None]
-    ratio = np.sqrt(np.einsum("aic,aic->a", scaled, scaled))
+    local = gradient[picks] / np.maximum(sd[picks], 1e-300)[:, None, None]
+    ratio = np.sqrt(curve.response.local_covariance(used[picks], local[:, None])[:, 0, 0])
     return np.interp(np.arange(used.size), picks, ratio)
 
 
@@ -304,12 +293,9 @@ def _sampling_covariance(curve: SmoothedCurve, used: np.ndarray) -> FloatArray:
     if curve.response is None:
         return np.asarray(bayes)
     picks = _probes(used.size)
-    rows = np.zeros((3 * picks.size, curve.parameter.size, 3, 2))
-    for order in range(3):
-        rows[order::3, used[picks], order, 0] = np.eye(picks.size)
-    influence = curve.response.influence(rows) * np.sqrt(curve.response.noise_var)[None, :, None]
-    blocks = influence.reshape(picks.size, 3, curve.parameter.size, 2)
-    sampled = np.einsum("kaic,kbic->kab", blocks, blocks, optimize=True)
+    unit = np.zeros((picks.size, 3, 3, 2))
+    unit[:, [0, 1, 2], [0, 1, 2], 0] = 1.0                               # x's value, first, second
+    sampled = curve.response.local_covariance(used[picks], unit)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(np.abs(bayes[picks]) > 0, sampled / bayes[picks], 0.0)
     out = np.empty_like(bayes)

@@ -58,6 +58,9 @@ GCV_WINDOW = 1200
 MIN_WINDOW_DOF = 25.0
 """Fewest degrees of freedom the GCV window's fit must show before its level is trusted."""
 
+LOCAL_CHUNK_VALUES = 4_000_000
+"""Most values (32 MB) of the track-long gradients built at once by `LinearResponse.local_covariance`."""
+
 SAMPLES_PER_INTERVAL = 2.0
 """Knot spacing in median sample spacings (two keeps every interval supplied with data)."""
 
@@ -191,6 +194,39 @@ class LinearResponse:
         """
         return self._adjoint(np.asarray(gradient, dtype=float))
 
+    def local_covariance(self, samples: np.ndarray, gradient: FloatArray) -> FloatArray:
+        """Sampling covariance of small groups of quantities, each group read off one sample.
+
+        Quantity (k, a) is ``gradient[k, a] . (value, first, second)`` of the smoothed (x, y)
+        at sample ``samples[k]``; the noise is independent. Only the covariances within a
+        group are returned: what `covariance` of their `influence` would give on its
+        diagonal blocks, without an array as long as the track per quantity.
+
+        Parameters
+        ----------
+        samples : ndarray of int, shape (n_groups,)
+        gradient : ndarray, shape (n_groups, n_per_group, 3, 2)
+
+        Returns
+        -------
+        ndarray, shape (n_groups, n_per_group, n_per_group)
+        """
+        gradient = np.asarray(gradient, dtype=float)
+        n_groups, per_group = gradient.shape[:2]
+        n_points = self.noise_var.size
+        out = np.empty((n_groups, per_group, per_group))
+        chunk = max(1, LOCAL_CHUNK_VALUES // max(n_points * 6 * per_group, 1))
+        for first in range(0, n_groups, chunk):
+            picked = slice(first, min(first + chunk, n_groups))
+            count = picked.stop - first
+            whole = np.zeros((count, per_group, n_points, 3, 2))
+            whole[np.arange(count), :, samples[picked]] = gradient[picked]
+            influence = self.influence(whole.reshape(count * per_group, n_points, 3, 2))
+            scaled = influence * np.sqrt(self.noise_var)[None, :, None]
+            scaled = scaled.reshape(count, per_group, n_points, 2)
+            out[picked] = np.einsum("kaic,kbic->kab", scaled, scaled)
+        return out
+
     def covariance(self, influence: FloatArray, correlation: FloatArray | None = None) -> FloatArray:
         """Covariance of quantities with data influences ``influence`` (n_q, n_points, 2).
 
@@ -213,7 +249,7 @@ class _SplineResponse(LinearResponse):
 
     def __init__(self, basis: _Basis, upper: FloatArray, weight: FloatArray, noise_var: FloatArray):
         super().__init__(noise_var)
-        self._upper, self._weight = upper, weight
+        self._basis, self._upper, self._weight = basis, upper, weight
         n_points = basis.first_index.size
         rows = np.repeat(np.arange(n_points), DEGREE + 1)
         columns = (basis.first_index[:, None] + np.arange(DEGREE + 1)).ravel()
@@ -228,6 +264,29 @@ class _SplineResponse(LinearResponse):
         solution = linalg.cho_solve_banded((self._upper, False), right)
         out = self._weight[:, None] * (self._design[0] @ solution)
         return out.reshape(n_points, n_quantities, 2).transpose(1, 0, 2)
+
+    def local_covariance(self, samples: np.ndarray, gradient: FloatArray) -> FloatArray:
+        # Quantity q's influence is u_q = W B S_q with S_q = M^-1 sum_d B_d^T g_q,d, so the
+        # covariance sum_j var_j u_p,j u_q,j = S_p^T G S_q with the banded G = B^T W V W B:
+        # everything stays on the spline's coefficients (at most MAX_INTERVALS + DEGREE of
+        # them), however many samples the track has.
+        gradient = np.asarray(gradient, dtype=float)
+        n_groups, per_group = gradient.shape[:2]
+        basis = self._basis
+        samples = np.asarray(samples)
+        right = np.zeros((basis.n_basis, n_groups, per_group, 2))
+        for m in range(DEGREE + 1):
+            loading = sum(basis.weights[order][samples, m][:, None, None] * gradient[:, :, order]
+                          for order in range(3))                            # (n_groups, per_group, 2)
+            right[basis.first_index[samples] + m, np.arange(n_groups)] = loading
+        columns = right.reshape(basis.n_basis, -1)
+        live = np.flatnonzero(np.any(columns != 0.0, axis=0))              # e.g. only x asked for
+        solution = np.zeros_like(columns)
+        solution[:, live] = linalg.cho_solve_banded((self._upper, False), columns[:, live])
+        gram = (self._design[0].T @ sparse.diags_array(self._weight**2 * self.noise_var)
+                @ self._design[0]).tocsr()
+        spread = (gram @ solution).reshape(basis.n_basis, n_groups, per_group, 2)
+        return np.einsum("jkac,jkbc->kab", solution.reshape(spread.shape), spread)
 
 
 class FilterResponse(LinearResponse):
