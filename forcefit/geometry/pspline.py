@@ -250,19 +250,25 @@ class _SplineResponse(LinearResponse):
     def __init__(self, basis: _Basis, upper: FloatArray, weight: FloatArray, noise_var: FloatArray):
         super().__init__(noise_var)
         self._basis, self._upper, self._weight = basis, upper, weight
+
+    def _design(self, order: int) -> sparse.csr_array:
+        """B_d (n_points, n_basis): the d-th derivatives of the six live B-splines at each sample.
+
+        Built when asked for from the basis it shares with the curve, not kept: a curve of 10^6
+        samples would otherwise hold three more copies of its basis (over 200 MB)."""
+        basis = self._basis
         n_points = basis.first_index.size
-        rows = np.repeat(np.arange(n_points), DEGREE + 1)
         columns = (basis.first_index[:, None] + np.arange(DEGREE + 1)).ravel()
-        shape = (n_points, basis.n_basis)
-        self._design = [sparse.csr_array((basis.weights[order].ravel(), (rows, columns)), shape=shape)
-                        for order in range(3)]
+        starts = np.arange(0, (DEGREE + 1) * n_points + 1, DEGREE + 1)
+        return sparse.csr_array((basis.weights[order].ravel(), columns, starts),
+                                shape=(n_points, basis.n_basis))
 
     def _adjoint(self, gradient: FloatArray) -> FloatArray:
         n_quantities, n_points = gradient.shape[0], gradient.shape[1]
         columns = gradient.transpose(1, 2, 0, 3).reshape(n_points, 3, 2 * n_quantities)
-        right = sum(self._design[order].T @ columns[:, order] for order in range(3))
+        right = sum(self._design(order).T @ columns[:, order] for order in range(3))
         solution = linalg.cho_solve_banded((self._upper, False), right)
-        out = self._weight[:, None] * (self._design[0] @ solution)
+        out = self._weight[:, None] * (self._design(0) @ solution)
         return out.reshape(n_points, n_quantities, 2).transpose(1, 0, 2)
 
     def local_covariance(self, samples: np.ndarray, gradient: FloatArray) -> FloatArray:
@@ -283,8 +289,8 @@ class _SplineResponse(LinearResponse):
         live = np.flatnonzero(np.any(columns != 0.0, axis=0))              # e.g. only x asked for
         solution = np.zeros_like(columns)
         solution[:, live] = linalg.cho_solve_banded((self._upper, False), columns[:, live])
-        gram = (self._design[0].T @ sparse.diags_array(self._weight**2 * self.noise_var)
-                @ self._design[0]).tocsr()
+        design = self._design(0)
+        gram = (design.T @ sparse.diags_array(self._weight**2 * self.noise_var) @ design).tocsr()
         spread = (gram @ solution).reshape(basis.n_basis, n_groups, per_group, 2)
         return np.einsum("jkac,jkbc->kab", solution.reshape(spread.shape), spread)
 
