@@ -307,6 +307,19 @@ def test_the_time_free_fit_and_apsides_load_no_sampler_and_no_figures(command, a
     assert ("shape fit" if command[0] == "fit" else "apsidal angle") in result.stdout
 
 
+def test_a_report_without_a_posterior_loads_no_sampler(tmp_path):
+    # The report draws a posterior's figures only when given one: emcee and scipy.stats (about
+    # 0.8 s to import, paid again by every worker process of a batch grading) stay unloaded.
+    path = str(DEMO / "class_pendulum" / "run_02.csv")
+    absent = ("emcee", "scipy.stats")
+    code = (f"import sys\nfrom forcefit.cli import main\n"
+            f"main(['fit', {path!r}, '--report', {str(tmp_path)!r}])\n"
+            f"print([m for m in {absent!r} if m in sys.modules], file=sys.stderr)")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert result.stderr.strip().splitlines()[-1] == "[]"
+    assert (tmp_path / "run_02.html").exists()
+
+
 @pytest.mark.parametrize(("command", "absent", "shown"), [
     ("apsides", ("scipy.stats", "scipy.signal", "dask", "pint", "lmfit", "numba", "matplotlib"),
      "apsidal angle"),

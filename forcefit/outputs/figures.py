@@ -13,6 +13,7 @@ import io
 import os
 from collections.abc import Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 from matplotlib.axes import Axes
@@ -25,9 +26,11 @@ from .._types import FloatArray
 from ..analysis.apsides import Apsides
 from ..estimators.result import LawFit, OrbitFit
 from ..formatting import estimate, measurement
-from ..inference.posterior import Posterior
 from ..reading.inspection import GAP_FACTOR
 from ..track import Track
+
+if TYPE_CHECKING:                      # the posterior's module loads emcee and scipy.stats
+    from ..inference.posterior import Posterior
 
 PALETTE = {"ink": "#1b2631", "data": "#0072B2", "model": "#D55E00", "accent": "#009E73",
            "muted": "#999999", "band": "#E69F00"}

@@ -16,7 +16,7 @@ import re
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from jinja2 import Environment, PackageLoader, select_autoescape
 from matplotlib.figure import Figure
@@ -27,7 +27,6 @@ from .._version import __version__
 from ..analysis.apsides import Apsides
 from ..estimators.result import LawFit, OrbitFit
 from ..formatting import CHECK_MARKS, CHECK_WORDS, measurement
-from ..inference.posterior import Posterior
 from ..track import Track
 from .figures import (
     apsides_figure,
@@ -39,6 +38,9 @@ from .figures import (
     residual_figure,
     trace_figure,
 )
+
+if TYPE_CHECKING:                      # the posterior's module loads emcee and scipy.stats
+    from ..inference.posterior import Posterior
 
 
 def safe_name(name: str) -> str:
