@@ -225,6 +225,24 @@ def test_inspect_finds_t_x_y_and_their_units_in_french_and_german_headers(tmp_pa
     assert expected[0] in out and expected[1] in out
 
 
+def test_a_pendulum_length_that_cannot_be_used_says_why(tmp_path, capsys):
+    # --pendulum-length takes the finite swing off an orbit fit near n = 1; a swing of 0.7 of
+    # its length reads n far below 1 (the large-swing pendulum is no Hooke oscillator), and a
+    # curvature fit is no orbit fit: each says why the correction is left out, never silently.
+    path = tmp_path / "wide.csv"
+    assert main(["simulate", "--pendulum", "1.0", "--start", "0.7,0", "--velocity", "0,0.6",
+                 "--duration", "20", "--rate", "60", "--noise", "0.0002", "--seed", "3",
+                 "--out", str(path)]) == 0
+    capsys.readouterr()
+    main(["fit", str(path), "--pendulum-length", "1.0 m", "--json"])
+    (report,) = json.loads(capsys.readouterr().out)
+    assert abs(report["exponent"] - 1.0) >= 0.1
+    assert report["pendulum"]["applied"] is False and "n = " in report["pendulum"]["reason"]
+    main(["fit", str(path), "--pendulum-length", "1.0 m", "--method", "curvature", "--json"])
+    (report,) = json.loads(capsys.readouterr().out)
+    assert report["pendulum"]["applied"] is False and "orbit fit" in report["pendulum"]["reason"]
+
+
 def test_fit_prints_k_at_the_nominal_exponent_g_and_the_deviation(tmp_path, capsys):
     # issue 15, item 6: the strength at n = 1 (omega^2 in s^-2), g with --pendulum-length, and the
     # deviation from the nominal law with its significance
