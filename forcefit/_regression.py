@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._types import FloatArray
+from .errors import NotIdentifiable
 
 
 def autocorrelation_time(residuals: FloatArray) -> float:
@@ -67,7 +68,11 @@ def fit_line(x: FloatArray, y: FloatArray, sigma: FloatArray) -> LineFit:
     weight = 1.0 / sigma**2
     design = np.column_stack((x, np.ones_like(x)))
     normal = design.T @ (weight[:, None] * design)
-    slope, intercept = np.linalg.solve(normal, design.T @ (weight * y))
+    try:
+        slope, intercept = np.linalg.solve(normal, design.T @ (weight * y))
+    except np.linalg.LinAlgError:
+        raise NotIdentifiable(f"a line through {x.size} points that share one abscissa is not "
+                              "determined.") from None
     residuals = (y - slope * x - intercept) / sigma
     chi2 = float(residuals @ residuals)
     reduced = chi2 / max(x.size - 2, 1)

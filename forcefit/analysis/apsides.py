@@ -293,6 +293,13 @@ def measure_apsides(track: Track, *, centre: tuple[float, float] | None = None,
     angles = np.array([apse.angle for apse in apses])
     errors = np.array([max(apse.angle_stderr, 1e-12) for apse in apses])
     spacing = float(np.median(np.diff(angles)))
+    if not (spacing > 0.0 and np.all(np.diff(angles) > 0.0)):
+        raise NotIdentifiable(
+            f"{track.label}: the apses found do not follow one another about the centre (their "
+            "angles do not increase along the track): where samples are missing over a large part "
+            "of a turn (a hidden pericentre passage) the smoothed path cannot be followed across "
+            "the gap. Measure the apses on a stretch without such gaps, or fit the orbit (it "
+            "integrates across them).")
     count = np.round((angles - angles[0]) / spacing)       # apse number, robust to a missed apse
     line = fit_line(count, angles, errors)
     scatter = math.sqrt(line.reduced_chi2)

@@ -172,7 +172,7 @@ def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tupl
             "from a pendulum's n = 1, farther than the correction (made for swings of up to about a "
             "fifth of the length) reaches. A swing that wide, or a force that is not a pendulum's, "
             "is beyond it: film a smaller swing.")))
-    elif length is not None:
+    elif length is not None and isinstance(fit, OrbitFit):
         from ..analysis.pendulum import pendulum_correction  # it refits: only when asked for
 
         try:

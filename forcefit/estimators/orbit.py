@@ -32,6 +32,7 @@ from ._apsidal_start import apsidal_start
 from ._checks import (
     RESOLVED_EXCURSION,
     chi_square_diagnostic,
+    polar_steps,
     require_bend,
     require_one_sense,
     runs_diagnostic,
@@ -489,8 +490,8 @@ def _turns(model: OrbitModel, vector: FloatArray) -> float:
     total = 0.0
     for j, track in enumerate(model.tracks):
         cx, cy, _ = model.track_columns(j)
-        angle = np.unwrap(np.arctan2(track.y - vector[cy], track.x - vector[cx]))
-        total += abs(float(angle[-1] - angle[0])) / (2.0 * math.pi)
+        step, _, _ = polar_steps(track, (float(vector[cx]), float(vector[cy])))
+        total += abs(float(np.sum(step))) / (2.0 * math.pi)
     return total
 
 
