@@ -188,3 +188,29 @@ def test_the_curvature_and_radius_errors_are_the_delta_method_of_their_formulas(
     expected = _delta_method(relation, values, [stderr[0] ** 2, polar.radius_stderr[0] ** 2,
                                                 polar.gamma_stderr[0] ** 2])
     assert points.sigma[0] == pytest.approx(expected, rel=1e-6)
+
+
+def test_the_edges_of_a_long_stretch_without_samples_are_ends_too():
+    # Samples lost over more than the smoothing's reach (a hidden pericentre passage): the
+    # smoothed derivatives beside the gap carry an end's bias, so those samples are left out as
+    # the ends' are; a single dropped frame is bridged and costs nothing (common practice).
+    from forcefit.geometry.curves import interior
+    from forcefit.geometry.pspline import smooth_curve
+
+    rng = np.random.default_rng(4)
+    s = np.linspace(0.0, 6 * np.pi, 1200)
+    dropped = np.delete(s, 600)
+    gapped = s[(s < 8.0) | (s > 10.0)]
+    for parameter in (dropped, gapped):
+        curve = smooth_curve(parameter, np.cos(parameter) + 1e-3 * rng.standard_normal(parameter.size),
+                             np.sin(parameter) + 1e-3 * rng.standard_normal(parameter.size))
+        keep = interior(curve)
+        near_gap = (parameter > 8.0 - 3 * curve.span) & (parameter < 10.0 + 3 * curve.span)
+        ends = (parameter < 3 * curve.span) | (parameter > parameter[-1] - 3 * curve.span)
+        if parameter is dropped:
+            assert keep[~ends].all()
+        else:
+            last, first = parameter[parameter < 8.0][-1], parameter[parameter > 10.0][0]
+            assert not keep[(parameter <= last) & (parameter > last - curve.span)].any()
+            assert not keep[(parameter >= first) & (parameter < first + curve.span)].any()
+            assert keep[~near_gap & ~ends].all()
