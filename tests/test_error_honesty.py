@@ -110,7 +110,9 @@ def test_unevenly_spaced_rosette_without_times():
     states = propagate_reference((1.0, 0.0), (0.0, 0.8), t, exponent=-1.0, strength=1.0)
     xy = states.position + 2e-3 * rng.standard_normal(states.position.shape)
     fit = fit_curvature(Track(x=xy[:, 0], y=xy[:, 1]))
-    assert abs(fit.exponent + 1.0) < 3.0 * fit.exponent_stderr < 0.1
+    # the samples beside the longest gaps (over two smoothing spans) are left out as ends are, so
+    # this heavy-tailed spacing answers less precisely than evenly spaced samples would (0.08)
+    assert abs(fit.exponent + 1.0) < 3.0 * fit.exponent_stderr < 0.3
 
 
 @pytest.mark.parametrize(("estimator", "slack"),

@@ -177,15 +177,16 @@ EDGE_SPANS = 2.0
 
 def interior(curve: SmoothedCurve) -> np.ndarray:
     """Samples away from the ends, where smoothed derivatives carry the boundary's bias, and
-    away from the edges of every stretch without samples longer than the smoothing's reach (a
-    pericentre passage hidden from the camera), which are ends too.
+    away from the edges of every stretch without samples longer than EDGE_SPANS smoothing spans
+    (a pericentre passage hidden from the camera), which are ends too: over a shorter one the
+    smoothing bridges as over the ordinary spacing of unevenly timed samples.
 
     Keeps at least the middle half of the samples when there is no such stretch.
     """
     parameter = curve.parameter
     margin = min(EDGE_SPANS * curve.span, 0.25 * float(parameter[-1] - parameter[0]))
     keep = (parameter >= parameter[0] + margin) & (parameter <= parameter[-1] - margin)
-    for gap in np.flatnonzero(np.diff(parameter) > curve.span):
+    for gap in np.flatnonzero(np.diff(parameter) > EDGE_SPANS * curve.span):
         keep &= (parameter <= parameter[gap] - margin) | (parameter >= parameter[gap + 1] + margin)
     return keep
 
