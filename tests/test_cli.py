@@ -231,7 +231,7 @@ def test_a_pendulum_length_that_cannot_be_used_says_why(tmp_path, capsys):
     # curvature fit is no orbit fit: each says why the correction is left out, never silently.
     path = tmp_path / "wide.csv"
     assert main(["simulate", "--pendulum", "1.0", "--start", "0.7,0", "--velocity", "0,0.6",
-                 "--duration", "20", "--rate", "60", "--noise", "0.0002", "--seed", "3",
+                 "--duration", "8", "--rate", "30", "--noise", "0.0002", "--seed", "3",
                  "--out", str(path)]) == 0
     capsys.readouterr()
     main(["fit", str(path), "--pendulum-length", "1.0 m", "--json"])
