@@ -4,6 +4,7 @@ import json
 import re
 import subprocess
 import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -225,14 +226,21 @@ def test_inspect_finds_t_x_y_and_their_units_in_french_and_german_headers(tmp_pa
     assert expected[0] in out and expected[1] in out
 
 
+def _simulated_pendulum(path: Path, *, length: str, start: str, velocity: str, duration: str,
+                        seed: str) -> Path:
+    """A pendulum (m, s) simulated by the command line at 30 frames per second, 0.2 mm noise."""
+    assert main(["simulate", "--pendulum", length, "--start", start, "--velocity", velocity,
+                 "--duration", duration, "--rate", "30", "--noise", "0.0002", "--seed", seed,
+                 "--out", str(path)]) == 0
+    return path
+
+
 def test_a_pendulum_length_that_cannot_be_used_says_why(tmp_path, capsys):
     # --pendulum-length takes the finite swing off an orbit fit near n = 1; a swing of 0.7 of
     # its length reads n far below 1 (the large-swing pendulum is no Hooke oscillator), and a
     # curvature fit is no orbit fit: each says why the correction is left out, never silently.
-    path = tmp_path / "wide.csv"
-    assert main(["simulate", "--pendulum", "1.0", "--start", "0.7,0", "--velocity", "0,0.6",
-                 "--duration", "8", "--rate", "30", "--noise", "0.0002", "--seed", "3",
-                 "--out", str(path)]) == 0
+    path = _simulated_pendulum(tmp_path / "wide.csv", length="1.0", start="0.7,0", velocity="0,0.6",
+                               duration="8", seed="3")
     capsys.readouterr()
     main(["fit", str(path), "--pendulum-length", "1.0 m", "--json"])
     (report,) = json.loads(capsys.readouterr().out)
@@ -246,10 +254,8 @@ def test_a_pendulum_length_that_cannot_be_used_says_why(tmp_path, capsys):
 def test_fit_prints_k_at_the_nominal_exponent_g_and_the_deviation(tmp_path, capsys):
     # issue 15, item 6: the strength at n = 1 (omega^2 in s^-2), g with --pendulum-length, and the
     # deviation from the nominal law with its significance
-    path = tmp_path / "bob.csv"
-    assert main(["simulate", "--pendulum", "2.0", "--start", "0.06,0", "--velocity", "0,0.05",
-                 "--duration", "20", "--rate", "30", "--noise", "0.0002", "--seed", "2",
-                 "--out", str(path)]) == 0
+    path = _simulated_pendulum(tmp_path / "bob.csv", length="2.0", start="0.06,0", velocity="0,0.05",
+                               duration="20", seed="2")
     capsys.readouterr()
     assert main(["fit", str(path), "--pendulum-length", "2.000+-0.002 m", "--center", "0,0"]) == 0
     out = capsys.readouterr().out
