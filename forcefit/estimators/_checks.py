@@ -87,9 +87,9 @@ def require_bend(track: Track, noise: float) -> None:
 
 
 def polar_steps(track: Track, centre: tuple[float, float],
-                kept: np.ndarray | None = None) -> tuple[FloatArray, float, np.ndarray]:
-    """The polar angle's steps (rad) from sample to sample about ``centre``, the sense of the
-    motion (+1 anticlockwise, -1 clockwise) and which steps span a gap in the times.
+                kept: np.ndarray | None = None) -> tuple[FloatArray, float]:
+    """The polar angle's steps (rad) from sample to sample about ``centre``, and the sense of
+    the motion (+1 anticlockwise, -1 clockwise).
 
     The sense is that of most steps, not of their sum: across a gap (a pericentre passage hidden
     from the camera, dropped frames) the angle is known only modulo a turn, and a sweep of more
@@ -101,12 +101,11 @@ def polar_steps(track: Track, centre: tuple[float, float],
     offset = track.positions[kept] - np.asarray(centre)
     step = np.diff(np.unwrap(np.arctan2(offset[:, 1], offset[:, 0])))
     sense = float(np.sign(np.median(step))) if step.size else 1.0
-    gap = np.zeros(step.size, dtype=bool)
     if track.t is not None and step.size:
         interval = np.diff(np.asarray(track.t)[kept])
         gap = interval > GAP_FACTOR * np.median(interval)
         step = np.where(gap & (sense * step < 0.0), step + 2.0 * math.pi * sense, step)
-    return step, sense, gap
+    return step, sense
 
 
 def require_one_sense(track: Track, centre: tuple[float, float], sigma: FloatArray,
@@ -118,7 +117,7 @@ def require_one_sense(track: Track, centre: tuple[float, float], sigma: FloatArr
         return
     offset = track.positions[kept] - np.asarray(centre)
     radius = np.hypot(offset[:, 0], offset[:, 1])
-    step, sense, _ = polar_steps(track, centre, kept)
+    step, sense = polar_steps(track, centre, kept)
     back = sense * step < -3.0 * math.sqrt(2.0) * sigma[kept][1:] / np.maximum(radius[1:], 1e-300)
     if back.mean() > 0.01:
         index = int(kept[int(np.argmax(back)) + 1])

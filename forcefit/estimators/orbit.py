@@ -490,7 +490,7 @@ def _turns(model: OrbitModel, vector: FloatArray) -> float:
     total = 0.0
     for j, track in enumerate(model.tracks):
         cx, cy, _ = model.track_columns(j)
-        step, _, _ = polar_steps(track, (float(vector[cx]), float(vector[cy])))
+        step, _ = polar_steps(track, (float(vector[cx]), float(vector[cy])))
         total += abs(float(np.sum(step))) / (2.0 * math.pi)
     return total
 
