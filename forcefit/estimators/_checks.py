@@ -236,15 +236,26 @@ def runs_diagnostic(residuals: FloatArray) -> Diagnostic:
     return Diagnostic(True, text + ".")
 
 
+CHI_SQUARE_TAIL = 2.9e-7
+"""The chance below which a reduced chi-square too small fails the check: the one-sided tail of
+5 standard deviations of a normal distribution (common practice)."""
+
+
 def chi_square_diagnostic(reduced: float, dof: int) -> Diagnostic:
     """Do the residuals scatter as the given sigma says? Fails beyond 5 standard deviations
-    of the reduced chi-square (sqrt(2/dof)) either way: too large means the model misses
-    the points, too small means sigma is overstated and so are the errors."""
+    of the reduced chi-square (sqrt(2/dof)) either way, or below the chi-square distribution's
+    own 5-standard-deviation tail: too large means the model misses the points, too small means
+    sigma is overstated and so are the errors."""
+    from scipy.special import chdtr
+
     spread = math.sqrt(2.0 / max(dof, 1))
     text = f"reduced chi-square {reduced:.3g} (expected 1 ± {spread:.2g})"
     if reduced > 1.0 + 5.0 * spread:
         return Diagnostic(False, text + ": the model misses the points by more than their sigma.")
-    if reduced < 1.0 - 5.0 * spread:
+    # Below, the chi-square distribution's own tail: with few degrees of freedom it is far
+    # narrower than 5 of its standard deviations (a sigma stated twice too large over 73 degrees
+    # of freedom reads 0.25, inside 1 - 5 * 0.17, yet has a chance below 1e-15).
+    if reduced < 1.0 - 5.0 * spread or chdtr(max(dof, 1), reduced * max(dof, 1)) < CHI_SQUARE_TAIL:
         return Diagnostic(False, text + f": the points scatter {math.sqrt(max(reduced, 0.0)):.2g} "
                                         "times their given sigma, so sigma and the stated errors are "
                                         "too large. Correct the sigma column or leave it out.")
