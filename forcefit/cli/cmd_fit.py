@@ -162,17 +162,19 @@ def companions(fit: LawFit, track: Track, args: argparse.Namespace) -> list[tupl
                                pendulum_length=None if length is None else (length[0], length[2]),
                                pendulum_length_stderr=0.0 if length is None else length[1])
     beside: list[tuple[str, Companion]] = [("deviation", deviation)]
-    if length is not None and not isinstance(fit, OrbitFit):
+    if length is None:
+        return beside
+    if not isinstance(fit, OrbitFit):
         beside.append(("pendulum", NotApplied(
             f"finite swing not taken off: the correction refits an orbit fit, and this is a "
             f"{fit.method} fit (leave out --method, or give --method orbit).")))
-    elif length is not None and abs(fit.exponent - 1.0) >= NEAR_HOOKE:
+    elif abs(fit.exponent - 1.0) >= NEAR_HOOKE:
         beside.append(("pendulum", NotApplied(
             f"finite swing not taken off: the fitted n = {fit.exponent:.3g} is {NEAR_HOOKE:g} or more "
             "from a pendulum's n = 1, farther than the correction (made for swings of up to about a "
             "fifth of the length) reaches. A swing that wide, or a force that is not a pendulum's, "
             "is beyond it: film a smaller swing.")))
-    elif length is not None and isinstance(fit, OrbitFit):
+    else:
         from ..analysis.pendulum import pendulum_correction  # it refits: only when asked for
 
         try:

@@ -71,19 +71,16 @@ def smoothing_diagnostic(settled: Settled[T], unit: str) -> Diagnostic:
                                  "more densely or more precisely, or use the orbit fit (it needs "
                                  "no smoothing).")
     span, spacing = settled.curve.span, settled.curve.knot_spacing
+    agreed = (f"{where}, until the estimate stayed within {settled.agreement:.1f} standard errors of "
+              f"its change over {CONFIRMING_LEVELS} lighter levels")
     if span < GRID_LIMITED_SPAN * spacing:
-        return Diagnostic(False, f"{where}, until the estimate stayed within {settled.agreement:.1f} "
-                                 f"standard errors of its change over {CONFIRMING_LEVELS} lighter "
-                                 f"levels; but each point then averages only about {span:.3g} {unit} "
+        return Diagnostic(False, f"{agreed}; but each point then averages only about {span:.3g} {unit} "
                                  f"of the path, {span / spacing:.2g} times the spline's knot spacing: "
                                  "the knot grid, not the level, sets the smoothing there, so the "
                                  "lighter levels' agreement does not show that its bias is gone "
                                  "(the noise is small against what the grid resolves). Sample more "
                                  "densely, or use the orbit fit (it needs no smoothing).")
-    return Diagnostic(True, f"{where}, until the estimate stayed within {settled.agreement:.1f} "
-                            f"standard errors of its change over {CONFIRMING_LEVELS} lighter "
-                            f"levels; each point averages about {settled.curve.span:.3g} {unit} of "
-                            "the path.")
+    return Diagnostic(True, f"{agreed}; each point averages about {span:.3g} {unit} of the path.")
 
 
 def require_resolved_excursion(track: Track, radius: FloatArray, radius_stderr: FloatArray) -> None:
